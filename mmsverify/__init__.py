@@ -1,0 +1,21 @@
+"""mmsverify: prove a PDE solver converges at its design order, and estimate
+the discretization error left in a real simulation."""
+
+__version__ = "0.1.0"
+
+from .errors import MMSError, ProblemError, ExpressionError, GridError, SolverError, AnalysisError
+from .grids import Grid, refinement
+from .problem import Problem, load_problem, problem_from_text, bundled_problems
+from .derive import Manufactured, derive
+from .solvers import Case, Solution
+from .norms import error_norms
+from .order import observed_orders
+from .verdict import Verdict
+from .study import LevelResult, StudyResult, run_study, plan_grids
+
+__all__ = [
+    "MMSError", "ProblemError", "ExpressionError", "GridError", "SolverError", "AnalysisError",
+    "Grid", "refinement", "Problem", "load_problem", "problem_from_text", "bundled_problems",
+    "Manufactured", "derive", "Case", "Solution", "error_norms", "observed_orders", "Verdict",
+    "LevelResult", "StudyResult", "run_study", "plan_grids",
+]

@@ -1,0 +1,53 @@
+"""Command-line interface: ``mmsverify COMMAND ...`` or ``python -m mmsverify``.
+
+Each command lives in its own module ``_<name>.py`` with a ``register``
+function that adds its sub-parser and sets ``func``. Exit codes:
+
+* 0: every verdict confirmed (or the command succeeded)
+* 1: a verdict failed (observed order off the formal order)
+* 2: bad input (problem file, solver, grid sequence, data)
+* 3: inconclusive (levels failed or errors at round-off; nothing to judge)
+"""
+
+import argparse
+import importlib
+import sys
+
+from ..errors import MMSError
+
+__all__ = ["main", "EXIT_OK", "EXIT_FAIL", "EXIT_INPUT", "EXIT_INCONCLUSIVE"]
+
+EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_INCONCLUSIVE = 0, 1, 2, 3
+
+# Command modules, in the order `--help` lists them.
+_COMMANDS = ("_demo", "_run", "_derive", "_list")
+
+
+def build_parser():
+    parser = argparse.ArgumentParser(
+        prog="mmsverify",
+        description="Prove a PDE solver converges at its design order with manufactured solutions, "
+                    "and estimate the discretization error left in a real simulation.",
+        epilog="Exit codes: 0 confirmed, 1 order not confirmed, 2 bad input, 3 inconclusive.")
+    parser.add_argument("--version", action="version", version=f"%(prog)s {__import__('mmsverify').__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name in _COMMANDS:
+        importlib.import_module(f"{__name__}.{name}").register(sub)
+    return parser
+
+
+def main(argv=None):
+    """Run the command line; returns the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return EXIT_INPUT
+    try:
+        return int(args.func(args) or 0)
+    except MMSError as exc:
+        print(f"mmsverify: error: {exc}", file=sys.stderr)
+        return EXIT_INPUT
+    except KeyboardInterrupt:
+        print("mmsverify: interrupted", file=sys.stderr)
+        return 130

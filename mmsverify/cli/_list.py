@@ -1,0 +1,27 @@
+"""``mmsverify list``: bundled problems, solvers and operators."""
+
+from ..operators import OPERATORS
+from ..problem import PROBLEM_DIR, bundled_problems, load_problem
+from ..solvers import BUNDLED_SOLVERS
+
+
+def _list(args):
+    print(f"Problems (in {PROBLEM_DIR}):")
+    for name in bundled_problems():
+        try:
+            p = load_problem(PROBLEM_DIR / f"{name}.toml")
+            print(f"  {name:<28} {p.dim}-D {p.operator:<20} {p.description}")
+        except Exception as exc:  # list the rest even when one file is broken
+            print(f"  {name:<28} (cannot be read: {exc})")
+    print("\nSolvers:")
+    for name, target in BUNDLED_SOLVERS.items():
+        print(f"  {name:<28} {target}")
+    print("\nOperators (problem files: [operator] kind = ...):")
+    for op in OPERATORS.values():
+        print(f"  {op.name:<28} {op.summary}")
+    print(f"  {'custom':<28} equations written in the file with d(expr, x), d(expr, x, 2), lap(expr)")
+
+
+def register(sub):
+    p = sub.add_parser("list", help="list bundled problems, solvers and operators")
+    p.set_defaults(func=_list)

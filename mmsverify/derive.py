@@ -1,0 +1,169 @@
+"""Derivation: exact solution, source terms and boundary data as numbers.
+
+:func:`derive` turns a :class:`~mmsverify.problem.Problem` into a
+:class:`Manufactured` bundle of NumPy evaluators. The sympy expressions are
+compiled lazily, once per process, with common-subexpression elimination,
+so a bundle can be pickled to worker processes cheaply.
+"""
+
+from functools import lru_cache
+
+import numpy as np
+import sympy as sp
+
+from .errors import ProblemError
+from .problem import Problem, get_problem
+
+__all__ = ["Manufactured", "derive", "compile_expression"]
+
+_AXIS = {"x": 0, "y": 1, "z": 2}
+
+
+@lru_cache(maxsize=512)
+def _compiled(expr, args):
+    return sp.lambdify(args, expr, modules="numpy", cse=True)
+
+
+def compile_expression(expr, args):
+    """NumPy function of ``args`` for a sympy expression, with CSE, cached by content.
+
+    The result always has the broadcast shape of its inputs, also for a
+    constant expression.
+    """
+    fn = _compiled(sp.sympify(expr), tuple(args))
+
+    def evaluate(*values):
+        out = fn(*values)
+        shape = np.broadcast_shapes(*(np.shape(v) for v in values)) if values else ()
+        out = np.asarray(out, dtype=float)
+        return out if out.shape == shape else np.broadcast_to(out, shape).copy()
+
+    return evaluate
+
+
+class Manufactured:
+    """The numeric side of a manufactured problem, as a solver sees it.
+
+    Every method takes the space coordinates as separate arrays that
+    broadcast together (full meshes or ``np.ix_``-style axis arrays), and for
+    transient problems the time ``t`` as a keyword.
+
+    Examples
+    --------
+    >>> from mmsverify.problem import problem_from_text
+    >>> m = derive(problem_from_text('[domain]\\nx = [0, 1]\\n[fields]\\nu = "x**3"'))
+    >>> float(m.source("u", 0.5))       # -u'' = -6x
+    -3.0
+    """
+
+    def __init__(self, problem):
+        self.problem = problem
+        args = problem.coords + ((problem.t,) if problem.t is not None else ())
+        self._args = args
+        self._hash = problem.content_hash()
+
+    def __getstate__(self):
+        return {"problem": self.problem}
+
+    def __setstate__(self, state):
+        self.__init__(state["problem"])
+
+    # -- plumbing ---------------------------------------------------------
+    def _eval(self, expr, coords, t):
+        p = self.problem
+        if len(coords) != p.dim:
+            raise ProblemError(f"{p.name}: expected {p.dim} coordinate arrays, got {len(coords)}")
+        values = tuple(coords)
+        if p.t is not None:
+            if t is None:
+                raise ProblemError(f"{p.name} is transient: pass t=... to evaluate it")
+            values += (t,)
+        return compile_expression(expr, self._args)(*values)
+
+    def _check_field(self, name, table, what="field"):
+        if name not in table:
+            raise ProblemError(f"{self.problem.name}: no {what} {name!r}; known: {', '.join(table)}")
+
+    def _side(self, side):
+        axis = _AXIS.get(side[:1])
+        if axis is None or axis >= self.problem.dim or side[1:] not in ("_min", "_max"):
+            sides = [s for s in ("x_min", "x_max", "y_min", "y_max", "z_min", "z_max") if _AXIS[s[0]] < self.problem.dim]
+            raise ProblemError(f"{self.problem.name}: unknown side {side!r}; sides are {', '.join(sides)}")
+        return axis, (1 if side.endswith("max") else -1)
+
+    # -- public -----------------------------------------------------------
+    @property
+    def content_hash(self):
+        return self._hash
+
+    def exact(self, name, *coords, t=None):
+        """Exact value of a field."""
+        self._check_field(name, self.problem.fields)
+        return self._eval(self.problem.fields[name], coords, t)
+
+    def source(self, name, *coords, t=None):
+        """Manufactured source term of an equation (named after its field)."""
+        self._check_field(name, self.problem.equations, "equation")
+        return self._eval(self.problem.equations[name], coords, t)
+
+    def initial(self, name, *coords):
+        """Initial value of a field at the start of the time interval."""
+        t0 = self.problem.t_range[0] if self.problem.t is not None else None
+        return self.exact(name, *coords, t=t0)
+
+    def boundary(self, name, side):
+        """Kind of boundary data, ``"dirichlet"`` or ``"neumann"``."""
+        self._check_field(name, self.problem.fields)
+        self._side(side)
+        return self.problem.boundaries[(name, side)]
+
+    def boundary_value(self, name, side, *coords, t=None):
+        """Dirichlet value of a field on a side (the exact solution there)."""
+        self._side(side)
+        return self.exact(name, *coords, t=t)
+
+    def normal_derivative_expr(self, name, side):
+        axis, sign = self._side(side)
+        self._check_field(name, self.problem.fields)
+        return sign * sp.diff(self.problem.fields[name], self.problem.coords[axis])
+
+    def normal_derivative(self, name, side, *coords, t=None):
+        """Outward normal derivative ``grad(u) . n`` of a field on a side."""
+        return self._eval(self.normal_derivative_expr(name, side), coords, t)
+
+    def normal_flux_expr(self, name, side):
+        axis, sign = self._side(side)
+        flux = self.problem.fluxes.get(name)
+        if flux is None:
+            raise ProblemError(f"{self.problem.name}: operator {self.problem.operator} defines no flux for "
+                               f"{name!r}; use normal_derivative instead")
+        return sign * flux[axis]
+
+    def normal_flux(self, name, side, *coords, t=None):
+        """Outward normal flux (e.g. ``k grad(u) . n`` for diffusion) on a side."""
+        return self._eval(self.normal_flux_expr(name, side), coords, t)
+
+    def parameter(self, name, *coords, t=None):
+        """An operator parameter (coefficient) evaluated with the exact fields."""
+        self._check_field(name, self.problem.parameters, "parameter")
+        return self._eval(self.problem.parameters[name], coords, t)
+
+    def expressions(self):
+        """Every derived expression by a descriptive key, for export and reports."""
+        p = self.problem
+        out = {f"exact_{k}": v for k, v in p.fields.items()}
+        out.update({f"source_{k}": v for k, v in p.equations.items()})
+        for (f, side), kind in sorted(p.boundaries.items()):
+            if kind == "neumann":
+                out[f"dudn_{f}_{side}"] = self.normal_derivative_expr(f, side)
+                if f in p.fluxes:
+                    out[f"flux_{f}_{side}"] = self.normal_flux_expr(f, side)
+        return out
+
+
+def derive(problem):
+    """Derive the numeric bundle of a problem (a Problem, a path or a bundled name)."""
+    problem = get_problem(problem)
+    if not isinstance(problem, Problem):
+        raise ProblemError(f"expected a Problem, got {type(problem).__name__}")
+    return Manufactured(problem)

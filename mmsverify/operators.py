@@ -1,0 +1,188 @@
+"""PDE operators that turn manufactured fields into source terms.
+
+An operator maps the exact fields to the residual ``L(q)`` of each
+equation; the manufactured source is then ``f = L(q_exact)`` so that
+``L(q) = f`` holds exactly. Operators are plain records in a registry:
+each states the fields it needs, its parameters with defaults, and, where
+the equation has one, the flux vector used for Neumann data.
+
+Sign conventions (documented once, used everywhere):
+
+* diffusion:   ``rho_c * du/dt - div(k grad u) = f`` (the time term only
+  for transient problems); flux ``k grad u``.
+* advection_diffusion: ``du/dt + a . grad u - div(k grad u) = f``.
+* burgers:     ``du/dt + u du/dx - nu d2u/dx2 = f`` (1-D, also steady).
+* navier_stokes: steady incompressible, 2-D, fields u, v, p, constant
+  density ``rho`` and kinematic viscosity ``nu``:
+  ``u.grad u + grad p / rho - nu lap u = f_u, f_v`` and
+  ``du/dx + dv/dy = f_p`` (the mass source, equation named ``p``).
+* custom: equations written in the problem file with ``d(expr, x)``,
+  ``d(expr, x, 2)``, ``d(expr, x, y)`` and ``lap(expr)``.
+"""
+
+from dataclasses import dataclass
+from types import MappingProxyType
+
+import sympy as sp
+
+from .errors import ProblemError
+
+__all__ = ["Operator", "OPERATORS", "get_operator", "derivative_functions"]
+
+
+@dataclass(frozen=True)
+class Operator:
+    """A PDE operator.
+
+    Attributes
+    ----------
+    name : str
+    summary : str
+        One line for listings.
+    fields : tuple of str or None
+        Required field names; None for a single scalar field of any name.
+    parameters : dict
+        Parameter names and their default values (numbers or expression text).
+    dims : tuple of int
+        Space dimensions supported.
+    """
+
+    name: str
+    summary: str
+    fields: tuple
+    parameters: dict
+    dims: tuple
+    _residuals: object
+    _fluxes: object = None
+
+    def residuals(self, q, X, t, par):
+        """Residual expression of each equation, keyed by equation name."""
+        return self._residuals(q, X, t, par)
+
+    def fluxes(self, q, X, par):
+        """Flux vector per field for Neumann data, or an empty dict."""
+        return self._fluxes(q, X, par) if self._fluxes else {}
+
+
+def _grad(u, X):
+    return [sp.diff(u, xi) for xi in X]
+
+
+def _div(vec, X):
+    return sp.Add(*[sp.diff(c, xi) for c, xi in zip(vec, X)])
+
+
+def _scalar(q):
+    (name, u), = q.items()
+    return name, u
+
+
+def _diffusion(q, X, t, par):
+    name, u = _scalar(q)
+    r = -_div([par["k"] * g for g in _grad(u, X)], X)
+    if t is not None:
+        r += par["rho_c"] * sp.diff(u, t)
+    return {name: r}
+
+
+def _diffusive_flux(q, X, par):
+    name, u = _scalar(q)
+    return {name: [par["k"] * g for g in _grad(u, X)]}
+
+
+def _advection_diffusion(q, X, t, par):
+    name, u = _scalar(q)
+    a = [par[c] for c in ("ax", "ay", "az")[: len(X)]]
+    r = sp.Add(*[ai * g for ai, g in zip(a, _grad(u, X))]) - _div([par["k"] * g for g in _grad(u, X)], X)
+    if t is not None:
+        r += sp.diff(u, t)
+    return {name: r}
+
+
+def _burgers(q, X, t, par):
+    name, u = _scalar(q)
+    (x,) = X
+    r = u * sp.diff(u, x) - par["nu"] * sp.diff(u, x, 2)
+    if t is not None:
+        r += sp.diff(u, t)
+    return {name: r}
+
+
+def _burgers_flux(q, X, par):
+    name, u = _scalar(q)
+    return {name: [par["nu"] * sp.diff(u, X[0])]}
+
+
+def _navier_stokes(q, X, t, par):
+    u, v, p = q["u"], q["v"], q["p"]
+    x, y = X
+    rho, nu = par["rho"], par["nu"]
+    res = {}
+    for name, c, xi in (("u", u, x), ("v", v, y)):
+        r = u * sp.diff(c, x) + v * sp.diff(c, y) + sp.diff(p, xi) / rho \
+            - nu * (sp.diff(c, x, 2) + sp.diff(c, y, 2))
+        if t is not None:
+            r += sp.diff(c, t)
+        res[name] = r
+    res["p"] = sp.diff(u, x) + sp.diff(v, y)
+    return res
+
+
+def _ns_flux(q, X, par):
+    return {c: [par["nu"] * g for g in _grad(q[c], X)] for c in ("u", "v")}
+
+
+OPERATORS = MappingProxyType({
+    "diffusion": Operator("diffusion", "rho_c du/dt - div(k grad u) = f (Poisson when steady, k = 1)",
+                          None, {"k": 1, "rho_c": 1}, (1, 2, 3), _diffusion, _diffusive_flux),
+    "poisson": Operator("poisson", "-lap u = f", None, {"k": 1, "rho_c": 1}, (1, 2, 3),
+                        _diffusion, _diffusive_flux),
+    "advection_diffusion": Operator("advection_diffusion", "du/dt + a.grad u - div(k grad u) = f", None,
+                                    {"k": 1, "ax": 1, "ay": 0, "az": 0}, (1, 2, 3),
+                                    _advection_diffusion, _diffusive_flux),
+    "burgers": Operator("burgers", "du/dt + u du/dx - nu d2u/dx2 = f (viscous Burgers, 1-D)", None,
+                        {"nu": 1}, (1,), _burgers, _burgers_flux),
+    "navier_stokes": Operator("navier_stokes", "steady or transient incompressible 2-D Navier-Stokes, fields u, v, p",
+                              ("u", "v", "p"), {"rho": 1, "nu": 1}, (2,), _navier_stokes, _ns_flux),
+})
+
+
+def get_operator(name):
+    """Look up a built-in operator by name; unknown names list the valid ones."""
+    try:
+        return OPERATORS[name]
+    except KeyError:
+        raise ProblemError(f"unknown operator {name!r}; built-in operators are "
+                           f"{', '.join(sorted(OPERATORS))}, or 'custom' with an [operator.equations] table") from None
+
+
+def derivative_functions(X, t):
+    """Functions ``d`` and ``lap`` for user-written operators.
+
+    ``d(expr, x)``, ``d(expr, x, 2)`` (second derivative), ``d(expr, x, y)``
+    (mixed) and ``lap(expr)`` (Laplacian in the problem's space coordinates).
+    """
+    variables = set(X) | ({t} if t is not None else set())
+
+    def d(expr, *spec):
+        if not spec:
+            raise ProblemError("d(expr, x, ...) needs at least one coordinate")
+        args = []
+        for s in spec:
+            if isinstance(s, (int, sp.Integer)) and not isinstance(s, bool):
+                if not args or int(s) < 1 or int(s) > 6:
+                    raise ProblemError(f"derivative order {s} must follow a coordinate and be 1 to 6")
+                args[-1] = (args[-1][0], int(s))
+            elif s in variables:
+                args.append((s, 1))
+            else:
+                names = ", ".join(sorted(str(v) for v in variables))
+                raise ProblemError(f"d(...) differentiates with respect to a coordinate ({names}), got {s}")
+        for var, n in args:
+            expr = sp.diff(expr, var, n)
+        return expr
+
+    def lap(expr):
+        return sp.Add(*[sp.diff(expr, xi, 2) for xi in X])
+
+    return {"d": d, "lap": lap}

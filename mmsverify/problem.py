@@ -1,0 +1,366 @@
+"""Manufactured problems: the record, the file format, the bundled set.
+
+A problem file is TOML (read with the standard library). Expressions are
+strings read by the safe parser in :mod:`mmsverify.expr`; nothing in a file
+is ever executed. The format, with every table but ``[fields]`` optional::
+
+    name = "plate-trig"                 # defaults to the file name
+    description = "..."
+
+    [domain]                            # 1 to 3 of x, y, z; t makes it transient
+    x = [0.0, 1.0]
+    y = [0.0, 1.0]
+
+    [constants]                         # numbers usable in every expression
+    a = 0.75
+
+    [fields]                            # the manufactured solution
+    u = "sin(pi*x)*cos(a*pi*y)"
+
+    [operator]
+    kind = "diffusion"                  # see `mmsverify list`
+    k = "1 + x*y/2"                     # parameters: numbers or expressions
+    # kind = "custom" with a sub-table of equations, one per field:
+    # [operator.equations]
+    # u = "-d(k*d(u, x), x) + u**3"
+
+    [boundaries]                        # dirichlet or neumann per side
+    default = "dirichlet"
+    x_max = "neumann"                   # or per field: {u = "neumann"}
+
+    [order]
+    space = 2                           # formal order the scheme is built for
+    time = 1                            # for transient problems
+    tolerance = 0.1                     # allowed |observed - formal|
+
+    [study]                             # defaults for `mmsverify run`
+    levels = 4
+    base_cells = 8
+    ratio = 2
+"""
+
+from dataclasses import dataclass, field
+import hashlib
+import json
+from pathlib import Path
+import re
+import tomllib
+
+import sympy as sp
+
+from .errors import ProblemError, MMSError
+from .expr import parse_expression
+from .operators import OPERATORS, get_operator, derivative_functions
+
+__all__ = ["Problem", "load_problem", "problem_from_text", "bundled_problems", "get_problem",
+           "SIDES", "PROBLEM_DIR"]
+
+PROBLEM_DIR = Path(__file__).resolve().parent.parent / "problems"
+SPACE = ("x", "y", "z")
+SIDES = ("x_min", "x_max", "y_min", "y_max", "z_min", "z_max")
+_KINDS = ("dirichlet", "neumann")
+_TOP_KEYS = {"name", "description", "domain", "constants", "fields", "operator", "boundaries", "order", "study"}
+
+
+@dataclass(frozen=True)
+class Problem:
+    """A manufactured problem, ready for derivation.
+
+    Attributes
+    ----------
+    name, description : str
+    coords : tuple of sympy.Symbol
+        Space coordinates in order (x, y, z as needed).
+    t : sympy.Symbol or None
+        Time, for transient problems.
+    lower, upper : tuple of float
+        Box corners.
+    t_range : tuple of float or None
+    constants : dict of str to float
+    fields : dict of str to sympy.Expr
+        The manufactured exact solution, one entry per unknown.
+    operator : str
+        Operator name, or ``"custom"``.
+    parameters : dict of str to sympy.Expr
+        Operator parameters, with fields substituted by their exact values.
+    equations : dict of str to sympy.Expr
+        Residual ``L(q_exact)`` of each equation (the source terms).
+    fluxes : dict of str to list of sympy.Expr
+        Flux vector per field for Neumann data (may be empty).
+    boundaries : dict of (field, side) to str
+        ``"dirichlet"`` or ``"neumann"``.
+    space_order, time_order : int or None
+    tolerance : float
+    study : dict
+    source : str
+        Where it came from (file path or ``"<python>"``).
+    """
+
+    name: str
+    description: str
+    coords: tuple
+    t: object
+    lower: tuple
+    upper: tuple
+    t_range: tuple
+    constants: dict
+    fields: dict
+    operator: str
+    parameters: dict
+    equations: dict
+    fluxes: dict
+    boundaries: dict
+    space_order: int = 2
+    time_order: int = None
+    tolerance: float = 0.1
+    study: dict = field(default_factory=dict)
+    source: str = "<python>"
+
+    @property
+    def dim(self):
+        return len(self.coords)
+
+    @property
+    def transient(self):
+        return self.t is not None
+
+    @property
+    def field_names(self):
+        return tuple(self.fields)
+
+    def content_hash(self):
+        """SHA-256 of everything that defines the mathematics (not the name)."""
+        blob = json.dumps({
+            "coords": [str(c) for c in self.coords], "t": str(self.t),
+            "box": [self.lower, self.upper, self.t_range],
+            "fields": {k: sp.srepr(v) for k, v in self.fields.items()},
+            "equations": {k: sp.srepr(v) for k, v in self.equations.items()},
+            "fluxes": {k: [sp.srepr(c) for c in v] for k, v in self.fluxes.items()},
+            "boundaries": sorted(f"{f}:{s}:{k}" for (f, s), k in self.boundaries.items()),
+        }, sort_keys=True)
+        return hashlib.sha256(blob.encode()).hexdigest()
+
+    def boundary_kind(self, field_name, side):
+        return self.boundaries[(field_name, side)]
+
+
+def _line_of(text, section, key):
+    """Best-effort line number of ``key =`` inside ``[section]`` of TOML text."""
+    current = ""
+    for i, line in enumerate(text.splitlines(), 1):
+        s = line.strip()
+        m = re.match(r"^\[([^\]]+)\]", s)
+        if m:
+            current = m.group(1).strip()
+        elif current == section and re.match(rf"^\"?{re.escape(key)}\"?\s*=", s):
+            return i
+    return None
+
+
+class _Reader:
+    """Turns a parsed TOML dict into a :class:`Problem`, naming the place of every error."""
+
+    def __init__(self, data, text, source):
+        self.data, self.text, self.source = data, text, source
+
+    def where(self, section, key=None):
+        line = _line_of(self.text, section, key) if key else None
+        loc = f"{self.source}" + (f", line {line}" if line else "")
+        return f"{loc}, [{section}]" + (f" {key}" if key else "")
+
+    def fail(self, section, key, message):
+        raise ProblemError(f"{self.where(section, key)}: {message}")
+
+    def table(self, name, required=False):
+        value = self.data.get(name, {})
+        if required and name not in self.data:
+            raise ProblemError(f"{self.source}: missing [{name}] table; add it (see `mmsverify list --format`)")
+        if not isinstance(value, dict):
+            raise ProblemError(f"{self.source}: [{name}] must be a table of key = value lines")
+        return value
+
+    def number(self, section, key, value, kind=float):
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            self.fail(section, key, f"expected a number, got {value!r}")
+        if kind is int and int(value) != value:
+            self.fail(section, key, f"expected a whole number, got {value!r}")
+        return kind(value)
+
+    def expression(self, section, key, value, names, functions=None):
+        if isinstance(value, bool) or not isinstance(value, (str, int, float)):
+            self.fail(section, key, f"expected an expression in quotes or a number, got {value!r}")
+        if isinstance(value, (int, float)):
+            return sp.nsimplify(value) if isinstance(value, int) else sp.Float(value)
+        try:
+            return parse_expression(value, names, functions=functions, where=self.where(section, key))
+        except MMSError:
+            raise
+        except Exception as exc:  # sympy may fail on a legal but meaningless expression
+            raise ProblemError(f"{self.where(section, key)}: cannot build {value!r}: {exc}") from None
+
+    def read(self):
+        unknown = set(self.data) - _TOP_KEYS
+        if unknown:
+            raise ProblemError(f"{self.source}: unknown top-level entries {sorted(unknown)}; "
+                               f"allowed: {', '.join(sorted(_TOP_KEYS))}")
+        name = self.data.get("name", Path(self.source).stem)
+        description = self.data.get("description", "")
+        if not isinstance(name, str) or not isinstance(description, str):
+            raise ProblemError(f"{self.source}: name and description must be text in quotes")
+
+        domain = self.table("domain", required=True)
+        bad = set(domain) - set(SPACE) - {"t"}
+        if bad:
+            self.fail("domain", sorted(bad)[0], "domain entries are x, y, z (space) and t (time)")
+        axes = [a for a in SPACE if a in domain]
+        if not axes or axes != list(SPACE[: len(axes)]):
+            raise ProblemError(f"{self.where('domain')}: give x, or x and y, or x, y and z; got {sorted(domain)}")
+        box = {}
+        for a in axes + (["t"] if "t" in domain else []):
+            v = domain[a]
+            if not (isinstance(v, list) and len(v) == 2):
+                self.fail("domain", a, f"expected [lower, upper], got {v!r}")
+            lo, hi = (self.number("domain", a, e) for e in v)
+            if not hi > lo:
+                self.fail("domain", a, f"upper bound {hi} must exceed lower bound {lo}")
+            box[a] = (lo, hi)
+        coords = tuple(sp.Symbol(a, real=True) for a in axes)
+        t = sp.Symbol("t", real=True) if "t" in box else None
+
+        names = {str(c): c for c in coords}
+        if t is not None:
+            names["t"] = t
+        constants = {}
+        for k, v in self.table("constants").items():
+            if not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", k) or k in names or k in ("pi", "E"):
+                self.fail("constants", k, "a constant needs a new identifier (not x, y, z, t, pi, E)")
+            constants[k] = self.number("constants", k, v)
+        const_syms = {k: sp.Float(v) if int(v) != v else sp.Integer(int(v)) for k, v in constants.items()}
+        names.update(const_syms)
+
+        fields_tab = self.table("fields", required=True)
+        if not fields_tab:
+            raise ProblemError(f"{self.where('fields')}: give at least one manufactured field, e.g. u = \"sin(pi*x)\"")
+        fields = {}
+        for k, v in fields_tab.items():
+            if k in names or not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", k):
+                self.fail("fields", k, "a field needs a new identifier (not a coordinate or constant)")
+            fields[k] = self.expression("fields", k, v, names)
+        if t is None:
+            for k, e in fields.items():
+                if any(s.name == "t" for s in e.free_symbols):
+                    self.fail("fields", k, "uses t but [domain] has no t interval; add t = [t0, t1]")
+
+        op_tab = dict(self.table("operator"))
+        kind = op_tab.pop("kind", "poisson")
+        with_fields = {**names, **fields}
+        equations, fluxes, parameters = {}, {}, {}
+        if kind == "custom":
+            eqs = op_tab.pop("equations", None)
+            if not isinstance(eqs, dict) or not eqs:
+                raise ProblemError(f"{self.where('operator')}: a custom operator needs an [operator.equations] "
+                                   "table with one equation per field, e.g. u = \"-lap(u)\"")
+            for k, v in op_tab.items():
+                parameters[k] = self.expression("operator", k, v, with_fields)
+            fns = derivative_functions(coords, t)
+            for k, v in eqs.items():
+                if k not in fields:
+                    self.fail("operator.equations", k, f"names no field; fields are {', '.join(fields)}")
+                equations[k] = self.expression("operator.equations", k, v, {**with_fields, **parameters}, fns)
+            missing = set(fields) - set(equations)
+            if missing:
+                raise ProblemError(f"{self.where('operator.equations')}: no equation for field(s) "
+                                   f"{sorted(missing)}; write one per field")
+        else:
+            try:
+                op = get_operator(kind)
+            except ProblemError as exc:
+                raise ProblemError(f"{self.where('operator', 'kind')}: {exc}") from None
+            if len(coords) not in op.dims:
+                self.fail("operator", "kind", f"{kind} works in {op.dims} dimensions; [domain] has {len(coords)}")
+            if op.fields is None and len(fields) != 1:
+                raise ProblemError(f"{self.where('fields')}: operator {kind} takes one scalar field, got {list(fields)}")
+            if op.fields is not None and set(op.fields) != set(fields):
+                raise ProblemError(f"{self.where('fields')}: operator {kind} needs fields {', '.join(op.fields)}; "
+                                   f"got {', '.join(fields)}")
+            unknown = set(op_tab) - set(op.parameters)
+            if unknown:
+                self.fail("operator", sorted(unknown)[0],
+                          f"not a parameter of {kind}; its parameters are {', '.join(op.parameters)}")
+            for k, default in op.parameters.items():
+                parameters[k] = self.expression("operator", k, op_tab.get(k, default), with_fields)
+            equations = op.residuals(fields, coords, t, parameters)
+            fluxes = op.fluxes(fields, coords, parameters)
+
+        boundaries = self._boundaries(fields, axes)
+        order = self.table("order")
+        space_order = self.number("order", "space", order.get("space", 2), int)
+        time_order = self.number("order", "time", order["time"], int) if "time" in order else (1 if t is not None else None)
+        tolerance = self.number("order", "tolerance", order.get("tolerance", 0.1))
+        if space_order < 1 or (time_order is not None and time_order < 1) or not tolerance > 0:
+            raise ProblemError(f"{self.where('order')}: orders must be at least 1 and the tolerance positive")
+        study = dict(self.table("study"))
+        return Problem(name=name, description=description, coords=coords, t=t,
+                       lower=tuple(box[a][0] for a in axes), upper=tuple(box[a][1] for a in axes),
+                       t_range=box.get("t"), constants=constants, fields=fields, operator=kind,
+                       parameters=parameters, equations=equations, fluxes=fluxes, boundaries=boundaries,
+                       space_order=space_order, time_order=time_order, tolerance=tolerance, study=study,
+                       source=self.source)
+
+    def _boundaries(self, fields, axes):
+        tab = dict(self.table("boundaries"))
+        default = tab.pop("default", "dirichlet")
+        sides = [s for s in SIDES if s[0] in axes]
+        out = {(f, s): default for f in fields for s in sides}
+        for side, spec in tab.items():
+            if side not in sides:
+                self.fail("boundaries", side, f"unknown side; sides are {', '.join(sides)} and default")
+            per_field = spec if isinstance(spec, dict) else {f: spec for f in fields}
+            for f, k in per_field.items():
+                if f not in fields:
+                    self.fail("boundaries", side, f"names no field {f!r}; fields are {', '.join(fields)}")
+                out[(f, side)] = k
+        for (f, s), k in out.items():
+            if k not in _KINDS:
+                self.fail("boundaries", s if s in tab else "default", f"kind must be one of {_KINDS}, got {k!r}")
+        return out
+
+
+def problem_from_text(text, source="<text>"):
+    """Read a problem from TOML text; ``source`` names it in error messages."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ProblemError(f"{source}: not valid TOML ({exc}); check quotes and brackets") from None
+    except (RecursionError, MemoryError):
+        raise ProblemError(f"{source}: nested too deeply to read") from None
+    return _Reader(data, text, source).read()
+
+
+def load_problem(path):
+    """Read a problem file (or a bundled problem's name, see :func:`bundled_problems`)."""
+    p = Path(path)
+    if not p.exists() and not p.suffix:
+        candidate = PROBLEM_DIR / f"{path}.toml"
+        if candidate.exists():
+            p = candidate
+        else:
+            raise ProblemError(f"no problem file {str(path)!r} and no bundled problem of that name; "
+                               f"bundled problems: {', '.join(bundled_problems())}")
+    try:
+        text = p.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ProblemError(f"{p}: no such problem file") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ProblemError(f"{p}: cannot read it ({exc})") from None
+    return problem_from_text(text, str(p))
+
+
+def bundled_problems():
+    """Names of the problem files shipped in ``problems/``."""
+    return sorted(p.stem for p in PROBLEM_DIR.glob("*.toml"))
+
+
+def get_problem(problem):
+    """Accept a :class:`Problem`, a path or a bundled name; return a Problem."""
+    return problem if isinstance(problem, Problem) else load_problem(problem)

@@ -1,0 +1,1 @@
+"""Reports of studies: terminal text here; files and plots in submodules."""

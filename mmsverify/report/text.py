@@ -1,0 +1,47 @@
+"""Plain-text tables of a study for the terminal."""
+
+import numpy as np
+
+from ..norms import NORMS
+
+__all__ = ["format_study", "CAUTION"]
+
+CAUTION = ("Verification shows that the equations are solved right, not that they are the right equations "
+           "(that is validation). Safety-critical work follows the applicable codes and licensed engineering review.")
+
+
+def _num(x, fmt="{:.3e}"):
+    return "-" if x is None or not np.isfinite(x) else fmt.format(x)
+
+
+def format_study(result):
+    """The study as a text table: verdict first, then levels, errors and orders."""
+    lines = []
+    overall = "PASS" if result.passed else "FAIL"
+    lines.append(f"{overall}  {result.problem}  solved by  {result.solver}")
+    lines.append(f"  formal order {result.formal_order:g} ({result.mode} refinement), tolerance {result.tolerance:g}")
+    for v in result.verdicts:
+        mark = "ok " if v.ok else "!! "
+        lines.append(f"  {mark}{v.field:<6}{v.norm:<5} {v.status:<12} {v.reason}")
+    lines.append("")
+    for f in result.fields:
+        head = f"  field {f}"
+        lines.append(head)
+        lines.append("  level  grid                    h          " + "".join(f"{n + ' error':<13}{'order':<8}" for n in NORMS))
+        ok = [lv for lv in result.levels if lv.ok and f in lv.errors]
+        orders = {n: result.orders(f, n) for n in NORMS}
+        for lv in result.levels:
+            row = f"  {lv.level:<6} {lv.grid.describe():<23} {lv.h:<10.4g} "
+            if not lv.ok:
+                row += "failed: " + lv.message.splitlines()[0]
+            elif f in lv.errors:
+                i = ok.index(lv)
+                for n in NORMS:
+                    p = orders[n][i - 1] if i > 0 else None
+                    row += f"{_num(lv.errors[f][n]):<13}{_num(p, '{:.2f}'):<8}"
+            lines.append(row.rstrip())
+        lines.append("")
+    for lv in result.failed_levels:
+        lines.append(f"  level {lv.level} failed: {lv.message}")
+    lines.append("  " + CAUTION)
+    return "\n".join(lines)

@@ -1,0 +1,171 @@
+"""The solver interface, its checks and the registry of bundled solvers.
+
+A solver is any callable ``solve(case) -> Solution``:
+
+1. ``case.grid`` (a :class:`~mmsverify.grids.Grid`) gives the box, the
+   cells per direction and, for transient problems, the time interval and
+   the number of steps.
+2. ``case.mms`` (a :class:`~mmsverify.derive.Manufactured`) gives source
+   terms, boundary kinds and data, initial data and coefficients as NumPy
+   functions of coordinate arrays.
+3. The solver returns the discrete solution on its own points (nodes, cell
+   centres, anything) with the volume each point stands for, so errors are
+   volume-weighted on non-uniform grids. Points may be full arrays or axis
+   arrays that broadcast against the values (``np.ix_`` style).
+4. A solver may state its design order as attributes ``formal_order``
+   (space) and ``time_order``; the study checks them against the problem's.
+"""
+
+from dataclasses import dataclass, field
+import importlib
+from types import MappingProxyType
+
+import numpy as np
+
+from .errors import SolverError
+
+__all__ = ["Case", "Solution", "resolve_solver", "check_solution", "BUNDLED_SOLVERS", "solver_name"]
+
+
+@dataclass(frozen=True)
+class Case:
+    """What a solver receives for one level."""
+
+    grid: object
+    mms: object
+    options: dict = field(default_factory=dict)
+
+    @property
+    def problem(self):
+        return self.mms.problem
+
+
+@dataclass(frozen=True)
+class Solution:
+    """A discrete solution.
+
+    Attributes
+    ----------
+    values : dict of str to ndarray
+        One array per field (any subset of the problem's fields; at least one).
+    points : tuple of ndarray
+        Coordinates, one array per space dimension, broadcastable to each value array.
+    weights : ndarray or float or None
+        Volume (length, area) represented by each point; None for equal weights.
+    time : float or None
+        Time of the values for transient problems (default: the end time).
+    info : dict
+        Anything the solver wants to report (iterations, residuals).
+    """
+
+    values: dict
+    points: tuple
+    weights: object = None
+    time: float = None
+    info: dict = field(default_factory=dict)
+
+
+# Bundled solvers: name -> "module:attribute". Names, not objects, so that
+# listing them imports nothing heavy.
+BUNDLED_SOLVERS = MappingProxyType({
+    "poisson2d": "solvers_demo.fd.poisson:solve",
+    "poisson2d-neumann1": "solvers_demo.fd.poisson:solve_first_order_neumann",
+})
+
+
+def resolve_solver(spec):
+    """Accept a callable, ``"module:function"`` or a bundled name; return the callable."""
+    if callable(spec):
+        return spec
+    if not isinstance(spec, str):
+        raise SolverError(f"a solver is a callable, 'module:function' or a bundled name; got {spec!r}")
+    target = BUNDLED_SOLVERS.get(spec, spec)
+    if ":" not in target:
+        raise SolverError(f"unknown solver {spec!r}; give 'module:function' or one of: "
+                          f"{', '.join(BUNDLED_SOLVERS)}")
+    module, _, attr = target.partition(":")
+    try:
+        mod = importlib.import_module(module)
+    except ImportError as exc:
+        raise SolverError(f"cannot import solver module {module!r} ({exc}); check the name and that its "
+                          "folder is on PYTHONPATH (run from the folder that contains it)") from None
+    fn = mod
+    for part in attr.split("."):
+        fn = getattr(fn, part, None)
+    if not callable(fn):
+        raise SolverError(f"module {module!r} has no callable {attr!r}")
+    return fn
+
+
+def solver_name(solver):
+    """A readable, stable name for a solver callable."""
+    if isinstance(solver, str):
+        return solver
+    name = getattr(solver, "name", None)
+    if isinstance(name, str):
+        return name
+    mod = getattr(solver, "__module__", None) or type(solver).__module__
+    qual = getattr(solver, "__qualname__", None) or type(solver).__qualname__
+    return f"{mod}:{qual}"
+
+
+def check_solution(sol, problem, where):
+    """Validate a solver's return value; raise :class:`SolverError` saying what is wrong.
+
+    Returns the values and weights as float arrays of one common shape and the
+    points broadcast to it.
+    """
+    if not isinstance(sol, Solution):
+        raise SolverError(f"{where}: the solver returned {type(sol).__name__}; return mmsverify.Solution("
+                          "values={...}, points=(...), weights=...)")
+    if not isinstance(sol.values, dict) or not sol.values:
+        raise SolverError(f"{where}: Solution.values must be a non-empty dict of field name to array")
+    unknown = set(sol.values) - set(problem.fields)
+    if unknown:
+        raise SolverError(f"{where}: returned field(s) {sorted(unknown)} that the problem does not define; "
+                          f"its fields are {', '.join(problem.fields)}")
+    if not isinstance(sol.points, (tuple, list)) or len(sol.points) != problem.dim:
+        raise SolverError(f"{where}: Solution.points must hold {problem.dim} coordinate array(s), one per "
+                          f"dimension; got {type(sol.points).__name__} of length "
+                          f"{len(sol.points) if hasattr(sol.points, '__len__') else '?'}")
+    values, points = {}, None
+    for name, v in sol.values.items():
+        try:
+            arr = np.asarray(v, dtype=float)
+        except (TypeError, ValueError):
+            raise SolverError(f"{where}: field {name!r} is not numeric (dtype {np.asarray(v).dtype})") from None
+        try:
+            pts = np.broadcast_arrays(*[np.asarray(p, dtype=float) for p in sol.points], arr)
+        except ValueError:
+            shapes = [np.shape(p) for p in sol.points]
+            raise SolverError(f"{where}: field {name!r} has shape {arr.shape}, which does not match the "
+                              f"points' shapes {shapes}") from None
+        if pts[-1].shape != arr.shape:
+            raise SolverError(f"{where}: field {name!r} has shape {arr.shape} but the points have shape "
+                              f"{pts[-1].shape}; return one value per point")
+        if arr.size == 0:
+            raise SolverError(f"{where}: field {name!r} is empty")
+        bad = ~np.isfinite(arr)
+        if bad.any():
+            raise SolverError(f"{where}: field {name!r} has {int(bad.sum())} NaN/Inf value(s) of {arr.size}; "
+                              "the solver diverged or left entries unset")
+        if points is not None and points[0].shape != arr.shape:
+            raise SolverError(f"{where}: fields have different shapes; return each field on one set of points "
+                              "or use separate solvers per staggered location")
+        points = tuple(pts[:-1])
+        for p in points:
+            if not np.isfinite(p).all():
+                raise SolverError(f"{where}: the points contain NaN/Inf")
+        values[name] = arr
+    shape = points[0].shape
+    if sol.weights is None:
+        weights = np.ones(shape)
+    else:
+        try:
+            weights = np.broadcast_to(np.asarray(sol.weights, dtype=float), shape)
+        except (ValueError, TypeError):
+            raise SolverError(f"{where}: weights of shape {np.shape(sol.weights)} do not match the values' "
+                              f"shape {shape}") from None
+        if not np.isfinite(weights).all() or (weights < 0).any() or weights.sum() <= 0:
+            raise SolverError(f"{where}: weights (cell volumes) must be finite, non-negative and not all zero")
+    return values, points, weights

@@ -1,0 +1,243 @@
+"""Plan a refinement study, run a solver on every level, judge the orders.
+
+:func:`run_study` is the main entry point of the library::
+
+    result = run_study("poisson2d-trig", "poisson2d", levels=4)
+    print(result)          # table of levels, h, norms, orders and verdicts
+    result.passed          # True when every field and norm matches
+
+A level that fails (the solver raises, or returns NaN, a wrong shape, ...)
+is recorded with the reason; the study goes on and judges what the other
+levels support.
+"""
+
+from dataclasses import dataclass, field
+import time
+import traceback
+
+import numpy as np
+
+from .derive import derive
+from .errors import GridError, MMSError, SolverError
+from .grids import Grid, check_refinement, refinement
+from .norms import NORMS, error_norms
+from .order import observed_orders
+from .problem import get_problem
+from .solvers import Case, check_solution, resolve_solver, solver_name
+from .verdict import judge
+
+__all__ = ["LevelResult", "StudyResult", "plan_grids", "run_level", "run_study", "MODES"]
+
+MODES = ("combined", "space", "time")
+
+
+@dataclass(frozen=True)
+class LevelResult:
+    """Outcome of one level: errors per field and norm, or why it failed."""
+
+    level: int
+    grid: Grid
+    h: float
+    status: str
+    errors: dict = field(default_factory=dict)
+    seconds: float = 0.0
+    n_points: int = 0
+    scale: dict = field(default_factory=dict)
+    message: str = ""
+
+    @property
+    def ok(self):
+        return self.status == "ok"
+
+
+@dataclass(frozen=True)
+class StudyResult:
+    """A finished study: levels, orders and verdicts."""
+
+    problem: str
+    solver: str
+    mode: str
+    formal_order: float
+    tolerance: float
+    levels: tuple
+    verdicts: tuple
+    problem_hash: str = ""
+    source: str = ""
+
+    @property
+    def passed(self):
+        """True when every verdict is confirmed."""
+        return bool(self.verdicts) and all(v.ok for v in self.verdicts)
+
+    @property
+    def failed_levels(self):
+        return tuple(lv for lv in self.levels if not lv.ok)
+
+    def orders(self, field_name, norm):
+        """Observed order per consecutive pair of successful levels."""
+        ok = [lv for lv in self.levels if lv.ok and field_name in lv.errors]
+        if len(ok) < 2:
+            return np.array([])
+        return observed_orders([lv.h for lv in ok], [lv.errors[field_name][norm] for lv in ok])
+
+    @property
+    def fields(self):
+        seen = []
+        for lv in self.levels:
+            for f in lv.errors:
+                if f not in seen:
+                    seen.append(f)
+        return tuple(seen)
+
+    def to_dict(self):
+        """Plain data (JSON-ready) with every number of the study."""
+        return {
+            "problem": self.problem, "problem_hash": self.problem_hash, "source": self.source,
+            "solver": self.solver, "mode": self.mode, "formal_order": self.formal_order,
+            "tolerance": self.tolerance, "passed": self.passed,
+            "levels": [{
+                "level": lv.level, "cells": list(lv.grid.cells), "steps": lv.grid.steps, "h": lv.h,
+                "dt": lv.grid.dt, "status": lv.status, "message": lv.message, "seconds": lv.seconds,
+                "n_points": lv.n_points, "errors": lv.errors,
+            } for lv in self.levels],
+            "orders": {f: {n: [None if not np.isfinite(p) else float(p) for p in self.orders(f, n)]
+                           for n in NORMS} for f in self.fields},
+            "verdicts": [{"field": v.field, "norm": v.norm, "status": v.status, "observed": v.observed,
+                          "formal": v.formal, "tolerance": v.tolerance, "reason": v.reason}
+                         for v in self.verdicts],
+        }
+
+    def __str__(self):
+        from .report.text import format_study
+        return format_study(self)
+
+
+def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combined", base_steps=None):
+    """The grids of a study, from arguments or the problem's ``[study]`` defaults.
+
+    For transient problems, ``mode`` chooses how time is refined:
+    ``"combined"`` ties the number of steps to h by the ratio of formal
+    orders (so both errors fall at the space order), ``"space"`` keeps the
+    steps fixed, ``"time"`` keeps the cells fixed and refines the steps.
+    """
+    problem = get_problem(problem)
+    s = problem.study
+    levels = int(levels or s.get("levels", 4))
+    base_cells = base_cells or s.get("base_cells", 8)
+    ratio = float(ratio or s.get("ratio", 2))
+    if mode not in MODES:
+        raise GridError(f"unknown refinement mode {mode!r}; use one of {', '.join(MODES)}")
+    if not problem.transient:
+        if mode != "combined" and mode != "space":
+            raise GridError(f"{problem.name} is steady; only spatial refinement applies (mode 'space')")
+        return refinement(problem.lower, problem.upper, base_cells, levels, ratio)
+    t0, t1 = problem.t_range
+    base_steps = int(base_steps or s.get("base_steps", 8))
+    if mode == "combined":
+        time_ratio = ratio ** (problem.space_order / problem.time_order)
+        return refinement(problem.lower, problem.upper, base_cells, levels, ratio, t_start=t0, t_end=t1,
+                          base_steps=base_steps, time_ratio=time_ratio)
+    if mode == "space":
+        return refinement(problem.lower, problem.upper, base_cells, levels, ratio, t_start=t0, t_end=t1,
+                          base_steps=base_steps, time_ratio=1.0)
+    cells = (int(base_cells),) * problem.dim if np.ndim(base_cells) == 0 else tuple(base_cells)
+    grids = [Grid(k, problem.lower, problem.upper, cells, t_start=t0, t_end=t1,
+                  steps=int(round(base_steps * ratio ** k))) for k in range(levels)]
+    check_refinement(grids)
+    return grids
+
+
+def run_level(solver, case, where):
+    """Run one level and measure its errors; never raises for solver faults."""
+    grid, mms = case.grid, case.mms
+    problem = mms.problem
+    h = grid.dt if (problem.transient and case.options.get("mode") == "time") else grid.h
+    start = time.perf_counter()
+    try:
+        sol = solver(case)
+        seconds = time.perf_counter() - start
+        values, points, weights = check_solution(sol, problem, where)
+        t = None
+        if problem.transient:
+            t = grid.t_end if sol.time is None else float(sol.time)
+        errors, scale = {}, {}
+        for name, v in values.items():
+            exact = mms.exact(name, *points, t=t)
+            errors[name] = error_norms(v - exact, weights)
+            scale[name] = float(np.max(np.abs(exact)))
+        return LevelResult(grid.level, grid, h, "ok", errors, seconds, int(values[next(iter(values))].size), scale)
+    except SolverError as exc:
+        return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start, message=str(exc))
+    except Exception as exc:  # the solver under test crashed: record it, keep going
+        tail = "".join(traceback.format_exception(type(exc), exc, exc.__traceback__)[-3:]).strip()
+        return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start,
+                           message=f"{where}: the solver raised {type(exc).__name__}: {exc}\n{tail}")
+
+
+def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode="combined", base_steps=None,
+              grids=None, tolerance=None, formal_order=None, executor=None, options=None):
+    """Run a manufactured-solution study and judge the observed orders.
+
+    Parameters
+    ----------
+    problem : Problem, path or bundled name
+    solver : callable, ``"module:function"`` or bundled name
+    levels, base_cells, ratio : optional
+        Refinement plan (defaults from the problem's ``[study]`` table, else 4, 8, 2).
+    mode : {"combined", "space", "time"}
+        How transient problems refine time (see :func:`plan_grids`).
+    grids : sequence of Grid, optional
+        An explicit sequence instead of the plan; must be a refinement.
+    tolerance, formal_order : float, optional
+        Override the problem's ``[order]`` values.
+    executor : concurrent.futures.Executor, optional
+        Run levels through it (the solver must then be picklable).
+    options : dict, optional
+        Passed to the solver in ``case.options``.
+
+    Returns
+    -------
+    StudyResult
+    """
+    problem = get_problem(problem)
+    solve = resolve_solver(solver)
+    mms = derive(problem)
+    if grids is None:
+        grids = plan_grids(problem, levels, base_cells, ratio, mode=mode, base_steps=base_steps)
+    else:
+        grids = list(grids)
+        check_refinement(grids)
+        for g in grids:
+            if g.dim != problem.dim:
+                raise GridError(f"level {g.level} is {g.dim}-D but problem {problem.name} is {problem.dim}-D")
+    opts = dict(options or {}, mode=mode)
+    cases = [Case(g, mms, opts) for g in grids]
+    name = solver_name(solver)
+    wheres = [f"problem {problem.name}, solver {name}, level {c.grid.level} ({c.grid.describe()})" for c in cases]
+    if executor is None:
+        results = [run_level(solve, c, w) for c, w in zip(cases, wheres)]
+    else:
+        futures = [executor.submit(run_level, solve, c, w) for c, w in zip(cases, wheres)]
+        results = []
+        for fut, c, w in zip(futures, cases, wheres):
+            try:
+                results.append(fut.result())
+            except Exception as exc:  # the worker itself died
+                results.append(LevelResult(c.grid.level, c.grid, c.grid.h, "failed",
+                                           message=f"{w}: the worker failed: {type(exc).__name__}: {exc}"))
+    if mode == "time":
+        formal = problem.time_order
+    else:
+        formal = problem.space_order
+    formal = float(formal_order if formal_order is not None else formal)
+    tol = float(tolerance if tolerance is not None else problem.tolerance)
+    verdicts = []
+    for f in problem.fields:
+        ok = [r for r in results if r.ok and f in r.errors]
+        if not ok:
+            continue
+        for n in NORMS:
+            verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], formal, tol,
+                                  scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
+    return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
+                       problem.content_hash(), problem.source)

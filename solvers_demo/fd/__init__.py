@@ -1,0 +1,1 @@
+"""Finite-difference demo solvers."""
