@@ -638,3 +638,208 @@ def classify_convergence(phi, h=None, tol=None):
         kind, detail = "scattered", "mixed: " + ", ".join(types)
     return ConvergenceClass(kind, detail, tuple(ratios), tuple(float(x) for x in limits), tuple(types),
                             _ADVICE[kind])
+
+
+# --------------------------------------------------------------------------
+# asymptotic range and error floors
+# --------------------------------------------------------------------------
+
+_ROUNDOFF_FACTOR = 1e3  # common practice: within ~1000 eps of the solution size counts as round-off
+_HEALTHY, _STALLED = 0.5, 0.2  # fractions of the reference order: falling / stopped falling
+
+
+@dataclass(frozen=True)
+class AsymptoticCheck:
+    """Whether observed orders have settled, and whether errors hit a floor.
+
+    Attributes
+    ----------
+    kind : str
+        ``"error"`` (values are error norms) or ``"solution"`` (values of a quantity).
+    h : tuple of float
+        Grid sizes, coarse to fine.
+    orders : tuple
+        Pairwise orders (errors) or triplet apparent orders (solutions); None where undefined.
+    spread : float or None
+        Max minus min of the finest (up to three) defined orders.
+    settled : bool or None
+        Spread within ``tol`` (relative to ``max(1, reference order)``); None if fewer than two orders.
+    formal_order : float or None
+        The design order, if given.
+    near_formal : bool or None
+        Finest order within ``tol`` (relative) of the formal order.
+    floor : str or None
+        ``"round-off"``, ``"iteration"`` (a floor well above round-off) or None.
+    floor_value : float or None
+        Size of the error (or level-to-level change) at the floor.
+    drop_levels : tuple of int
+        0-based indices of the levels to drop before estimating orders.
+    tolerance_hint : float or None
+        Iteration tolerance that would take the floor below the discretization error.
+    message : str
+        The finding and what to do, in words.
+    """
+
+    kind: str
+    h: tuple
+    orders: tuple
+    spread: object
+    settled: object
+    formal_order: object
+    near_formal: object
+    floor: object
+    floor_value: object
+    drop_levels: tuple
+    tolerance_hint: object
+    message: str
+
+    def __str__(self):
+        label = "pair" if self.kind == "error" else "triplet"
+        rows = [(f"{self.h[k]:.4g} -> {self.h[k + (1 if self.kind == 'error' else 2)]:.4g}", _fmt(p, ".4g"))
+                for k, p in enumerate(self.orders)]
+        lines = [f"asymptotic check ({self.kind} values, {label} orders)",
+                 _table(("levels (h)", "order"), rows),
+                 f"spread of finest orders: {_fmt(self.spread, '.3g')}   settled: {_yesno(self.settled)}"
+                 + (f"   near formal order {self.formal_order:g}: {_yesno(self.near_formal)}"
+                    if self.formal_order is not None else ""),
+                 f"floor: {self.floor or 'none detected'}"
+                 + (f" at about {self.floor_value:.3g}" if self.floor_value is not None else ""),
+                 f"drop levels (0-based): {list(self.drop_levels) if self.drop_levels else 'none'}",
+                 self.message]
+        return "\n".join(lines)
+
+
+def _yesno(b):
+    return "n/a" if b is None else ("yes" if b else "no")
+
+
+def asymptotic_check(h, e_or_phi, formal_order=None, *, kind="error", scale=None, tol=0.1):
+    """Check that orders have settled and detect a round-off or iteration floor.
+
+    Parameters
+    ----------
+    h : array_like
+        Grid sizes, coarse to fine.
+    e_or_phi : array_like
+        Error norms (``kind="error"``, three or more levels) or values of a
+        quantity (``kind="solution"``, four or more levels).
+    formal_order : float, optional
+        Design order; the reference for "settled" and "falling" when given.
+    kind : {"error", "solution"}
+        What ``e_or_phi`` holds.
+    scale : float, optional
+        Size of the solution (e.g. max |u|) for the round-off test of error
+        norms; for solutions it defaults to ``max |phi|``, for errors to 1.
+    tol : float, optional
+        Relative tolerance on the spread of orders and the distance to the formal order.
+
+    Returns
+    -------
+    AsymptoticCheck
+
+    Notes
+    -----
+    A floor is reported when the error (or level-to-level change) falls at
+    an order of at least half the reference order on coarse levels and then
+    at less than a fifth of it on every finer level (the ratio of successive
+    errors near 1). It is called round-off when its size is within about
+    1000 machine epsilons of ``scale``, otherwise an iteration (or other)
+    floor, with a hint for the solver tolerance.
+
+    Examples
+    --------
+    >>> h = [0.1, 0.05, 0.025, 0.0125, 0.00625]
+    >>> chk = asymptotic_check(h, [4e-3, 1e-3, 2.6e-4, 2.5e-4, 2.5e-4], formal_order=2)
+    >>> chk.floor, chk.drop_levels
+    ('iteration', (3, 4))
+    >>> asymptotic_check(h, [4e-3, 1e-3, 2.5e-4, 6.25e-5, 1.5625e-5], formal_order=2).settled
+    True
+    """
+    if kind not in ("error", "solution"):
+        raise AnalysisError(f"kind must be 'error' or 'solution', got {kind!r}")
+    need = 3 if kind == "error" else 4
+    h, v = _as_levels(h, e_or_phi, "e_or_phi", need=need)
+    n = len(h)
+    if kind == "error":
+        if np.any(v < 0):
+            raise AnalysisError(f"error norms must be non-negative, got {v.tolist()}; pass norms, not signed errors")
+        orders = [None if not np.isfinite(p) else float(p) for p in observed_orders(h, v)]
+        proxy, first_level = v, 0
+        S = 1.0 if scale is None else float(scale)
+    else:
+        d = np.diff(v)
+        orders = []
+        for k in range(n - 2):
+            lim = math.log(h[k + 1] / h[k + 2]) / math.log(h[k] / h[k + 1])
+            ok = d[k] != 0 and d[k + 1] != 0 and 0 < d[k + 1] / d[k] < lim  # monotone convergence only
+            p = _apparent_order(h[k + 1] / h[k + 2], h[k] / h[k + 1], -d[k + 1], -d[k])[0] if ok else None
+            orders.append(p)
+        proxy, first_level = np.abs(d), 1
+        S = float(np.max(np.abs(v))) if scale is None else float(scale)
+    # stage orders of the proxy sequence (proxy j sits at level j + first_level)
+    lvl = np.arange(len(proxy)) + first_level
+    with np.errstate(divide="ignore", invalid="ignore"):
+        q = np.log(proxy[:-1] / proxy[1:]) / np.log(h[lvl[:-1]] / h[lvl[1:]])
+    # floor detection
+    roundoff = _ROUNDOFF_FACTOR * _EPS * S
+    qs = np.where(np.isnan(q), -np.inf, q)  # 0/0 counts as stalled
+    coarse_q = q[:max(1, len(q) - 1)]
+    coarse_q = coarse_q[np.isfinite(coarse_q)]
+    ref = formal_order if formal_order is not None else (float(np.median(coarse_q)) if coarse_q.size else 0.0)
+    floor = floor_value = hint = None
+    drop = ()
+    msgs = []
+    if ref > 0:
+        stalled = qs < _STALLED * ref
+        healthy = qs >= _HEALTHY * ref
+        j0 = len(q)
+        while j0 > 0 and stalled[j0 - 1]:
+            j0 -= 1
+        if j0 < len(q) and np.any(healthy[:j0]):
+            first_bad = int(lvl[j0 + 1])
+            drop = tuple(range(first_bad, n))
+            floor_value = float(np.median(proxy[j0 + 1:]))
+            what = "errors" if kind == "error" else "level-to-level changes"
+            hs = ", ".join(f"{h[i]:g}" for i in drop)
+            if floor_value <= roundoff:
+                floor = "round-off"
+                msgs.append(f"{what} stop falling at about {floor_value:.3g}, within round-off of the solution "
+                            f"size {S:.3g}: drop the levels with h = {hs}; finer grids cannot help in double precision.")
+            else:
+                floor = "iteration"
+                good_order = float(np.max(q[:j0][np.isfinite(q[:j0])])) if formal_order is None else formal_order
+                expected = float(proxy[j0] * (h[lvl[-1]] / h[lvl[j0]]) ** good_order)
+                hint = expected / 10.0
+                msgs.append(f"{what} stop falling at about {floor_value:.3g}, far above round-off: most likely "
+                            f"the iterative (solver) tolerance. Tighten it below about {hint:.1g} (a tenth of the "
+                            f"{'error' if kind == 'error' else 'change'} expected on the finest level), or drop the "
+                            f"levels with h = {hs}.")
+    if floor is None and proxy[-1] <= roundoff:
+        msgs.append(f"the finest {'error' if kind == 'error' else 'change'} ({proxy[-1]:.3g}) is at round-off "
+                    f"relative to {S:.3g}; its order is noise: drop the level with h = {h[-1]:g}.")
+        drop = (n - 1,)
+        floor, floor_value = "round-off", float(proxy[-1])
+    # settling, judged on the levels that are kept
+    span = 1 if kind == "error" else 2
+    first_dropped = drop[0] if drop else n
+    defined = [p for k, p in enumerate(orders) if p is not None and k + span < first_dropped]
+    fin = defined[-3:]
+    spread = float(max(fin) - min(fin)) if len(fin) >= 2 else None
+    ref_order = formal_order if formal_order is not None else (float(np.median(fin)) if fin else None)
+    settled = None if spread is None else spread <= tol * max(1.0, abs(ref_order))
+    near = None
+    if formal_order is not None and defined:
+        near = abs(defined[-1] - formal_order) <= tol * max(1.0, abs(formal_order))
+    kept = "" if not drop else " (after dropping the floor levels)"
+    if settled is None:
+        msgs.append("too few defined orders to judge whether they have settled; add a level.")
+    elif settled:
+        msgs.append(f"the finest orders{kept} agree within {spread:.3g}: in the asymptotic range.")
+    else:
+        msgs.append(f"the finest orders{kept} still spread by {spread:.3g}: not yet in the asymptotic range; refine "
+                    "further or drop the coarsest level.")
+    if near is False:
+        msgs.append(f"the finest order {defined[-1]:.3g} is not within {tol:g} (relative) of the formal order "
+                    f"{formal_order:g}.")
+    return AsymptoticCheck(kind, tuple(h.tolist()), tuple(orders), spread, settled, formal_order, near, floor,
+                           floor_value, drop, hint, " ".join(msgs))
