@@ -175,7 +175,8 @@ def run_level(solver, case, where):
 
 
 def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode="combined", base_steps=None,
-              grids=None, tolerance=None, formal_order=None, executor=None, options=None):
+              grids=None, tolerance=None, formal_order=None, executor=None, options=None,
+              progress=None):
     """Run a manufactured-solution study and judge the observed orders.
 
     Parameters
@@ -194,6 +195,9 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
         Run levels through it (the solver must then be picklable).
     options : dict, optional
         Passed to the solver in ``case.options``.
+    progress : callable, optional
+        Called as ``progress(level_result)`` after each level finishes
+        (see :mod:`mmsverify.progress`).
 
     Returns
     -------
@@ -215,7 +219,11 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     name = solver_name(solver)
     wheres = [f"problem {problem.name}, solver {name}, level {c.grid.level} ({c.grid.describe()})" for c in cases]
     if executor is None:
-        results = [run_level(solve, c, w) for c, w in zip(cases, wheres)]
+        results = []
+        for c, w in zip(cases, wheres):
+            results.append(run_level(solve, c, w))
+            if progress is not None:
+                progress(results[-1])
     else:
         futures = [executor.submit(run_level, solve, c, w) for c, w in zip(cases, wheres)]
         results = []
@@ -225,6 +233,8 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
             except Exception as exc:  # the worker itself died
                 results.append(LevelResult(c.grid.level, c.grid, c.grid.h, "failed",
                                            message=f"{w}: the worker failed: {type(exc).__name__}: {exc}"))
+            if progress is not None:
+                progress(results[-1])
     if mode == "time":
         formal = problem.time_order
     else:
