@@ -245,11 +245,13 @@ class _Reader:
         for k, v in fields_tab.items():
             if k in names or not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", k):
                 self.fail("fields", k, "a field needs a new identifier (not a coordinate or constant)")
-            fields[k] = self.expression("fields", k, v, names)
-        if t is None:
-            for k, e in fields.items():
-                if any(s.name == "t" for s in e.free_symbols):
-                    self.fail("fields", k, "uses t but [domain] has no t interval; add t = [t0, t1]")
+            try:
+                fields[k] = self.expression("fields", k, v, names)
+            except ProblemError as exc:
+                if t is None and "'t'" in str(exc):
+                    raise ProblemError(f"{exc}; a transient problem needs a time interval: add t = [t0, t1] "
+                                       "to [domain]") from None
+                raise
 
         op_tab = dict(self.table("operator"))
         kind = op_tab.pop("kind", "poisson")

@@ -1,0 +1,50 @@
+"""The command line as a user meets it: output, files and exit codes."""
+
+import json
+import subprocess
+import sys
+
+from mmsverify.cli import main
+
+
+def test_demo_passes_the_correct_solver_and_catches_the_mistake(capsys):
+    assert main(["demo", "--levels", "4"]) == 0
+    out = capsys.readouterr().out
+    assert "PASS  plate-poisson  solved by  poisson2d" in out
+    assert "FAIL  plate-poisson  solved by  poisson2d-neumann1" in out
+    assert "seeded mistake is caught" in out
+    assert "not that they are the right equations" in out
+
+
+def test_run_writes_json_and_exit_code_reflects_verdict(tmp_path, capsys):
+    out = tmp_path / "r.json"
+    assert main(["run", "plate-poisson", "poisson2d", "--levels", "3", "--json", str(out)]) == 0
+    d = json.loads(out.read_text())
+    assert d["passed"] and d["solver"] == "poisson2d"
+    assert main(["run", "plate-poisson", "poisson2d-neumann1", "--levels", "3"]) == 1
+
+
+def test_bad_problem_file_exits_2_with_file_and_line(tmp_path, capsys):
+    f = tmp_path / "bad.toml"
+    f.write_text('[domain]\nx = [0, 1]\n[fields]\nu = "__import__(\'os\').system(\'echo hi\')"\n')
+    assert main(["run", str(f), "poisson2d"]) == 2
+    err = capsys.readouterr().err
+    assert str(f) in err and "line 4" in err
+
+
+def test_unknown_solver_lists_bundled_ones(capsys):
+    assert main(["run", "plate-poisson", "nosuch"]) == 2
+    assert "poisson2d" in capsys.readouterr().err
+
+
+def test_list_and_derive(capsys):
+    assert main(["list"]) == 0
+    out = capsys.readouterr().out
+    assert "plate-poisson" in out and "navier_stokes" in out and "custom" in out
+    assert main(["derive", "plate-poisson"]) == 0
+    assert "source_u =" in capsys.readouterr().out
+
+
+def test_module_entry_point_runs():
+    r = subprocess.run([sys.executable, "-m", "mmsverify", "--help"], capture_output=True, text=True, timeout=60)
+    assert r.returncode == 0 and "Exit codes" in r.stdout

@@ -1,0 +1,117 @@
+"""End-to-end studies: the 5-point Poisson demo and the faults a study must survive."""
+
+import numpy as np
+import pytest
+
+from mmsverify import Grid, GridError, Solution, refinement, run_study
+from mmsverify.grids import check_refinement
+
+
+@pytest.fixture(scope="module")
+def good():
+    return run_study("plate-poisson", "poisson2d", levels=5)
+
+
+def test_five_point_poisson_is_second_order(good):
+    # LeVeque 2007, Finite Difference Methods for ODEs and PDEs, sec. 3.2: the 5-point
+    # Laplacian has local truncation error (h**2/12)(u_xxxx + u_yyyy), so order 2.
+    assert good.passed
+    for norm in ("L2", "Linf"):
+        p = good.orders("u", norm)
+        assert len(p) == 4
+        assert np.all(np.abs(p[1:] - 2.0) < 0.1), p
+    assert all(v.status == "confirmed" for v in good.verdicts)
+
+
+def test_error_constant_matches_truncation_error_scaling(good):
+    # LeVeque 2007, sec. 2.x/3.x: global error ~ C h**2, so e(h)/h**2 tends to a constant
+    lv = [lv for lv in good.levels if lv.ok]
+    c = [r.errors["u"]["L2"] / r.h ** 2 for r in lv]
+    assert abs(c[-1] / c[-2] - 1) < 0.01
+
+
+def test_first_order_neumann_variant_is_flagged():
+    # common practice: a first-order one-sided Neumann boundary lowers the global order to 1
+    bad = run_study("plate-poisson", "poisson2d-neumann1", levels=4)
+    assert not bad.passed
+    for v in bad.verdicts:
+        assert v.status == "below"
+        assert "formal 2" in v.reason and "observed 0.9" in v.reason or "observed 1.0" in v.reason
+
+
+def test_verdict_reason_states_levels_order_and_tolerance(good):
+    v = good.verdicts[1]
+    assert v.reason.startswith("observed 2.00 on levels 3-4; formal 2; within 0.1")
+
+
+def _one_level_fault(fault):
+    def solver(case):
+        if case.grid.level == 1:
+            if fault == "raise":
+                raise RuntimeError("matrix is singular")
+            x = case.grid.nodes(0)
+            if fault == "nan":
+                return Solution(values={"u": np.full((x.size, x.size), np.nan)}, points=(x[:, None], x[None, :]))
+            if fault == "shape":
+                return Solution(values={"u": np.zeros(3)}, points=(x[:, None], x[None, :]))
+            if fault == "type":
+                return {"u": x}
+        from solvers_demo.fd.poisson import solve
+        return solve(case)
+    return solver
+
+
+@pytest.mark.parametrize("fault,words", [
+    ("raise", "raised RuntimeError: matrix is singular"),
+    ("nan", "NaN/Inf"),
+    ("shape", "shape"),
+    ("type", "returned dict"),
+])
+def test_a_failing_level_is_recorded_and_the_study_goes_on(fault, words):
+    r = run_study("plate-poisson", _one_level_fault(fault), levels=4)
+    failed = r.failed_levels
+    assert [lv.level for lv in failed] == [1]
+    assert words in failed[0].message
+    assert "level 1" in failed[0].message
+    assert all(lv.ok for lv in r.levels if lv.level != 1)
+    assert r.passed  # levels 0, 2, 3 still support the order
+
+
+def test_grid_sequence_that_is_not_a_refinement_is_refused():
+    g = [Grid(0, (0.0,), (1.0,), (16,)), Grid(1, (0.0,), (1.0,), (8,))]
+    with pytest.raises(GridError, match="does not refine level 0"):
+        check_refinement(g)
+    with pytest.raises(GridError, match="ratio must exceed 1"):
+        refinement((0,), (1,), 8, 3, ratio=1.0)
+    with pytest.raises(GridError, match="different domains"):
+        check_refinement([Grid(0, (0.0,), (1.0,), (8,)), Grid(1, (0.0,), (2.0,), (16,))])
+
+
+def test_grid_dimension_must_match_problem():
+    grids = refinement((0, 0, 0), (1, 1, 1), 2, 2)
+    with pytest.raises(GridError, match="3-D but problem plate-poisson is 2-D"):
+        run_study("plate-poisson", "poisson2d", grids=grids)
+
+
+def test_solver_for_another_operator_is_recorded_not_crashing():
+    r = run_study("fin-diffusion", "poisson2d", levels=2)
+    assert all("pick a solver for that operator" in lv.message for lv in r.levels)
+    assert not r.passed and r.verdicts == ()
+
+
+def test_exact_solution_gives_inconclusive_not_a_pass():
+    # LeVeque 2007: the 5-point stencil is exact for polynomials of degree <= 3,
+    # so a quadratic manufactured solution shows no order at all.
+    from mmsverify import problem_from_text
+    p = problem_from_text('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "1 + x**2 + x*y"')
+    r = run_study(p, "poisson2d", levels=3)
+    assert {v.status for v in r.verdicts} == {"inconclusive"}
+    assert "round-off" in r.verdicts[0].reason
+
+
+def test_json_ready_dict_has_every_number(good):
+    import json
+    d = json.loads(json.dumps(good.to_dict()))
+    assert d["passed"] is True and len(d["levels"]) == 5
+    assert d["levels"][0]["errors"]["u"]["L2"] == good.levels[0].errors["u"]["L2"]
+    assert len(d["orders"]["u"]["Linf"]) == 4
