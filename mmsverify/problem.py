@@ -33,6 +33,11 @@ is ever executed. The format, with every table but ``[fields]`` optional::
     time = 1                            # for transient problems
     tolerance = 0.1                     # allowed |observed - formal|
 
+    [quantities]                        # functionals a solver may report too
+    total_heat = {integral = "u"}       # integral over the domain
+    wall_flux = {flux = "u", side = "x_max"}   # integral of the outward normal flux over a side
+    centre = {point = "u", at = [0.5, 0.5]}    # a point value
+
     [study]                             # defaults for `mmsverify run`
     levels = 4
     base_cells = 8
@@ -59,7 +64,8 @@ PROBLEM_DIR = Path(__file__).resolve().parent.parent / "problems"
 SPACE = ("x", "y", "z")
 SIDES = ("x_min", "x_max", "y_min", "y_max", "z_min", "z_max")
 _KINDS = ("dirichlet", "neumann")
-_TOP_KEYS = {"name", "description", "domain", "constants", "fields", "operator", "boundaries", "order", "study"}
+_TOP_KEYS = {"name", "description", "domain", "constants", "fields", "operator", "boundaries", "order", "study",
+             "quantities"}
 
 
 @dataclass(frozen=True)
@@ -92,6 +98,11 @@ class Problem:
     space_order, time_order : int or None
     tolerance : float
     study : dict
+    quantities : dict of str to tuple
+        Functionals with exact values, each ``(kind, expr, where, text)``:
+        ``("integral", expr, None, text)``, ``("flux", expr, side, field)``
+        (expr is the outward normal flux on that side) or
+        ``("point", expr, (x, ...), text)``; ``text`` is what the file says.
     source : str
         Where it came from (file path or ``"<python>"``).
     """
@@ -115,6 +126,7 @@ class Problem:
     tolerance: float = 0.1
     study: dict = field(default_factory=dict)
     source: str = "<python>"
+    quantities: dict = field(default_factory=dict)
 
     @property
     def dim(self):
@@ -137,6 +149,7 @@ class Problem:
             "equations": {k: sp.srepr(v) for k, v in self.equations.items()},
             "fluxes": {k: [sp.srepr(c) for c in v] for k, v in self.fluxes.items()},
             "boundaries": sorted(f"{f}:{s}:{k}" for (f, s), k in self.boundaries.items()),
+            "quantities": {k: [q[0], sp.srepr(q[1]), str(q[2])] for k, q in self.quantities.items()},
         }, sort_keys=True)
         return hashlib.sha256(blob.encode()).hexdigest()
 
@@ -302,12 +315,45 @@ class _Reader:
         if space_order < 1 or (time_order is not None and time_order < 1) or not tolerance > 0:
             raise ProblemError(f"{self.where('order')}: orders must be at least 1 and the tolerance positive")
         study = dict(self.table("study"))
-        return Problem(name=name, description=description, coords=coords, t=t,
+        quantities = self._quantities(with_fields, fields, fluxes, coords, box, axes)
+        return Problem(quantities=quantities, name=name, description=description, coords=coords, t=t,
                        lower=tuple(box[a][0] for a in axes), upper=tuple(box[a][1] for a in axes),
                        t_range=box.get("t"), constants=constants, fields=fields, operator=kind,
                        parameters=parameters, equations=equations, fluxes=fluxes, boundaries=boundaries,
                        space_order=space_order, time_order=time_order, tolerance=tolerance, study=study,
                        source=self.source)
+
+    def _quantities(self, names, fields, fluxes, coords, box, axes):
+        out = {}
+        sides = [s for s in SIDES if s[0] in axes]
+        for name, spec in self.table("quantities").items():
+            if not isinstance(spec, dict) or len(set(spec) & {"integral", "flux", "point"}) != 1:
+                self.fail("quantities", name, 'give one of {integral = "expr"}, {flux = "field", side = "x_max"} '
+                                              'or {point = "expr", at = [x, ...]}')
+            extra = set(spec) - {"integral", "flux", "point", "side", "at"}
+            if extra:
+                self.fail("quantities", name, f"unknown key(s) {sorted(extra)}")
+            if "integral" in spec:
+                out[name] = ("integral", self.expression("quantities", name, spec["integral"], names), None,
+                             str(spec["integral"]))
+            elif "flux" in spec:
+                f, side = spec["flux"], spec.get("side")
+                if f not in fields:
+                    self.fail("quantities", name, f"flux needs a field name; fields are {', '.join(fields)}")
+                if side not in sides:
+                    self.fail("quantities", name, f"flux needs side = one of {', '.join(sides)}")
+                axis, sign = SPACE.index(side[0]), (1 if side.endswith("max") else -1)
+                vec = fluxes.get(f) or [sp.diff(fields[f], c) for c in coords]
+                out[name] = ("flux", (sign * vec[axis]).subs(coords[axis], box[side[0]][side.endswith("max")]), side, f)
+            else:
+                at = spec.get("at")
+                if not (isinstance(at, list) and len(at) == len(coords)):
+                    self.fail("quantities", name, f"point needs at = [{', '.join(axes)}]")
+                at = tuple(self.number("quantities", name, v) for v in at)
+                if any(not box[a][0] <= v <= box[a][1] for a, v in zip(axes, at)):
+                    self.fail("quantities", name, f"point {at} lies outside the domain")
+                out[name] = ("point", self.expression("quantities", name, spec["point"], names), at, str(spec["point"]))
+        return out
 
     def _boundaries(self, fields, axes):
         tab = dict(self.table("boundaries"))

@@ -56,6 +56,9 @@ class Solution:
         Time of the values for transient problems (default: the end time).
     info : dict
         Anything the solver wants to report (iterations, residuals).
+    quantities : dict of str to float
+        Functionals the solver computed (boundary fluxes, integrals, point
+        values), compared with the problem's ``[quantities]``.
     """
 
     values: dict
@@ -63,6 +66,7 @@ class Solution:
     weights: object = None
     time: float = None
     info: dict = field(default_factory=dict)
+    quantities: dict = field(default_factory=dict)
 
 
 # Bundled solvers: name -> "module:attribute". Names, not objects, so that
@@ -168,4 +172,13 @@ def check_solution(sol, problem, where):
                               f"shape {shape}") from None
         if not np.isfinite(weights).all() or (weights < 0).any() or weights.sum() <= 0:
             raise SolverError(f"{where}: weights (cell volumes) must be finite, non-negative and not all zero")
+    if not isinstance(sol.quantities, dict):
+        raise SolverError(f"{where}: Solution.quantities must be a dict of name to number")
+    unknown = set(sol.quantities) - set(problem.quantities)
+    if unknown:
+        raise SolverError(f"{where}: returned quantities {sorted(unknown)} that the problem does not declare; "
+                          f"declare them under [quantities] (known: {', '.join(problem.quantities) or 'none'})")
+    for name, q in sol.quantities.items():
+        if isinstance(q, bool) or not isinstance(q, (int, float, np.floating, np.integer)) or not np.isfinite(q):
+            raise SolverError(f"{where}: quantity {name!r} must be a finite number, got {q!r}")
     return values, points, weights

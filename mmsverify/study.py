@@ -44,6 +44,7 @@ class LevelResult:
     n_points: int = 0
     scale: dict = field(default_factory=dict)
     message: str = ""
+    quantities: dict = field(default_factory=dict)
 
     @property
     def ok(self):
@@ -80,6 +81,20 @@ class StudyResult:
             return np.array([])
         return observed_orders([lv.h for lv in ok], [lv.errors[field_name][norm] for lv in ok])
 
+    def quantity_orders(self, name):
+        """Observed order of a reported quantity's error per pair of successful levels."""
+        ok = [lv for lv in self.levels if lv.ok and name in lv.quantities]
+        if len(ok) < 2:
+            return np.array([])
+        return observed_orders([lv.h for lv in ok], [lv.quantities[name]["error"] for lv in ok])
+
+    @property
+    def quantities(self):
+        seen = []
+        for lv in self.levels:
+            seen += [q for q in lv.quantities if q not in seen]
+        return tuple(seen)
+
     @property
     def fields(self):
         seen = []
@@ -98,8 +113,10 @@ class StudyResult:
             "levels": [{
                 "level": lv.level, "cells": list(lv.grid.cells), "steps": lv.grid.steps, "h": lv.h,
                 "dt": lv.grid.dt, "status": lv.status, "message": lv.message, "seconds": lv.seconds,
-                "n_points": lv.n_points, "errors": lv.errors,
+                "n_points": lv.n_points, "errors": lv.errors, "quantities": lv.quantities,
             } for lv in self.levels],
+            "quantity_orders": {q: [None if not np.isfinite(p) else float(p) for p in self.quantity_orders(q)]
+                                for q in self.quantities},
             "orders": {f: {n: [None if not np.isfinite(p) else float(p) for p in self.orders(f, n)]
                            for n in NORMS} for f in self.fields},
             "verdicts": [{"field": v.field, "norm": v.norm, "status": v.status, "observed": v.observed,
@@ -110,6 +127,23 @@ class StudyResult:
     def __str__(self):
         from .report.text import format_study
         return format_study(self)
+
+
+def _verdicts(problem, results, formal, tol):
+    """One verdict per field and norm, then one per reported quantity."""
+    verdicts = []
+    for f in problem.fields:
+        ok = [r for r in results if r.ok and f in r.errors]
+        for n in NORMS if ok else ():
+            verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], formal, tol,
+                                  scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
+    for q in problem.quantities:
+        ok = [r for r in results if r.ok and q in r.quantities]
+        if ok:
+            verdicts.append(judge(q, "value", [r.h for r in ok], [r.quantities[q]["error"] for r in ok], formal,
+                                  tol, scale=abs(ok[-1].quantities[q]["exact"]) or 1.0,
+                                  levels=[r.level for r in ok]))
+    return tuple(verdicts)
 
 
 def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combined", base_steps=None):
@@ -165,7 +199,12 @@ def run_level(solver, case, where):
             exact = mms.exact(name, *points, t=t)
             errors[name] = error_norms(v - exact, weights)
             scale[name] = float(np.max(np.abs(exact)))
-        return LevelResult(grid.level, grid, h, "ok", errors, seconds, int(values[next(iter(values))].size), scale)
+        quantities = {}
+        for name, q in sol.quantities.items():
+            exact = mms.exact_quantity(name, t=t)
+            quantities[name] = {"value": float(q), "exact": exact, "error": abs(float(q) - exact)}
+        return LevelResult(grid.level, grid, h, "ok", errors, seconds, int(values[next(iter(values))].size), scale,
+                           quantities=quantities)
     except SolverError as exc:
         return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start, message=str(exc))
     except Exception as exc:  # the solver under test crashed: record it, keep going
@@ -241,13 +280,6 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
         formal = problem.space_order
     formal = float(formal_order if formal_order is not None else formal)
     tol = float(tolerance if tolerance is not None else problem.tolerance)
-    verdicts = []
-    for f in problem.fields:
-        ok = [r for r in results if r.ok and f in r.errors]
-        if not ok:
-            continue
-        for n in NORMS:
-            verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], formal, tol,
-                                  scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
+    verdicts = _verdicts(problem, results, formal, tol)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
                        problem.content_hash(), problem.source)

@@ -41,6 +41,17 @@ def format_study(result):
                     row += f"{_num(lv.errors[f][n]):<13}{_num(p, '{:.2f}'):<8}"
             lines.append(row.rstrip())
         lines.append("")
+    for q in result.quantities:
+        lines.append(f"  quantity {q}")
+        lines.append("  level  grid                    h          value           exact           error        order")
+        ok = [lv for lv in result.levels if lv.ok and q in lv.quantities]
+        orders = result.quantity_orders(q)
+        for i, lv in enumerate(ok):
+            d = lv.quantities[q]
+            p = orders[i - 1] if i > 0 else None
+            lines.append(f"  {lv.level:<6} {lv.grid.describe():<23} {lv.h:<10.4g} {d['value']:<15.8g} "
+                         f"{d['exact']:<15.8g} {_num(d['error']):<12} {_num(p, '{:.2f}')}")
+        lines.append("")
     for lv in result.failed_levels:
         lines.append(f"  level {lv.level} failed: {lv.message}")
     lines.append("  " + CAUTION)

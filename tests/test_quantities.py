@@ -1,0 +1,79 @@
+"""Functionals (integrals, boundary fluxes, point values) with their own orders."""
+
+import math
+
+import numpy as np
+import pytest
+
+from mmsverify import ProblemError, Solution, derive, problem_from_text, run_study
+from solvers_demo.fd.poisson import solve
+
+
+def with_quantities(case):
+    """The 5-point solver, plus the two functionals plate-poisson declares."""
+    sol = solve(case)
+    u = sol.values["u"]
+    hx, hy = case.grid.spacing
+    w = np.full(u.shape[0], hx)
+    w[[0, -1]] /= 2                                           # trapezoid rule, second order
+    # outward derivative on y_min is -du/dy; one-sided third-order difference, so the
+    # flux error is that of the O(h**2) solution (Fornberg 1988, Math. Comp. 51:699, Table 3)
+    dudn = -(-11 * u[:, 0] + 18 * u[:, 1] - 9 * u[:, 2] + 2 * u[:, 3]) / (6 * hy)
+    q = {"deflection": float(np.sum(sol.weights * u)), "edge_slope": float(np.sum(w * dudn))}
+    return Solution(sol.values, sol.points, sol.weights, quantities=q)
+
+
+def test_quantities_get_their_own_order_and_verdict():
+    # common practice: trapezoid integration is second order; so is a flux from an O(h**2) solution
+    r = run_study("plate-poisson", with_quantities, levels=6)
+    assert r.quantities == ("deflection", "edge_slope")
+    p = r.quantity_orders("deflection")
+    assert np.all(np.abs(p[1:] - 2) < 0.05), p
+    # the edge flux approaches 2 from above (a faster-decaying term fades with h)
+    p = r.quantity_orders("edge_slope")
+    assert np.all(np.diff(p[1:]) < 0) and abs(p[-1] - 2) < 0.15, p
+    verdict = {v.field: v for v in r.verdicts if v.norm == "value"}
+    assert verdict["deflection"].ok
+    assert verdict["edge_slope"].status in ("confirmed", "above")
+    assert "quantity edge_slope" in str(r)
+    assert r.to_dict()["levels"][0]["quantities"]["deflection"]["exact"] == pytest.approx(
+        derive("plate-poisson").exact_quantity("deflection"))
+
+
+def test_exact_quantities_against_closed_forms():
+    # closed forms by hand: int_0^1 int_0^2 sin(x) e^y = (1 - cos 1)(e^2 - 1), etc.
+    p = problem_from_text('[domain]\nx = [0, 1]\ny = [0, 2]\n[fields]\nu = "sin(x)*exp(y)"\n[quantities]\n'
+                          'tot = {integral = "u"}\nwf = {flux = "u", side = "x_max"}\n'
+                          'lf = {flux = "u", side = "y_min"}\nc = {point = "u", at = [0.5, 1.0]}\n')
+    m = derive(p)
+    assert m.exact_quantity("tot") == pytest.approx((1 - math.cos(1)) * (math.e ** 2 - 1), rel=1e-14)
+    assert m.exact_quantity("wf") == pytest.approx(math.cos(1) * (math.e ** 2 - 1), rel=1e-14)
+    assert m.exact_quantity("lf") == pytest.approx(-(1 - math.cos(1)), rel=1e-14)   # outward normal is -y
+    assert m.exact_quantity("c") == pytest.approx(math.sin(0.5) * math.e, rel=1e-14)
+
+
+def test_transient_quantity_defaults_to_end_time():
+    p = problem_from_text('[domain]\nx = [0, 1]\nt = [0, 2]\n[fields]\nu = "x*t"\n[quantities]\n'
+                          'c = {point = "u", at = [0.5]}\n')
+    assert derive(p).exact_quantity("c") == pytest.approx(1.0)
+
+
+@pytest.mark.parametrize("spec,words", [
+    ('q = {flux = "w", side = "x_max"}', "flux needs a field name"),
+    ('q = {flux = "u", side = "z_max"}', "flux needs side"),
+    ('q = {point = "u", at = [2.0, 0.5]}', "outside the domain"),
+    ('q = {point = "u"}', r"point needs at = \[x, y\]"),
+    ('q = "u"', "give one of"),
+])
+def test_bad_quantity_declarations(spec, words):
+    text = '[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "x*y"\n[quantities]\n' + spec + "\n"
+    with pytest.raises(ProblemError, match=words):
+        problem_from_text(text, "q.toml")
+
+
+def test_undeclared_quantity_fails_the_level_with_a_reason():
+    def solver(case):
+        sol = solve(case)
+        return Solution(sol.values, sol.points, sol.weights, quantities={"drag": 1.0})
+    r = run_study("plate-poisson", solver, levels=2)
+    assert all("declare them under [quantities]" in lv.message for lv in r.levels)
