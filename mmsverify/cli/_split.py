@@ -1,0 +1,29 @@
+"""``mmsverify split PROBLEM SOLVER``: space and time orders of a transient solver, separately."""
+
+from ..spacetime import run_space_time
+from . import EXIT_FAIL, EXIT_OK
+
+
+def _split(args):
+    r = run_space_time(args.problem, args.solver, levels=args.levels or 4, base_cells=args.base_cells,
+                       base_steps=args.base_steps, ratio=args.ratio or 2.0, fine_cells=args.fine_cells,
+                       fine_steps=args.fine_steps, tolerance=args.tolerance)
+    print(r)
+    return EXIT_OK if r.passed else EXIT_FAIL
+
+
+def register(sub):
+    p = sub.add_parser("split", help="transient solvers: temporal, spatial and combined studies, each judged",
+                       description="Three studies of a transient solver: time steps refined at fixed fine "
+                                   "cells, cells refined at a fixed small step, and both together with the "
+                                   "step tied to h by the ratio of formal orders.")
+    p.add_argument("problem", help="transient problem file (.toml) or bundled name")
+    p.add_argument("solver", help="bundled solver name or module:function")
+    p.add_argument("--levels", type=int, help="levels per study (default 4)")
+    p.add_argument("--base-cells", type=int, help="coarsest cells per direction")
+    p.add_argument("--base-steps", type=int, help="coarsest number of time steps")
+    p.add_argument("--ratio", type=float, help="refinement ratio (default 2)")
+    p.add_argument("--fine-cells", type=int, help="frozen cells of the temporal study")
+    p.add_argument("--fine-steps", type=int, help="frozen steps of the spatial study")
+    p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order")
+    p.set_defaults(func=_split)
