@@ -38,6 +38,12 @@ is ever executed. The format, with every table but ``[fields]`` optional::
     wall_flux = {flux = "u", side = "x_max"}   # integral of the outward normal flux over a side
     centre = {point = "u", at = [0.5, 0.5]}    # a point value
 
+    [bounds]                            # physical admissibility (`mmsverify audit`)
+    u = {min = 0}                       # a field or operator parameter: min and/or max
+    k = [0.1, 10]                       # or [min, max]; limits are inclusive
+    Pe = {expr = "0.1*abs(u)/k", max = 2}   # a derived quantity: any expression of
+                                        # coordinates, t, constants, fields, parameters
+
     [study]                             # defaults for `mmsverify run`
     levels = 4
     base_cells = 8
@@ -65,7 +71,7 @@ SPACE = ("x", "y", "z")
 SIDES = ("x_min", "x_max", "y_min", "y_max", "z_min", "z_max")
 _KINDS = ("dirichlet", "neumann")
 _TOP_KEYS = {"name", "description", "domain", "constants", "fields", "operator", "boundaries", "order", "study",
-             "quantities"}
+             "quantities", "bounds"}
 
 
 @dataclass(frozen=True)
@@ -105,6 +111,12 @@ class Problem:
         ``("point", expr, (x, ...), text)``; ``text`` is what the file says.
     source : str
         Where it came from (file path or ``"<python>"``).
+    bounds : dict of str to tuple
+        Physical admissibility limits from ``[bounds]``, each
+        ``(expr, min or None, max or None)``; expr has the fields substituted.
+    equation_text : dict of str to str
+        The equations of a custom operator as written in the file (empty for
+        built-in operators), so their top-level terms can be examined.
     """
 
     name: str
@@ -127,6 +139,8 @@ class Problem:
     study: dict = field(default_factory=dict)
     source: str = "<python>"
     quantities: dict = field(default_factory=dict)
+    bounds: dict = field(default_factory=dict)
+    equation_text: dict = field(default_factory=dict)
 
     @property
     def dim(self):
@@ -316,12 +330,45 @@ class _Reader:
             raise ProblemError(f"{self.where('order')}: orders must be at least 1 and the tolerance positive")
         study = dict(self.table("study"))
         quantities = self._quantities(with_fields, fields, fluxes, coords, box, axes)
-        return Problem(quantities=quantities, name=name, description=description, coords=coords, t=t,
+        bounds = self._bounds({**with_fields, **parameters}, fields, parameters)
+        equation_text = {k: str(v) for k, v in eqs.items()} if kind == "custom" else {}
+        return Problem(bounds=bounds, equation_text=equation_text, quantities=quantities, name=name,
+                       description=description, coords=coords, t=t,
                        lower=tuple(box[a][0] for a in axes), upper=tuple(box[a][1] for a in axes),
                        t_range=box.get("t"), constants=constants, fields=fields, operator=kind,
                        parameters=parameters, equations=equations, fluxes=fluxes, boundaries=boundaries,
                        space_order=space_order, time_order=time_order, tolerance=tolerance, study=study,
                        source=self.source)
+
+    def _bounds(self, names, fields, parameters):
+        """The [bounds] table: name -> (expression, min or None, max or None)."""
+        out = {}
+        for key, spec in self.table("bounds").items():
+            if isinstance(spec, list):
+                if len(spec) != 2:
+                    self.fail("bounds", key, f"expected [min, max] or {{min = ..., max = ...}}, got {spec!r}")
+                spec = {"min": spec[0], "max": spec[1]}
+            if not isinstance(spec, dict):
+                self.fail("bounds", key, f"expected [min, max] or {{min = ..., max = ...}}, got {spec!r}")
+            extra = set(spec) - {"expr", "min", "max"}
+            if extra:
+                self.fail("bounds", key, f"unknown entries {sorted(extra)}; use expr, min and max")
+            lo, hi = (self.number("bounds", key, spec[s]) if s in spec else None for s in ("min", "max"))
+            if lo is None and hi is None:
+                self.fail("bounds", key, "give min, max or both")
+            if lo is not None and hi is not None and not hi > lo:
+                self.fail("bounds", key, f"max {hi} must exceed min {lo}")
+            if "expr" in spec:
+                if key in fields or key in parameters or not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", key):
+                    self.fail("bounds", key, "a derived quantity needs a new identifier (not a field or parameter)")
+                expr = self.expression("bounds", key, spec["expr"], names)
+            elif key in fields or key in parameters:
+                expr = fields[key] if key in fields else parameters[key]
+            else:
+                self.fail("bounds", key, f"names no field or operator parameter; add expr = \"...\" to bound a "
+                                         f"derived quantity (fields: {', '.join(fields)})")
+            out[key] = (expr, lo, hi)
+        return out
 
     def _quantities(self, names, fields, fluxes, coords, box, axes):
         out = {}
