@@ -63,6 +63,21 @@ class Operator:
         """Flux vector per field for Neumann data, or an empty dict."""
         return self._fluxes(q, X, par) if self._fluxes else {}
 
+    def terms(self, q, X, t, par):
+        """The residual of each equation split into named terms.
+
+        Returns ``{equation: {term name: expr}}``; the terms of an equation
+        add up to its residual. Operators without a split give one term,
+        ``"residual"``. Names used: ``time``, ``diffusion``, ``advection``,
+        ``convection``, ``pressure``, ``viscous`` and, for the mass equation
+        of ``navier_stokes``, ``continuity_x`` and ``continuity_y`` (kept
+        apart because a divergence-free velocity makes only their sum zero).
+        """
+        split = _TERM_SPLITS.get(self.name)
+        if split is None:
+            return {eq: {"residual": r} for eq, r in self.residuals(q, X, t, par).items()}
+        return split(q, X, t, par)
+
 
 def _grad(u, X):
     return [sp.diff(u, xi) for xi in X]
@@ -186,3 +201,43 @@ def derivative_functions(X, t):
         return sp.Add(*[sp.diff(expr, xi, 2) for xi in X])
 
     return {"d": d, "lap": lap}
+
+
+# -- residuals split into named terms (Operator.terms) ---------------------
+def _with_time(terms, u, t, coef=1):
+    return ({"time": coef * sp.diff(u, t)} if t is not None else {}) | terms
+
+
+def _diffusion_terms(q, X, t, par):
+    name, u = _scalar(q)
+    return {name: _with_time({"diffusion": -_div([par["k"] * g for g in _grad(u, X)], X)}, u, t, par["rho_c"])}
+
+
+def _advection_diffusion_terms(q, X, t, par):
+    name, u = _scalar(q)
+    a = [par[c] for c in ("ax", "ay", "az")[: len(X)]]
+    return {name: _with_time({"advection": sp.Add(*[ai * g for ai, g in zip(a, _grad(u, X))]),
+                              "diffusion": -_div([par["k"] * g for g in _grad(u, X)], X)}, u, t)}
+
+
+def _burgers_terms(q, X, t, par):
+    name, u = _scalar(q)
+    (x,) = X
+    return {name: _with_time({"convection": u * sp.diff(u, x), "viscous": -par["nu"] * sp.diff(u, x, 2)}, u, t)}
+
+
+def _navier_stokes_terms(q, X, t, par):
+    u, v, p = q["u"], q["v"], q["p"]
+    x, y = X
+    out = {}
+    for name, c, xi in (("u", u, x), ("v", v, y)):
+        out[name] = _with_time({"convection": u * sp.diff(c, x) + v * sp.diff(c, y),
+                                "pressure": sp.diff(p, xi) / par["rho"],
+                                "viscous": -par["nu"] * (sp.diff(c, x, 2) + sp.diff(c, y, 2))}, c, t)
+    out["p"] = {"continuity_x": sp.diff(u, x), "continuity_y": sp.diff(v, y)}
+    return out
+
+
+_TERM_SPLITS = {"diffusion": _diffusion_terms, "poisson": _diffusion_terms,
+                "advection_diffusion": _advection_diffusion_terms, "burgers": _burgers_terms,
+                "navier_stokes": _navier_stokes_terms}

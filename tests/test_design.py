@@ -29,3 +29,22 @@ def test_bad_bounds_name_the_file_line_and_entry(line, message):
     with pytest.raises(ProblemError) as err:
         problem_from_text(_HEAD + line + "\n", "bad.toml")
     assert "bad.toml, line 6, [bounds]" in str(err.value) and message in str(err.value)
+
+
+@pytest.mark.parametrize("name", ["diffusion", "poisson", "advection_diffusion", "burgers", "navier_stokes"])
+@pytest.mark.parametrize("transient", [False, True])
+def test_operator_terms_add_up_to_the_residuals(name, transient):
+    # the split must lose nothing: sum of terms == residual, symbolically  # common practice
+    import sympy as sp
+    from mmsverify.operators import get_operator
+    op = get_operator(name)
+    x, y, t = sp.symbols("x y t")
+    X = (x,) if name == "burgers" else (x, y)
+    q = {f: sp.Function(f)(*X, t) for f in (op.fields or ("u",))}
+    par = {k: sp.Function(k)(*X, t) for k in op.parameters}     # coefficients may vary
+    tt = t if transient else None
+    res, terms = op.residuals(q, X, tt, par), op.terms(q, X, tt, par)
+    assert set(res) == set(terms)
+    for eq in res:
+        assert sp.simplify(res[eq] - sp.Add(*terms[eq].values())) == 0
+        assert ("time" in terms[eq]) == (transient and not (name == "navier_stokes" and eq == "p"))
