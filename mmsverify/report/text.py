@@ -3,6 +3,7 @@
 import numpy as np
 
 from ..norms import NORMS
+from ._common import outcome
 
 __all__ = ["format_study", "CAUTION"]
 
@@ -17,7 +18,7 @@ def _num(x, fmt="{:.3e}"):
 def format_study(result):
     """The study as a text table: verdict first, then levels, errors and orders."""
     lines = []
-    overall = "PASS" if result.passed else "FAIL"
+    overall = outcome(result).upper()
     lines.append(f"{overall}  {result.problem}  solved by  {result.solver}")
     lines.append(f"  formal order {result.formal_order:g} ({result.mode} refinement), tolerance {result.tolerance:g}")
     for v in result.verdicts:
