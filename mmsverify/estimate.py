@@ -716,7 +716,8 @@ def plan(h, values, times, target, *, kind="error", measure="error", cells=None,
     Parameters
     ----------
     h : array_like or None
-        Grid sizes, coarse to fine (None when ``cells`` with ``dim`` are given).
+        Grid sizes, coarse to fine (None when ``cells`` with ``dim`` are
+        given; with both, ``h`` models the error and ``cells`` the run time).
     values : array_like
         Error norms (``kind="error"``, e.g. from a manufactured solution) or
         values of a quantity (``kind="solution"``).
@@ -767,7 +768,8 @@ def plan(h, values, times, target, *, kind="error", measure="error", cells=None,
     if not (isinstance(target, (int, float)) and math.isfinite(target) and target > 0):
         raise AnalysisError(f"target must be a positive number, got {target!r}")
     v = np.asarray(values, dtype=float)
-    hs, v = _as_levels(_sizes(h, cells, dim, volume, len(v)), v, "values", need=2)
+    sizes = h if (h is not None and cells is not None) else _sizes(h, cells, dim, volume, len(v))
+    hs, v = _as_levels(sizes, v, "values", need=2)
     t = np.asarray(times, dtype=float)
     if t.shape != v.shape or not np.all(np.isfinite(t)) or np.any(t <= 0):
         raise AnalysisError(f"times must be positive, one per level ({len(v)}), got {np.atleast_1d(t).tolist()}")
@@ -814,6 +816,8 @@ def plan(h, values, times, target, *, kind="error", measure="error", cells=None,
     tail = slice(max(0, n - 3), n)
     if cells is not None:
         N = np.asarray(cells, dtype=float)
+        if N.shape != v.shape or not np.all(N > 0):
+            raise AnalysisError(f"cells must be positive, one per level ({n}), got {np.atleast_1d(N).tolist()}")
         model = "cells"
     elif dim is not None:
         N = (1.0 if volume is None else volume) / hs ** dim
