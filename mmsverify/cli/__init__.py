@@ -33,6 +33,10 @@ def build_parser():
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name in _COMMANDS:
         importlib.import_module(f"{__name__}.{name}").register(sub)
+    from ..progress import add_verbosity_options
+    add_verbosity_options(parser)
+    for command in sub.choices.values():
+        add_verbosity_options(command, sub=True)
     return parser
 
 
@@ -43,6 +47,8 @@ def main(argv=None):
     if not getattr(args, "func", None):
         parser.print_help()
         return EXIT_INPUT
+    from ..progress import configure_logging, verbosity
+    configure_logging(verbosity(args))
     try:
         return int(args.func(args) or 0)
     except MMSError as exc:
