@@ -428,8 +428,12 @@ def eca_hoekstra(h, phi, p_max=8.0):
     >>> round(res.p, 6), round(res.phi0, 9), res.safety_factor
     (1.5, 2.0, 1.25)
     """
-    # from memory: branch conditions, weights, sigma and the safety factors follow
-    # Eca & Hoekstra (2014) as recalled; the paper itself could not be checked here.
+    # The paper itself could not be read here. Cross-checked against an independent
+    # open-source port of the procedure: the weights (1/h_i)/sum(1/h_j), the data range
+    # parameter, the rule Fs = 1.25 iff 0.5 <= p < 2.1 and sigma < D, both U formulas,
+    # and the p < 0.5 fallback to the smallest-sigma of p = 1, p = 2 and h + h^2.
+    # from memory: the normalisation of sigma (n_g - n_params), the p >= 2 branch,
+    # treating non-monotone data as anomalous, and requiring four or more levels.
     h, phi = _as_levels(h, phi, "phi", need=4)
     n = len(h)
     d = np.diff(phi)

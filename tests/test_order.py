@@ -206,8 +206,10 @@ def test_asymptotic_check_bad_input():
 
 
 # ---------------------------------------------------------------- Eca & Hoekstra (2014) least squares
-# from memory: the procedure's branches and safety factors follow Eca & Hoekstra,
-# J. Comput. Phys. 262 (2014) 104-130, as recalled; the paper was not checked.
+# Eca & Hoekstra, J. Comput. Phys. 262 (2014) 104-130. The paper was not read here;
+# the Fs rule (1.25 iff 0.5 <= p < 2.1 and sigma < data range, else 3) and the p < 0.5
+# fallback fits were cross-checked against an independent port of the procedure.
+# from memory: the p >= 2 branch, the anomalous (non-monotone) branch, four levels minimum.
 
 HE = np.array([1.0, 0.8, 0.6, 0.5, 0.4, 0.3])
 
