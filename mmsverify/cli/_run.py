@@ -27,10 +27,10 @@ def exit_code(result):
     return EXIT_INCONCLUSIVE
 
 
-def study_from_args(args, problem, solver):
+def study_from_args(args, problem, solver, progress=None):
     return run_study(problem, solver, levels=args.levels, base_cells=args.base_cells, ratio=args.ratio,
                      mode=args.mode, base_steps=args.base_steps, tolerance=args.tolerance,
-                     formal_order=args.formal_order)
+                     formal_order=args.formal_order, progress=progress)
 
 
 def write_json(result, path):
@@ -46,7 +46,8 @@ def _run(args):
         print("mmsverify run: name a solver: a bundled one (see `mmsverify list`) or module:function",
               file=sys.stderr)
         return 2
-    result = study_from_args(args, args.problem, args.solver)
+    from ..progress import progress_for
+    result = study_from_args(args, args.problem, args.solver, progress_for(args, label=f"{args.problem} / {args.solver}"))
     print(result)
     if args.json:
         write_json(result, args.json)
