@@ -113,8 +113,13 @@ def add_verbosity_options(parser, sub=False):
 
     With ``sub=True`` (a command's sub-parser) the defaults are suppressed,
     so ``mmsverify --quiet run ...`` and ``mmsverify run ... --quiet`` both work.
+    Nested sub-parsers (``baseline check``) get them too.
     """
-    taken = {s for a in parser._actions for s in a.option_strings}  # argparse keeps no public list
+    for action in parser._actions:  # argparse keeps no public list of actions
+        if isinstance(action, argparse._SubParsersAction):
+            for child in action.choices.values():
+                add_verbosity_options(child, sub=True)
+    taken = {s for a in parser._actions for s in a.option_strings}
     if taken & {"--verbose", "--quiet"}:
         return
     group = parser.add_mutually_exclusive_group()

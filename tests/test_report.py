@@ -262,3 +262,19 @@ def test_text_report_names_inconclusive_outcome(good):
     flat = dataclasses.replace(good, verdicts=tuple(dataclasses.replace(v, status="inconclusive")
                                                     for v in good.verdicts))
     assert format_study(flat).startswith("INCONCLUSIVE")
+
+
+def test_report_command_runs_and_redraws_from_json(tmp_path, capsys):
+    from mmsverify.cli import main
+    out = tmp_path / "rep"
+    assert main(["report", "plate-poisson", "poisson2d-neumann1", "--levels", "3", "-o", str(out), "--quiet"]) == 1
+    assert capsys.readouterr().out.startswith("FAIL: 3 of 3 checks miss the formal order 2")
+    stem = "plate-poisson_poisson2d-neumann1"
+    assert sorted(p.name for p in out.iterdir()) == sorted([f"{stem}.{s}" for s in ("csv", "html", "json", "md")]
+                                                           + [f"{stem}_figures"])
+    assert (out / f"{stem}_figures" / "map.png").is_file()
+    again = tmp_path / "again"
+    assert main(["report", "--from", str(out / f"{stem}.json"), "-o", str(again), "--formats", "md", "--quiet"]) == 1
+    assert sorted(p.name for p in (again / f"{stem}_figures").iterdir()) == ["cost.png", "error.png", "order.png"]
+    assert main(["report", "plate-poisson", "poisson2d", "--formats", "pdf"]) == 2
+    assert "unknown format(s) pdf" in capsys.readouterr().err

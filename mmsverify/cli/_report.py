@@ -1,0 +1,76 @@
+"""``mmsverify report``: a study as Markdown, HTML, JSON and CSV files with figures."""
+
+import sys
+
+from ..progress import QUIET, progress_for, verbosity
+from ..report import FORMATS, write_reports
+from ..report._common import headline, outcome
+from . import EXIT_INPUT
+from ._run import add_study_options, exit_code, study_from_args
+
+
+def _formats(text):
+    chosen = [f.strip().lower() for f in text.split(",") if f.strip()]
+    unknown = [f for f in chosen if f not in FORMATS]
+    if unknown or not chosen:
+        raise ValueError(f"unknown format(s) {', '.join(unknown) or '(none)'}; choose from {', '.join(FORMATS)}")
+    return chosen
+
+
+def _report(args):
+    try:
+        formats = _formats(args.formats)
+    except ValueError as exc:
+        print(f"mmsverify report: {exc}", file=sys.stderr)
+        return EXIT_INPUT
+    if args.source:
+        if args.problem or args.solver:
+            print("mmsverify report: give either --from FILE or PROBLEM SOLVER, not both", file=sys.stderr)
+            return EXIT_INPUT
+        from ..report.files import read_json
+        result = read_json(args.source)
+        want_map = args.map
+    else:
+        if not (args.problem and args.solver):
+            print("mmsverify report: name a PROBLEM and a SOLVER (or --from a study JSON file)", file=sys.stderr)
+            return EXIT_INPUT
+        result = study_from_args(args, args.problem, args.solver,
+                                 progress_for(args, label=f"{args.problem} / {args.solver}"))
+        want_map = not args.no_map
+    pointwise = None
+    if want_map and {"md", "html"} & set(formats):
+        from ..report.pointwise import finest_error
+        pointwise = finest_error(result, solver=args.solver or None, problem=args.problem or None)
+    written = write_reports(result, args.output, formats, pointwise, stem=args.name)
+    if verbosity(args) == QUIET:
+        print(f"{outcome(result).upper()}: {headline(result)}")
+    else:
+        print(result)
+        print()
+    if verbosity(args) != QUIET:
+        for path in written.values():
+            print(f"wrote {path}")
+    return exit_code(result)
+
+
+def register(sub):
+    p = sub.add_parser("report", help="write a study as Markdown, HTML, JSON and CSV with figures",
+                       description="Run SOLVER on PROBLEM (or read a study JSON written earlier) and write the "
+                                   "reports: each states the verdict, then the evidence (tables, figures of "
+                                   "error and order against grid size, run time and where the error lives), "
+                                   "then the cautions. The exit code is that of `mmsverify run`.")
+    p.add_argument("problem", nargs="?", help="problem file (.toml) or bundled problem name")
+    p.add_argument("solver", nargs="?", help="bundled solver name or module:function")
+    add_study_options(p)
+    p.add_argument("--from", dest="source", metavar="STUDY_JSON",
+                   help="draw the reports from a study JSON written by this command instead of running")
+    p.add_argument("-o", "--output", default="mmsverify-report", metavar="DIR",
+                   help="folder for the files (default ./mmsverify-report)")
+    p.add_argument("--formats", default=",".join(FORMATS),
+                   help=f"comma-separated subset of {','.join(FORMATS)} (default all)")
+    p.add_argument("--name", help="file name stem (default <problem>_<solver>)")
+    p.add_argument("--no-map", action="store_true",
+                   help="skip the pointwise error map (saves one extra solver run on the finest level)")
+    p.add_argument("--map", action="store_true",
+                   help="with --from: rerun the finest level to draw the error map (needs the solver)")
+    p.set_defaults(func=_report)

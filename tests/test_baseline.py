@@ -1,0 +1,169 @@
+"""Regression mode: baselines are saved, read back, and checks catch regressions."""
+
+import dataclasses
+import json
+import shutil
+
+import numpy as np
+import pytest
+
+from mmsverify import Solution, run_study
+from mmsverify.baseline import (Baseline, baseline_from_study, check_baseline, compare, load_baseline,
+                                save_baseline)
+from mmsverify.cli import main
+from mmsverify.errors import MMSError, ProblemError
+from mmsverify.problem import PROBLEM_DIR
+from solvers_demo.fd import poisson
+
+
+@pytest.fixture(scope="module")
+def good():
+    return run_study("plate-poisson", "poisson2d", levels=3)
+
+
+def _scaled(result, factor):
+    """The same study with every error multiplied by ``factor`` (orders unchanged)."""
+    levels = tuple(dataclasses.replace(lv, errors={f: {n: e * factor for n, e in d.items()}
+                                                   for f, d in lv.errors.items()}) for lv in result.levels)
+    return dataclasses.replace(result, levels=levels)
+
+
+def test_cli_check_passes_on_correct_solver_and_catches_seeded_mistake(tmp_path, capsys):
+    base = tmp_path / "ci" / "plate.json"
+    assert main(["baseline", "save", "plate-poisson", "poisson2d", "-o", str(base), "--levels", "3", "--quiet"]) == 0
+    capsys.readouterr()
+    assert main(["baseline", "check", str(base)]) == 0
+    assert capsys.readouterr().out.startswith("NO REGRESSION")
+    # the seeded mistake: first-order differences on the Neumann side (solvers_demo/fd/poisson.py)
+    assert main(["baseline", "check", str(base), "poisson2d-neumann1"]) == 1
+    out = capsys.readouterr().out
+    assert out.startswith("REGRESSION  plate-poisson: solver poisson2d-neumann1 against the baseline recorded "
+                          "with poisson2d")
+    assert "u L2: observed order 0.9" in out and "is below 1.9 (formal 2 - tolerance 0.1)" in out
+    assert "record a new baseline" in out
+
+
+def test_cli_check_reports_bad_input(tmp_path, capsys):
+    assert main(["baseline", "check", str(tmp_path / "missing.json")]) == 2
+    assert "no such baseline file" in capsys.readouterr().err
+    (tmp_path / "study.json").write_text('{"format": "mmsverify.study"}')
+    assert main(["baseline", "check", str(tmp_path / "study.json")]) == 2
+    assert "not an mmsverify baseline" in capsys.readouterr().err
+
+
+def test_file_round_trip_and_portable_problem_path(good, tmp_path):
+    saved = save_baseline(good, tmp_path / "b.json", error_factor=1.5)
+    back = load_baseline(tmp_path / "b.json")
+    assert back.source == ""  # a bundled problem is recorded by name only
+    assert dataclasses.replace(back, source=saved.source) == saved
+    assert back.grids == tuple(lv.grid for lv in good.levels)
+    assert back.errors["u"]["L2"] == [lv.errors["u"]["L2"] for lv in good.levels]
+    # a problem file of the user's own is recorded relative to the baseline, so the pair can move together
+    proj = tmp_path / "proj"
+    (proj / "ci").mkdir(parents=True)
+    shutil.copy(PROBLEM_DIR / "plate-poisson.toml", proj / "plate.toml")
+    save_baseline(run_study(proj / "plate.toml", "poisson2d", levels=2), proj / "ci" / "b.json")
+    assert json.loads((proj / "ci" / "b.json").read_text())["problem"]["source"] == "../plate.toml"
+    moved = shutil.copytree(proj, tmp_path / "elsewhere")
+    assert check_baseline(moved / "ci" / "b.json").passed
+
+
+def test_error_rule_uses_the_stated_factor(good):
+    base = baseline_from_study(good, error_factor=2.0)
+    worse = compare(base, _scaled(good, 3.0))
+    assert not worse.passed
+    assert {f.kind for f in worse.findings} == {"error"}
+    assert len(worse.findings) == 3 * 3  # every level, every norm
+    assert "3.0 x the baseline's" in worse.findings[0].message and "allowed 2 x" in worse.findings[0].message
+    assert compare(base, _scaled(good, 3.0), error_factor=4.0).passed
+    assert compare(base, _scaled(good, 1.9)).passed
+
+
+def test_note_when_errors_fell(good):
+    check = compare(baseline_from_study(good), _scaled(good, 1 / 3))
+    assert check.passed and "save a new baseline" in check.notes[0]
+
+
+def test_order_rule_is_formal_minus_tolerance(good):
+    # common practice: the observed order must reach the formal order within the tolerance
+    base = baseline_from_study(good)
+    low = dataclasses.replace(good, verdicts=tuple(dataclasses.replace(v, observed=1.85) for v in good.verdicts))
+    check = compare(base, low)
+    assert [f.kind for f in check.findings] == ["order"] * 3
+    assert "observed order 1.85 is below 1.9" in check.findings[0].message
+    assert compare(base, low, tolerance=0.2).passed
+    assert compare(base, low, norms=["L2"]).findings[0].norm == "L2"
+    with pytest.raises(MMSError, match="unknown norm"):
+        compare(base, low, norms=["H1"])
+
+
+def _interior_only(case):
+    """Another implementation's output: the same scheme reported on interior nodes only."""
+    sol = poisson.solve(case)
+    inner = (slice(1, -1), slice(1, -1))
+    return Solution(values={"u": sol.values["u"][inner]},
+                    points=tuple(np.broadcast_to(p, sol.values["u"].shape)[inner] for p in sol.points),
+                    weights=np.asarray(sol.weights)[inner])
+
+
+def test_baseline_is_solver_agnostic(good):
+    check = check_baseline(baseline_from_study(good), _interior_only)
+    assert check.result.solver.endswith("_interior_only")
+    assert check.passed, str(check)
+    assert any(e0 != e1 for _, _, _, e0, e1 in check.comparisons)  # really another run, errors differ
+
+
+def _crash_on_fine(case):
+    if case.grid.cells[0] > 16:
+        raise MemoryError("pretend the finest grid does not fit")
+    return poisson.solve(case)
+
+
+def test_failed_level_fails_the_check(good):
+    check = check_baseline(baseline_from_study(good), _crash_on_fine)
+    assert not check.passed
+    assert check.findings[0].kind == "level" and check.findings[0].level == 2
+    assert "MemoryError" in check.findings[0].message
+
+
+def test_changed_problem_is_refused(good, tmp_path):
+    base = baseline_from_study(run_study(PROBLEM_DIR / "plate-poisson.toml", "poisson2d", levels=2))
+    edited = tmp_path / "plate.toml"
+    edited.write_text((PROBLEM_DIR / "plate-poisson.toml").read_text().replace("a = 0.7", "a = 0.75"))
+    with pytest.raises(ProblemError, match="changed since the baseline was saved"):
+        check_baseline(base, problem=edited)
+    other = run_study(edited, "poisson2d", levels=2)
+    assert compare(base, other).findings[0].kind == "problem"
+
+
+def test_other_grids_are_a_finding(good):
+    base = baseline_from_study(good)
+    check = compare(base, run_study("plate-poisson", "poisson2d", levels=2))
+    assert [f.kind for f in check.findings] == ["grid"]
+
+
+def test_refuses_to_record_a_failing_study(tmp_path):
+    bad = run_study("plate-poisson", "poisson2d-neumann1", levels=3)
+    with pytest.raises(MMSError, match="did not pass"):
+        baseline_from_study(bad)
+    assert isinstance(baseline_from_study(bad, allow_failing=True), Baseline)
+    with pytest.raises(MMSError, match="must exceed 1"):
+        baseline_from_study(bad, error_factor=0.5, allow_failing=True)
+
+
+def test_damaged_file_is_named(tmp_path, good):
+    path = tmp_path / "b.json"
+    save_baseline(good, path)
+    data = json.loads(path.read_text())
+    del data["grids"][0]["cells"]
+    path.write_text(json.dumps(data))
+    with pytest.raises(MMSError, match=r"b\.json: damaged baseline"):
+        load_baseline(path)
+
+
+def test_every_key_of_the_file_is_documented(good):
+    from pathlib import Path
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "json-schema.md").read_text()
+    section = doc[doc.index("## Baseline"):]
+    missing = [k for k in baseline_from_study(good).to_data() if f"`{k}`" not in section]
+    assert not missing, f"baseline keys not documented in docs/json-schema.md: {missing}"
