@@ -30,7 +30,7 @@ table{border-collapse:collapse;margin:.6rem 0;font-size:.92rem}
 th,td{border:1px solid #d4d4d4;padding:.25rem .55rem;text-align:left;vertical-align:top}
 th{background:#f2f2f2}td.num{text-align:right;font-variant-numeric:tabular-nums;font-family:ui-monospace,monospace}
 tr.failed td{background:#fbe6da}
-figure{margin:1.2rem 0}figure img{max-width:100%;height:auto;border:1px solid #e4e4e4}
+figure{margin:1.2rem 0}figure img{width:min(100%,46rem);height:auto;border:1px solid #e4e4e4}
 figcaption{font-size:.9rem;color:#444;max-width:50rem}
 pre{background:#f6f6f6;padding:.6rem;overflow-x:auto;font-size:.85rem}
 .cautions li{margin:.3rem 0}footer{margin-top:2rem;font-size:.8rem;color:#666}
