@@ -48,3 +48,142 @@ def test_operator_terms_add_up_to_the_residuals(name, transient):
     for eq in res:
         assert sp.simplify(res[eq] - sp.Add(*terms[eq].values())) == 0
         assert ("time" in terms[eq]) == (transient and not (name == "navier_stokes" and eq == "p"))
+
+
+# -- designs that must be flagged ---------------------------------------------------------
+import numpy as np
+
+from mmsverify.derive import derive
+from mmsverify.design import (admissibility_check, audit, design_warnings, term_sizes, truncation_check)
+from mmsverify.problem import bundled_problems, load_problem
+
+DATA = __import__("pathlib").Path(__file__).parent / "data"
+
+
+def _five_point_residual(problem, n=8):
+    """max |(-lap_h u_exact) - f| on interior nodes of an n x n grid of the unit square."""
+    mms = derive(problem)
+    h = 1.0 / n
+    x, y = np.meshgrid(np.linspace(0, 1, n + 1), np.linspace(0, 1, n + 1), indexing="ij")
+    u = mms.exact("u", x, y)
+    lap = (u[2:, 1:-1] + u[:-2, 1:-1] + u[1:-1, 2:] + u[1:-1, :-2] - 4 * u[1:-1, 1:-1]) / h**2
+    return float(np.max(np.abs(-lap - mms.source("u", x[1:-1, 1:-1], y[1:-1, 1:-1]))))
+
+
+def test_quadratic_field_for_second_order_laplacian_is_flagged_exact():
+    # The five-point Laplacian has truncation error (h**2/12)(u_xxxx + u_yyyy) + O(h**4)
+    # (LeVeque 2007, Finite Difference Methods for ODEs and PDEs, sec. 2.5 and 3.2; section
+    # numbers from memory): zero for a quadratic, so order 2 cannot be observed.
+    p = load_problem(DATA / "quadratic-poisson.toml")
+    report = truncation_check(p)
+    assert report.space_status == "exact" and not report.ok
+    assert {i.label for i in report.items if i.vanishes} == {"d4u/dx4", "d4u/dy4"}
+    assert "cannot be observed" in report.warnings[0]
+    # ... and it really is exact: the discrete operator reproduces the source to round-off,
+    assert _five_point_residual(p) < 1e-10
+    # while the bundled trigonometric-exponential design leaves an O(h**2) residual and passes.
+    good = load_problem("plate-poisson")
+    assert _five_point_residual(good) > 1e-3 and truncation_check(good).ok
+
+
+def test_cubic_in_one_direction_is_flagged_partially():
+    p = problem_from_text('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "sin(2*x) + y**3"\n')
+    report = truncation_check(p)
+    assert report.space_status == "partial"
+    assert [w.split(":")[0] for w in report.warnings] == ["d4u/dy4 = 0"]
+    assert truncation_check(p, formal_order=1).ok         # a first-order scheme needs u_yyy only
+
+
+def test_time_order_is_checked_against_the_time_dependence():
+    text = '[domain]\nx = [0, 1]\nt = [0, 1]\n[fields]\nu = "sin(2*x)*(1 + t)"\n[order]\ntime = 1\n'
+    report = truncation_check(problem_from_text(text))
+    assert report.time_status == "exact" and report.space_status == "ok"
+    assert "time integrator of order 1" in report.warnings[0]
+    assert truncation_check(problem_from_text(text.replace("(1 + t)", "exp(-t)"))).ok
+
+
+def test_field_that_switches_off_convection_is_flagged_with_the_reason():
+    a = audit(DATA / "parallel-flow.toml", starts=0)
+    sizes = {(t.equation, t.term): t for t in a.terms.terms}
+    conv = sizes[("u", "convection")]
+    assert conv.status == "zero" and sizes[("u", "viscous")].ok and sizes[("u", "pressure")].ok
+    assert "v is 0" in conv.reasons and "du/dx = 0 (u does not vary in x)" in conv.reasons
+    assert any(w.startswith("equation u, term convection: vanishes everywhere") for w in a.warnings)
+    assert any(w.startswith("equation v: every term vanishes") for w in a.warnings)
+
+
+def test_advection_switched_off_by_the_field_and_by_the_coefficient():
+    text = ('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nc = "1 + sin(2*y)"\n'
+            '[operator]\nkind = "advection_diffusion"\nk = 0.1\nax = 1.0\nay = 0.0\n')
+    report = term_sizes(problem_from_text(text))
+    adv = next(t for t in report.terms if t.term == "advection")
+    assert adv.status == "zero"
+    assert set(adv.reasons) == {"dc/dx = 0 (c does not vary in x)", "coefficient ay is 0"}
+    fixed = term_sizes(problem_from_text(text.replace('"1 + sin(2*y)"', '"1 + sin(2*y)*cos(x)"')
+                                         .replace("ay = 0.0", "ay = 0.5")))
+    assert fixed.ok
+
+
+def test_small_term_is_flagged_and_the_threshold_is_respected():
+    report = term_sizes(DATA / "weak-diffusion.toml")
+    diff = next(t for t in report.terms if t.term == "diffusion")
+    assert diff.status == "small" and 0.003 < diff.relative < 0.004
+    assert "Raise it about" in diff.hint and "coefficient(s) k" in diff.hint
+    assert term_sizes(DATA / "weak-diffusion.toml", threshold=0.001).ok
+
+
+def test_custom_operator_terms_are_the_terms_written_in_the_file():
+    report = term_sizes("reactor-custom")
+    assert [t.term for t in report.terms] == ["-d(k*d(u, x), x)", "r*u**3"] and report.ok
+
+
+def test_density_that_goes_negative_late_in_time_is_flagged():
+    report = admissibility_check(DATA / "negative-density.toml")
+    rho = next(c for c in report.checks if c.name == "rho")
+    # min over x of 1 + 0.8 sin(.)(1 + 0.6 sin(1.5 t)) is 1 - 0.8 (1 + 0.6 sin 1.5) at t = 1
+    assert not rho.ok and rho.low == pytest.approx(1 - 0.8 * (1 + 0.6 * np.sin(1.5)), abs=1e-6)
+    assert rho.at_low[1] == pytest.approx(1.0)
+    mach = next(c for c in report.checks if c.name == "Mach")
+    assert mach.ok and mach.high == pytest.approx(0.7 / np.sqrt(2.0), rel=1e-6)
+    assert report.warnings[0].startswith("rho reaches -0.27") and "t=1 " in report.warnings[0]
+
+
+def test_optimisation_finds_a_violation_between_sample_points():
+    sampled = admissibility_check(DATA / "narrow-dip.toml", starts=0)
+    assert sampled.ok                                        # 65 samples miss the dip
+    found = admissibility_check(DATA / "narrow-dip.toml")
+    t = next(c for c in found.checks if c.name == "T")
+    assert not t.ok and t.low < -0.08 and t.sampled_low > 0.4
+    assert t.at_low[0] == pytest.approx(0.4937, abs=2e-3)
+
+
+def test_operator_coefficients_must_be_positive_without_any_bounds_table():
+    text = '[domain]\nx = [0, 1]\n[fields]\nu = "sin(2*x)"\n[operator]\nkind = "diffusion"\nk = "1 - 2*x"\n'
+    report = admissibility_check(problem_from_text(text))
+    k = next(c for c in report.checks if c.name == "k")
+    assert k.implied and not k.ok and k.low == pytest.approx(-1.0)
+    assert "required by the operator" in report.warnings[0]
+
+
+# -- designs that must pass ---------------------------------------------------------------
+@pytest.mark.parametrize("name", bundled_problems())
+def test_bundled_problems_pass_every_design_check(name):
+    assert design_warnings(load_problem(name)) == []
+
+
+def test_design_warnings_are_prefixed_and_never_raise(monkeypatch):
+    warnings = design_warnings(load_problem(DATA / "quadratic-poisson.toml"))
+    assert len(warnings) == 1 and warnings[0].startswith("design: every leading truncation-error derivative")
+    import mmsverify.design as design
+
+    def broken(problem):
+        raise RuntimeError("boom")
+
+    monkeypatch.setattr(design, "model_from_problem", broken)
+    assert design_warnings(load_problem("plate-poisson")) == ["design checks could not run: RuntimeError: boom"]
+
+
+def test_audit_text_lists_every_section():
+    text = str(audit(DATA / "parallel-flow.toml", starts=0))
+    assert text.startswith("design has ") and "term sizes of parallel-flow" in text
+    assert "leading truncation-error derivatives" in text and "physical admissibility" in text
