@@ -3,19 +3,28 @@
 Formal orders: node-centred finite differences for -div(k grad u) are second
 order with a conservative stencil, first order with a one-sided two-point
 Neumann row and second order with the three-point one (LeVeque 2007, Finite
-Difference Methods for ODEs and PDEs, sections 2.12-2.15 and 3.2).
+Difference Methods for ODEs and PDEs, sections 2.12-2.15 and 3.2); implicit
+Euler is first and Crank-Nicolson second order in time (LeVeque 2007,
+sections 9.1-9.3); first-order upwind, second-order central and upwind-biased
+convection (LeVeque 2007, section 10.4; Ferziger & Peric 2002, Computational
+Methods for Fluid Dynamics, section 3.4).
 """
 
 import numpy as np
 import pytest
 
 from mmsverify import Case, Grid, SolverError, derive, run_study
+from mmsverify import problem_from_text
+from solvers_demo.fd.advection import FDAdvectionDiffusion
+from solvers_demo.fd.burgers import FDBurgers
 from solvers_demo.fd.diffusion import FDDiffusion
+from solvers_demo.fd.heat import FDHeat
 from solvers_demo.fd.poisson import solve, solve_first_order_neumann
+from solvers_demo.studies import verify
 
 
 def _study(problem, solver, levels=4, **kw):
-    return run_study(problem, solver, levels=levels, formal_order=solver.formal_order, **kw)
+    return verify(solver, problem, levels=levels, **kw)
 
 
 def _assert_confirmed(result):
@@ -83,3 +92,53 @@ def test_case_options_configure_the_solver():
     case = Case(Grid(0, (0.0, 0.0), (1.0, 1.0), (8, 8)), derive("plate-poisson"), {"neumann": "one-sided"})
     sol = FDDiffusion()(case)
     assert sol.info["solver"] == "FDDiffusion(neumann='one-sided')" and sol.info["formal_order"] == 1
+
+
+@pytest.mark.parametrize("scheme", ["implicit-euler", "crank-nicolson"])
+def test_fd_heat_combined_space_time(scheme):
+    # LeVeque 2007, sections 9.1-9.3: steps tied to h**(2/p_time), so both errors fall as h**2
+    _assert_confirmed(_study("slab-heat", FDHeat(scheme=scheme)))
+
+
+@pytest.mark.parametrize("scheme,order", [("implicit-euler", 1), ("crank-nicolson", 2)])
+def test_fd_heat_time_order(scheme, order):
+    # LeVeque 2007, section 9.3: implicit Euler first order, Crank-Nicolson second order in time
+    result = _study("slab-heat", FDHeat(scheme=scheme), mode="time", base_cells=4000)
+    _assert_confirmed(result)
+    assert result.formal_order == order
+
+
+def test_fd_heat_one_sided_neumann_is_first_order():
+    p = problem_from_text('[domain]\nx = [0, 1]\nt = [0, 0.3]\n[fields]\nT = "exp(-t)*cos(2*x) + x"\n'
+                          '[operator]\nkind = "diffusion"\nk = "1 + x/2"\n[boundaries]\nx_max = "neumann"\n'
+                          '[order]\nspace = 2\ntime = 2\n')
+    _assert_confirmed(_study(p, FDHeat(), base_cells=16))
+    # LeVeque 2007, section 2.12: the one-sided two-point row is first order in space
+    _assert_confirmed(_study(p, FDHeat(neumann="one-sided"), base_cells=16, mode="space", base_steps=64))
+
+
+@pytest.mark.parametrize("scheme", ["implicit-euler", "crank-nicolson"])
+def test_fd_burgers_newton(scheme):
+    # central differences second order in space (LeVeque 2007, section 10.4); time order of the scheme
+    _assert_confirmed(_study("shock-burgers", FDBurgers(scheme=scheme), base_cells=16))
+
+
+def test_fd_burgers_steady():
+    p = problem_from_text('[domain]\nx = [0, 1]\n[fields]\nu = "1 + 0.5*sin(2*x) + tanh(3*(x - 0.5))"\n'
+                          '[operator]\nkind = "burgers"\nnu = 0.05\n')
+    _assert_confirmed(_study(p, FDBurgers(), base_cells=16))
+
+
+def test_wrong_jacobian_only_slows_newton():
+    case = Case(Grid(0, (-1.0,), (1.0,), (64,), t_start=0.0, t_end=0.4, steps=32), derive("shock-burgers"))
+    good, bad = FDBurgers()(case), FDBurgers(mistake="jacobian-entry")(case)
+    # Kelley 2003, Solving Nonlinear Equations with Newton's Method, ch. 1: an exact Jacobian converges
+    # quadratically (a few iterations), an inexact one only linearly
+    assert good.info["newton_per_step"] <= 4
+    assert bad.info["newton_iterations"] >= 1.5 * good.info["newton_iterations"]
+    assert np.max(np.abs(good.values["u"] - bad.values["u"])) < 1e-9  # same converged answer
+
+
+@pytest.mark.parametrize("convection,base", [("upwind", 16), ("central", 8), ("upwind2", 16)])
+def test_fd_advection_diffusion(convection, base):
+    _assert_confirmed(_study("river-advection", FDAdvectionDiffusion(convection=convection), base_cells=base))

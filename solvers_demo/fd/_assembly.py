@@ -80,7 +80,7 @@ def _face_slice(dim, axis, end):
     return tuple(index)
 
 
-def assemble_diffusion(case, t=None, neumann="flux", mistake="", coefficient="k"):
+def assemble_diffusion(case, t=None, neumann="flux", mistake="", coefficient="k", with_matrix=True):
     """Assemble the node system of ``-div(k grad u) = f`` on ``case.grid`` at time ``t``.
 
     Parameters
@@ -93,6 +93,9 @@ def assemble_diffusion(case, t=None, neumann="flux", mistake="", coefficient="k"
         One of :data:`MISTAKE_EFFECTS` or ``""``.
     coefficient : str or None
         Operator parameter used as ``k``; None for ``k = 1``.
+    with_matrix : bool
+        False skips the matrix (``K`` is None): a time stepper whose
+        coefficients do not change in time needs only new loads.
 
     Returns
     -------
@@ -128,37 +131,7 @@ def assemble_diffusion(case, t=None, neumann="flux", mistake="", coefficient="k"
         volume = volume * w
 
     n = int(np.prod(shape))
-    diagonal = np.zeros(n)
-    bands = {}
-    for a in range(dim):
-        ha = h[0] if mistake == "dy-uses-dx" else h[a]
-        area = np.ones(shape)
-        for b, w in enumerate(widths):
-            if b != a:
-                area = area * w
-        lo = _face_slice(dim, a, slice(None, -1))
-        hi = _face_slice(dim, a, slice(1, None))
-        mid = [p for p in pts]
-        mid[a] = 0.5 * (axes[a][1:] + axes[a][:-1]).reshape([-1 if b == a else 1 for b in range(dim)])
-        if mistake == "coefficient-shifted":
-            mid[a] = axes[a][:-1].reshape(mid[a].shape)
-        if mistake == "coefficient-nonconservative":
-            knode = k_at(*pts)
-            c_lo = np.broadcast_to(knode, shape)[lo] / ha
-            c_hi = np.broadcast_to(knode, shape)[hi] / ha
-        else:
-            c_lo = c_hi = np.broadcast_to(k_at(*mid) / ha, np.broadcast_shapes(area[lo].shape))
-        i_lo = index[lo].ravel()
-        a_lo, a_hi = (area[lo] * c_lo).ravel(), (area[hi] * c_hi).ravel()
-        stride = int(index.strides[a] // index.itemsize)
-        diagonal[i_lo] += a_lo          # each node is the low end of at most one face per axis
-        diagonal[i_lo + stride] += a_hi
-        up, down = np.zeros(n - stride), np.zeros(n - stride)
-        up[i_lo] = -a_lo                # entry (i, i + stride)
-        down[i_lo] = -a_hi              # entry (i + stride, i)
-        bands[stride] = up
-        bands[-stride] = down
-    K = sps.diags([diagonal] + list(bands.values()), [0] + list(bands), shape=(n, n), format="csr")
+    K = _matrix(shape, axes, pts, widths, h, index, k_at, mistake) if with_matrix else None
 
     src_pts = list(pts)
     if mistake == "source-shifted":
@@ -209,7 +182,7 @@ def assemble_diffusion(case, t=None, neumann="flux", mistake="", coefficient="k"
                     scale = kb / h[a]
                 algebraic.append((index[face].ravel(), [(index[s].ravel(), c) for s, c in coeffs],
                                   scale.ravel(), q.ravel()))
-    if algebraic:
+    if algebraic and K is not None:
         K = K.tolil()
         for bnodes, terms, scale, q in algebraic:
             for m, node in enumerate(bnodes):
@@ -217,13 +190,54 @@ def assemble_diffusion(case, t=None, neumann="flux", mistake="", coefficient="k"
                     continue
                 K.rows[node] = [int(idx[m]) for idx, _ in terms]
                 K.data[node] = [float(c * scale[m]) for _, c in terms]
-                load[node] = q[m]
-                mass[node] = 0.0
         K = K.tocsr()
+    for bnodes, terms, scale, q in algebraic:
+        keep = ~dirichlet.ravel()[bnodes]
+        load[bnodes[keep]] = q[keep]
+        mass[bnodes[keep]] = 0.0
     d = dirichlet.ravel()
-    K = sps.diags((~d).astype(float)) @ K
-    K.eliminate_zeros()
+    if K is not None:
+        K = sps.diags((~d).astype(float)) @ K
+        K.eliminate_zeros()
     load[d] = 0.0
     mass[d] = 0.0
     symmetric = not algebraic and mistake != "coefficient-nonconservative"
     return NodeSystem(K, load, mass, d, values.ravel(), symmetric, shape)
+
+
+def _matrix(shape, axes, pts, widths, h, index, k_at, mistake):
+    """Volume-form flux-difference matrix (before boundary rows are applied)."""
+    dim = len(shape)
+    n = int(np.prod(shape))
+    diagonal = np.zeros(n)
+    bands = {}
+    for a in range(dim):
+        ha = h[0] if mistake == "dy-uses-dx" else h[a]
+        area = np.ones(shape)
+        for b, w in enumerate(widths):
+            if b != a:
+                area = area * w
+        lo = _face_slice(dim, a, slice(None, -1))
+        hi = _face_slice(dim, a, slice(1, None))
+        mid = [p for p in pts]
+        mid[a] = 0.5 * (axes[a][1:] + axes[a][:-1]).reshape([-1 if b == a else 1 for b in range(dim)])
+        if mistake == "coefficient-shifted":
+            mid[a] = axes[a][:-1].reshape(mid[a].shape)
+        if mistake == "coefficient-nonconservative":
+            knode = k_at(*pts)
+            c_lo = np.broadcast_to(knode, shape)[lo] / ha
+            c_hi = np.broadcast_to(knode, shape)[hi] / ha
+        else:
+            c_lo = c_hi = np.broadcast_to(k_at(*mid) / ha, np.broadcast_shapes(area[lo].shape))
+        i_lo = index[lo].ravel()
+        a_lo, a_hi = (area[lo] * c_lo).ravel(), (area[hi] * c_hi).ravel()
+        stride = int(index.strides[a] // index.itemsize)
+        diagonal[i_lo] += a_lo          # each node is the low end of at most one face per axis
+        diagonal[i_lo + stride] += a_hi
+        up, down = np.zeros(n - stride), np.zeros(n - stride)
+        up[i_lo] = -a_lo                # entry (i, i + stride)
+        down[i_lo] = -a_hi              # entry (i + stride, i)
+        bands[stride] = up
+        bands[-stride] = down
+    K = sps.diags([diagonal] + list(bands.values()), [0] + list(bands), shape=(n, n), format="csr")
+    return K

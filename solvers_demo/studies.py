@@ -1,0 +1,39 @@
+"""Run a study of a demo solver against the orders the solver itself states.
+
+A problem file states the order of the scheme it was written for; a demo
+solver states its own (``formal_order`` in space, ``time_order`` for time
+stepping). :func:`verify` copies the solver's orders into the problem
+before calling :func:`mmsverify.run_study`, so a combined space-time study
+ties the time steps to the cells by the solver's own ratio of orders, and
+the verdict is judged against the order the solver claims.
+"""
+
+from dataclasses import replace
+
+from mmsverify import run_study
+from mmsverify.problem import get_problem
+
+__all__ = ["verify", "problem_for"]
+
+
+def problem_for(problem, solver):
+    """The problem with its formal orders replaced by the ones ``solver`` states."""
+    problem = get_problem(problem)
+    changes = {"space_order": solver.formal_order}
+    if problem.transient and getattr(solver, "time_order", None):
+        changes["time_order"] = solver.time_order
+    return replace(problem, **changes)
+
+
+def verify(solver, problem, **kwargs):
+    """:func:`mmsverify.run_study` of ``solver`` on ``problem`` judged against the solver's orders.
+
+    Keyword arguments go to ``run_study`` (levels, base_cells, mode, options, ...).
+
+    Examples
+    --------
+    >>> from solvers_demo.fd.diffusion import FDDiffusion
+    >>> verify(FDDiffusion(), "plate-poisson", levels=3).passed
+    True
+    """
+    return run_study(problem_for(problem, solver), solver, **kwargs)
