@@ -187,3 +187,44 @@ def test_audit_text_lists_every_section():
     text = str(audit(DATA / "parallel-flow.toml", starts=0))
     assert text.startswith("design has ") and "term sizes of parallel-flow" in text
     assert "leading truncation-error derivatives" in text and "physical admissibility" in text
+
+
+# -- balancing ------------------------------------------------------------------------------
+from mmsverify.balance import balance
+
+
+def _with_constants(text, values):
+    for k, v in values.items():
+        text = __import__("re").sub(rf"(?m)^{k} = .*$", f"{k} = {v!r}", text)
+    return text
+
+
+def test_balancing_lifts_a_weak_term_within_the_stated_iterations():
+    r = balance(DATA / "weak-diffusion.toml", iterations=40)
+    assert r.iterations <= 40 and r.tuned == ("A", "kw")
+    assert r.spread_before["c"] > 250 and r.spread_after["c"] < r.spread_before["c"] / 5
+    assert r.after["kw"] > r.before["kw"] and r.admissible_after and not r.warnings_after and r.improved
+    # the suggested constants, written back into the file, pass the term check
+    text = _with_constants((DATA / "weak-diffusion.toml").read_text(), r.after)
+    assert term_sizes(problem_from_text(text)).ok
+    assert "kw = " in r.constants_toml() and "40 iterations" in str(r)
+
+
+def test_balancing_restores_admissibility():
+    text = _with_constants((DATA / "weak-diffusion.toml").read_text(), {"A": 1.3, "kw": 5.0})
+    assert not admissibility_check(problem_from_text(text)).ok          # c = 1 + 1.3 sin sin < 0
+    r = balance(text, iterations=60)
+    assert not r.admissible_before and r.admissible_after
+    assert abs(r.after["A"]) < 1.0
+    assert admissibility_check(problem_from_text(_with_constants(text, r.after))).ok
+
+
+def test_balancing_only_tunes_what_it_is_told_and_refuses_unknown_constants():
+    r = balance(DATA / "weak-diffusion.toml", tune=["A"], iterations=10)
+    assert r.tuned == ("A",) and r.after["kw"] == r.before["kw"] and r.iterations <= 10
+    with pytest.raises(ProblemError, match=r"cannot tune \['nu'\]"):
+        balance(DATA / "weak-diffusion.toml", tune=["nu"])
+    with pytest.raises(ProblemError, match="iterations must be at least 1"):
+        balance(DATA / "weak-diffusion.toml", iterations=0)
+    with pytest.raises(ProblemError, match="cannot read the problem file"):
+        balance("no-such-problem.toml")
