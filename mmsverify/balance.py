@@ -12,8 +12,13 @@ stated number of ``iterations``.
 
 Objective: the mean over equations of the variance of ``log10`` of the RMS
 sizes of its terms, plus a penalty for bound violations on the samples, plus
-a small pull towards the original values. The suggested design is then
-checked like any other (:func:`mmsverify.design.audit` with optimisation).
+a penalty on fields too wavy for the coarsest grid of a study, plus a pull
+towards the original values. Waviness of a field in a direction is the ratio
+``R = rms(f_xx) / rms(f_x)`` (``k pi`` for ``sin(k pi x)``); a suggestion may
+not push ``R h`` above 1 (about six points per wavelength) on the coarsest
+grid spacing ``h`` (from ``[study] base_cells``, default 8 cells), unless the
+original design already did. The suggested design is then checked like any
+other (:func:`mmsverify.design.audit` with optimisation).
 """
 
 from dataclasses import dataclass, replace
@@ -23,7 +28,7 @@ import numpy as np
 import sympy as sp
 from scipy.optimize import minimize
 
-from ._designmodel import model_from_text, sample_points
+from ._designmodel import diff, model_from_text, sample_points
 from .design import SMALL_TERM, _admissibility, _term_sizes
 from .errors import ProblemError
 from .problem import PROBLEM_DIR
@@ -93,6 +98,13 @@ class BalanceResult:
         return "\n".join(lines)
 
 
+def first_study_cells(text):
+    """Cells per direction of the coarsest grid in a problem file's ``[study]`` (default 8)."""
+    import tomllib
+    cells = tomllib.loads(text).get("study", {}).get("base_cells", 8)
+    return float(min(cells) if isinstance(cells, list) else cells)
+
+
 def _default_tune(model):
     """Constants the fields use and no operator coefficient uses (those stay physical)."""
     in_fields = set().union(*(sp.sympify(e).free_symbols for e in model.fields.values()))
@@ -100,8 +112,8 @@ def _default_tune(model):
     return [str(c) for c in model.consts if c in in_fields and c not in in_operator]
 
 
-def balance(problem, tune=None, iterations=100, *, max_factor=10.0, threshold=SMALL_TERM, per_axis=None,
-            starts=6, seed=0):
+def balance(problem, tune=None, iterations=100, *, max_factor=10.0, base_cells=None, threshold=SMALL_TERM,
+            per_axis=None, starts=6, seed=0):
     """Suggest constants that balance the terms and keep the fields admissible.
 
     Parameters
@@ -116,6 +128,9 @@ def balance(problem, tune=None, iterations=100, *, max_factor=10.0, threshold=SM
         Most Nelder-Mead iterations to spend; the result states how many ran.
     max_factor : float
         Largest factor by which a non-zero constant may change.
+    base_cells : int, optional
+        Cells per direction of the coarsest grid the design must be resolved
+        on (default: the problem's ``[study] base_cells``, else 8).
     threshold, per_axis, starts, seed
         As for :func:`mmsverify.design.audit`, used to judge the result.
 
@@ -139,6 +154,19 @@ def balance(problem, tune=None, iterations=100, *, max_factor=10.0, threshold=SM
     term_fn = model.compile([t.expr for t in model.terms])
     bound_fn = model.compile([b.expr for b in model.bounds]) if model.bounds else None
     groups = list(model.equations().values())
+    cells = base_cells or first_study_cells(text)
+    wavy = [(diff(e, (x, 1)), diff(e, (x, 2)), (hi - lo) / cells)
+            for e in model.fields.values() for x, (lo, hi) in zip(model.coords, model.box)]
+    wavy_fn = model.compile([w for a, b, _ in wavy for w in (a, b)]) if wavy else None
+    spacing = np.array([h for _, _, h in wavy])
+
+    def waviness(vals):
+        d = wavy_fn(*pts, *vals)
+        first = np.array([np.sqrt(np.nanmean(v * v)) for v in d[0::2]])
+        second = np.array([np.sqrt(np.nanmean(v * v)) for v in d[1::2]])
+        return np.where(first > 0, second / np.maximum(first, 1e-300), 0.0) * spacing
+
+    limit = np.maximum(1.0, waviness(x0)) if wavy else None
     index = {t: i for i, t in enumerate(model.terms)}
     mult = x0 != 0
     span = np.log(float(max_factor))
@@ -163,11 +191,13 @@ def balance(problem, tune=None, iterations=100, *, max_factor=10.0, threshold=SM
             if not v.size:
                 continue
             scale = max(abs(b.lower or 0.0), abs(b.upper or 0.0), float(np.ptp(v)), 1e-12)
-            if b.lower is not None:
-                penalty += (max(0.0, b.lower - v.min() + (1e-6 * scale if b.strict else 0.0)) / scale) ** 2
-            if b.upper is not None:
-                penalty += (max(0.0, v.max() - b.upper) / scale) ** 2
-        return spread / max(len(groups), 1) + 10.0 * penalty + 1e-3 * float(np.sum(np.asarray(s) ** 2))
+            margin = 1e-3 * scale       # stay a little inside, so optimisation between samples agrees
+            short = [b.lower - v.min() + margin if b.lower is not None else 0.0,
+                     v.max() - b.upper + margin if b.upper is not None else 0.0]
+            penalty += sum(max(0.0, d) / scale + (max(0.0, d) / scale) ** 2 for d in short)
+        if wavy:
+            penalty += float(np.sum(np.maximum(0.0, waviness(vals) - limit) ** 2))
+        return spread / max(len(groups), 1) + 10.0 * penalty + 1e-2 * float(np.sum(np.asarray(s) ** 2))
 
     n = len(x0)
     if n:

@@ -202,8 +202,10 @@ def _with_constants(text, values):
 def test_balancing_lifts_a_weak_term_within_the_stated_iterations():
     r = balance(DATA / "weak-diffusion.toml", iterations=40)
     assert r.iterations <= 40 and r.tuned == ("A", "kw")
-    assert r.spread_before["c"] > 250 and r.spread_after["c"] < r.spread_before["c"] / 5
+    assert r.spread_before["c"] > 250 and r.spread_after["c"] < r.spread_before["c"] / 3
     assert r.after["kw"] > r.before["kw"] and r.admissible_after and not r.warnings_after and r.improved
+    # ... but no wavier than the coarsest grid (8 cells) resolves: kw pi h <= 1, about 6 points per wavelength
+    assert r.after["kw"] * np.pi / 8 <= 1.01
     # the suggested constants, written back into the file, pass the term check
     text = _with_constants((DATA / "weak-diffusion.toml").read_text(), r.after)
     assert term_sizes(problem_from_text(text)).ok
