@@ -1,35 +1,34 @@
 """Safe parser turning expression text from problem files into sympy objects.
 
 Problem files are shared between people, so their text never reaches
-``eval``, ``exec`` or sympy's own string parsers.  The text is parsed with
+``eval``, ``exec`` or sympy's own string parsers.  It is parsed with
 :func:`ast.parse` and a whitelist of nodes (numbers, names, ``+ - * / **``,
 unary signs, parentheses, calls of whitelisted functions) is turned into
-sympy objects here.  Everything else is refused with an
+sympy objects here; anything else is refused with an
 :class:`~mmsverify.errors.ExpressionError` naming the construct and column.
 
-Limits (refusals, not silent truncation):
+Limits (each a refusal, never a silent truncation):
 
-``MAX_TEXT_LENGTH``
-    characters of expression text.
-``MAX_NODES``, ``MAX_DEPTH``
-    syntax-tree size and nesting depth (a chain ``a + b + c`` nests one
-    level per operator).
-``MAX_INTEGER``, ``MAX_DECIMAL_EXPONENT``
-    magnitude of integer literals, and the power of ten in decimal
-    literals such as ``6.022e23``.
-``MAX_EXPONENT``
-    a numeric exponent must satisfy ``|p| <= MAX_EXPONENT``; checked before
-    sympy evaluates the power, so ``10**10**10`` fails at once.
-``MAX_NUMBER_BITS``
-    bits of any exact intermediate number (numerator or denominator).
-``MAX_BUILD_SECONDS``
-    safety net on the total build time; realistic expressions take
-    milliseconds.
+* ``MAX_TEXT_LENGTH`` characters; ``MAX_NODES`` syntax nodes; ``MAX_DEPTH``
+  nesting levels (a chain ``a + b + c`` nests one level per operator).
+* ``MAX_INTEGER``: magnitude of integer literals; ``MAX_DECIMAL_EXPONENT``:
+  power of ten of decimal literals such as ``6.022e23``.
+* ``MAX_EXPONENT``: numeric exponents satisfy ``|p| <= MAX_EXPONENT``, checked
+  before sympy evaluates the power, so ``10**10**10`` fails at once.
+* ``MAX_NUMBER_BITS``: bits of exact numbers, and of ``b**|numerator|`` for a
+  rational power of a number (sympy computes it to extract roots).
+* ``MAX_BUILD_SECONDS``: safety net (sympy's root extraction on products of
+  large radicals is slow; realistic expressions take milliseconds).  A hard
+  limit by ``SIGALRM`` is used in the main thread when no timer is running;
+  otherwise the clock is checked between syntax nodes only.
 """
 
 import ast
+import contextlib
 import difflib
 import inspect
+import signal
+import threading
 import time
 from decimal import Decimal, InvalidOperation
 from types import MappingProxyType
@@ -40,17 +39,9 @@ import sympy
 from .errors import ExpressionError
 
 __all__ = [
-    "ALLOWED_FUNCTIONS",
-    "ExpressionError",
-    "MAX_BUILD_SECONDS",
-    "MAX_DECIMAL_EXPONENT",
-    "MAX_DEPTH",
-    "MAX_EXPONENT",
-    "MAX_INTEGER",
-    "MAX_NODES",
-    "MAX_NUMBER_BITS",
-    "MAX_TEXT_LENGTH",
-    "parse_expression",
+    "ALLOWED_FUNCTIONS", "ExpressionError", "MAX_BUILD_SECONDS", "MAX_DECIMAL_EXPONENT",
+    "MAX_DEPTH", "MAX_EXPONENT", "MAX_INTEGER", "MAX_NODES", "MAX_NUMBER_BITS",
+    "MAX_TEXT_LENGTH", "parse_expression",
 ]
 
 MAX_TEXT_LENGTH = 10_000
@@ -64,40 +55,38 @@ MAX_BUILD_SECONDS = 1.0
 
 #: Functions always available, by name (``atan2(y, x)``; ``log(x, b)`` is base b).
 ALLOWED_FUNCTIONS = MappingProxyType({
-    "sin": sympy.sin, "cos": sympy.cos, "tan": sympy.tan,
-    "exp": sympy.exp, "log": sympy.log, "sqrt": sympy.sqrt,
-    "sinh": sympy.sinh, "cosh": sympy.cosh, "tanh": sympy.tanh,
-    "asin": sympy.asin, "acos": sympy.acos, "atan": sympy.atan,
-    "atan2": sympy.atan2, "abs": sympy.Abs, "min": sympy.Min,
-    "max": sympy.Max, "sign": sympy.sign, "erf": sympy.erf,
+    "sin": sympy.sin, "cos": sympy.cos, "tan": sympy.tan, "exp": sympy.exp,
+    "log": sympy.log, "sqrt": sympy.sqrt, "sinh": sympy.sinh, "cosh": sympy.cosh,
+    "tanh": sympy.tanh, "asin": sympy.asin, "acos": sympy.acos, "atan": sympy.atan,
+    "atan2": sympy.atan2, "abs": sympy.Abs, "min": sympy.Min, "max": sympy.Max,
+    "sign": sympy.sign, "erf": sympy.erf,
 })
-# (least, most) argument counts; None means no upper bound.
-_ARITY = {"log": (1, 2), "atan2": (2, 2), "min": (2, None), "max": (2, None)}
+_ARITY = {"log": (1, 2), "atan2": (2, 2), "min": (2, None), "max": (2, None)}  # else (1, 1)
 _DEFAULT_NAMES = {"pi": sympy.pi, "E": sympy.E}
 _BINOPS = {ast.Add: "+", ast.Sub: "-", ast.Mult: "*", ast.Div: "/", ast.Pow: "**"}
 _REFUSED_OPS = {
-    ast.FloorDiv: "floor division '//'", ast.Mod: "modulo '%'",
-    ast.MatMult: "matrix product '@'", ast.LShift: "shift '<<'",
-    ast.RShift: "shift '>>'", ast.BitOr: "bitwise or '|'",
+    ast.FloorDiv: "floor division '//'", ast.Mod: "modulo '%'", ast.MatMult: "'@'",
+    ast.LShift: "shift '<<'", ast.RShift: "shift '>>'", ast.BitOr: "bitwise or '|'",
     ast.BitAnd: "bitwise and '&'", ast.Not: "'not'", ast.Invert: "bitwise not '~'",
 }
 _CONSTRUCTS = {
     ast.Attribute: "attribute access '.'", ast.Subscript: "subscript '[...]'",
-    ast.Lambda: "lambda", ast.ListComp: "list comprehension",
-    ast.SetComp: "set comprehension", ast.DictComp: "dict comprehension",
-    ast.GeneratorExp: "generator expression", ast.List: "list",
-    ast.Tuple: "tuple", ast.Set: "set", ast.Dict: "dict",
+    ast.Lambda: "lambda", ast.ListComp: "list comprehension", ast.SetComp: "set comprehension",
+    ast.DictComp: "dict comprehension", ast.GeneratorExp: "generator expression",
+    ast.List: "list", ast.Tuple: "tuple", ast.Set: "set", ast.Dict: "dict",
     ast.Compare: "comparison", ast.BoolOp: "boolean operator (and/or)",
     ast.IfExp: "conditional expression (if/else)", ast.JoinedStr: "f-string",
-    ast.NamedExpr: "assignment expression ':='", ast.Starred: "starred argument '*'",
-    ast.Slice: "slice", ast.Await: "await", ast.Yield: "yield",
-    ast.YieldFrom: "yield",
+    ast.NamedExpr: "assignment expression ':='", ast.Slice: "slice",
 }
 _BAD = (sympy.zoo, sympy.nan, sympy.oo, -sympy.oo)
 
 
+class _Timeout(BaseException):
+    """Raised when the build time is up; a BaseException so no except clause hides it."""
+
+
 class _Ctx:
-    """State of one parse: text for column lookup, namespaces, deadline."""
+    """State of one parse: text for locating nodes, namespaces, deadline."""
 
     def __init__(self, original, flat, shift, names, functions, where):
         self.original, self.flat, self.shift = original, flat, shift
@@ -105,15 +94,13 @@ class _Ctx:
         self.deadline = time.monotonic() + MAX_BUILD_SECONDS
 
     def at(self, node):
-        """Human location (1-based) of an AST node in the original text."""
+        """1-based location of an AST node (byte column) in the original text."""
         col = getattr(node, "col_offset", 0)
-        pos = len(self.flat.encode()[:col].decode(errors="replace")) + self.shift
-        return self.at_char(pos)
+        return self.at_char(len(self.flat.encode()[:col].decode(errors="replace")) + self.shift)
 
     def at_char(self, pos):
         before = self.original[:pos]
-        line = before.count("\n") + 1
-        col = pos - (before.rfind("\n") + 1) + 1
+        line, col = before.count("\n") + 1, pos - before.rfind("\n")
         return f"line {line}, column {col}" if "\n" in self.original else f"column {col}"
 
     def fail(self, message, node=None):
@@ -130,28 +117,27 @@ def parse_expression(text: str, names: Mapping[str, sympy.Basic], *,
     ----------
     text : str
         Expression such as ``"sin(pi*x)*exp(-t) + 0.1*x**2"``.  Newlines are
-        allowed (treated as spaces); comments are not.
+        allowed (read as spaces); comments are not.
     names : Mapping[str, sympy.Basic]
         Allowed identifiers and their sympy objects (coordinates, constants,
         fields).  ``pi`` and ``E`` are added unless overridden here.
     functions : Mapping[str, Callable], optional
-        Extra callables by name (override built-ins of the same name).  They
-        receive the sympy arguments and must return a sympy expression; an
-        ``ExpressionError`` they raise is reported with location.
+        Extra callables by name, overriding built-ins of the same name.  They
+        receive the sympy arguments and return a sympy expression; an
+        ``ExpressionError`` they raise is re-raised with the location.
     where : str
-        Location put at the start of every error message, e.g.
-        ``"problems/heat.toml, field 'T'"``.
+        Start of every error message, e.g. ``"problems/heat.toml, field 'T'"``.
 
     Returns
     -------
     sympy.Expr
-        The expression, built with sympy's ordinary evaluation; decimal
-        literals become exact rationals (``0.1`` is ``1/10``).
+        Built with sympy's ordinary evaluation; decimal literals are exact
+        rationals (``0.1`` is ``1/10``).
 
     Raises
     ------
     ExpressionError
-        For any text outside the allowed language or beyond the limits.
+        For text outside the allowed language or beyond the limits.
 
     Examples
     --------
@@ -164,35 +150,58 @@ def parse_expression(text: str, names: Mapping[str, sympy.Basic], *,
     if len(text) > MAX_TEXT_LENGTH:
         raise ExpressionError(f"{where}: expression has {len(text)} characters; the limit "
                               f"is {MAX_TEXT_LENGTH} (split it into named constants)")
-    allnames = dict(_DEFAULT_NAMES)
-    for key, value in names.items():
-        if isinstance(value, (int, float)) and not isinstance(value, bool):
-            value = sympy.Integer(value) if isinstance(value, int) else sympy.Float(value)
-        if not isinstance(value, sympy.Basic):
-            raise TypeError(f"names[{key!r}] must be a sympy object, got {type(value).__name__}")
-        allnames[key] = value
-    funcs = dict(ALLOWED_FUNCTIONS)
-    funcs.update(functions or {})
+    allnames = {**_DEFAULT_NAMES, **names}
+    bad = [key for key, value in allnames.items() if not isinstance(value, sympy.Basic)]
+    if bad:
+        raise TypeError(f"names {bad} must map to sympy objects")
     flat = text.replace("\r", " ").replace("\n", " ").replace("\t", " ")
     body = flat.strip()
-    ctx = _Ctx(text, body, len(flat) - len(flat.lstrip()), allnames, funcs, where)
+    ctx = _Ctx(text, body, len(flat) - len(flat.lstrip()), allnames,
+               {**ALLOWED_FUNCTIONS, **(functions or {})}, where)
     if "#" in body:
-        raise ExpressionError(f"{where}: comments ('#') are not allowed at "
+        raise ExpressionError(f"{where}: comments ('#') are not allowed, found at "
                               f"{ctx.at_char(text.index('#'))}")
     if not body:
         raise ExpressionError(f"{where}: expression is empty")
     tree = _parse(ctx, text, body)
     _check_size(ctx, tree)
     try:
-        result = _build(ctx, tree.body)
+        with _time_limit(MAX_BUILD_SECONDS):
+            result = _build(ctx, tree.body)
     except (RecursionError, MemoryError):
         raise ExpressionError(f"{where}: expression is too complex to build") from None
+    except _Timeout:
+        raise ExpressionError(f"{where}: expression took longer than {MAX_BUILD_SECONDS} s "
+                              "to build; simplify it or split it into named constants") from None
     if not isinstance(result, sympy.Expr):
         raise ExpressionError(f"{where}: result is a {type(result).__name__}, not an expression")
     if result.has(*_BAD):
-        raise ExpressionError(f"{where}: expression evaluates to an infinity or undefined "
-                              f"value ({result}); check for division by zero")
+        raise ExpressionError(f"{where}: expression evaluates to an infinite or undefined "
+                              f"value ({str(result)[:80]}); check for division by zero")
     return result
+
+
+def _raise_timeout(signum, frame):
+    raise _Timeout
+
+
+@contextlib.contextmanager
+def _time_limit(seconds):
+    """Hard time limit through SIGALRM where that disturbs nobody; else a no-op."""
+    if not (hasattr(signal, "setitimer") and threading.current_thread() is threading.main_thread()
+            and signal.getsignal(signal.SIGALRM) == signal.SIG_DFL
+            and signal.getitimer(signal.ITIMER_REAL) == (0.0, 0.0)):
+        yield
+        return
+    old = signal.signal(signal.SIGALRM, _raise_timeout)
+    signal.setitimer(signal.ITIMER_REAL, seconds)
+    try:
+        yield
+    finally:
+        try:
+            signal.setitimer(signal.ITIMER_REAL, 0)
+        finally:
+            signal.signal(signal.SIGALRM, old)
 
 
 def _parse(ctx, text, body):
@@ -202,16 +211,17 @@ def _parse(ctx, text, body):
         if not exc.offset:
             raise ExpressionError(f"{ctx.where}: syntax error: {exc.msg}") from None
         pos = min(exc.offset - 1, len(body)) + ctx.shift
-        line_start = text.rfind("\n", 0, pos) + 1
-        line_end = text.find("\n", pos)
-        line = text[line_start:len(text) if line_end < 0 else line_end]
-        col = pos - line_start
+        start = text.rfind("\n", 0, pos) + 1
+        end = text.find("\n", pos) if "\n" in text[pos:] else len(text)
+        col = pos - start
         lo = max(0, col - 60)
-        shown = ("..." if lo else "") + line[lo:col + 60]
+        shown = ("..." if lo else "") + text[start:end][lo:col + 60]
         caret = " " * (col - lo + (3 if lo else 0)) + "^"
         raise ExpressionError(f"{ctx.where}: syntax error: {exc.msg} at {ctx.at_char(pos)}\n"
                               f"    {shown}\n    {caret}") from None
-    except (RecursionError, MemoryError, ValueError) as exc:
+    except ValueError as exc:
+        raise ExpressionError(f"{ctx.where}: expression cannot be parsed ({exc})") from None
+    except (RecursionError, MemoryError) as exc:
         raise ExpressionError(f"{ctx.where}: expression is nested too deeply or is too "
                               f"complex for the parser ({type(exc).__name__})") from None
 
@@ -233,13 +243,15 @@ def _check_size(ctx, tree):
 
 def _build(ctx, node):
     if time.monotonic() > ctx.deadline:
-        raise ctx.fail(f"expression took longer than {MAX_BUILD_SECONDS} s to build; "
-                       "simplify it", node)
+        raise _Timeout
     result = _build_node(ctx, node)
-    if isinstance(result, sympy.Rational) and max(
-            abs(result.p).bit_length(), result.q.bit_length()) > MAX_NUMBER_BITS:
+    if isinstance(result, sympy.Rational) and _bits(result) > MAX_NUMBER_BITS:
         raise ctx.fail(f"number exceeds {MAX_NUMBER_BITS} bits", node)
     return result
+
+
+def _bits(rational):
+    return max(abs(rational.p).bit_length(), rational.q.bit_length())
 
 
 def _build_node(ctx, node):
@@ -248,10 +260,10 @@ def _build_node(ctx, node):
     if isinstance(node, ast.Name):
         return _name(ctx, node)
     if isinstance(node, ast.UnaryOp):
-        if isinstance(node.op, (ast.UAdd, ast.USub)):
-            operand = _build(ctx, node.operand)
-            return -operand if isinstance(node.op, ast.USub) else operand
-        raise ctx.fail(f"{_REFUSED_OPS[type(node.op)]} is not allowed", node)
+        if not isinstance(node.op, (ast.UAdd, ast.USub)):
+            raise ctx.fail(f"{_REFUSED_OPS[type(node.op)]} is not allowed", node)
+        operand = _build(ctx, node.operand)
+        return -operand if isinstance(node.op, ast.USub) else operand
     if isinstance(node, ast.BinOp):
         return _binop(ctx, node)
     if isinstance(node, ast.Call):
@@ -290,54 +302,48 @@ def _name(ctx, node):
         return ctx.names[node.id]
     if node.id in ctx.functions:
         raise ctx.fail(f"'{node.id}' is a function; call it as {node.id}(...)", node)
-    known = ", ".join(sorted(ctx.names))
     close = difflib.get_close_matches(node.id, list(ctx.names), n=1)
     hint = f" (did you mean '{close[0]}'?)" if close else ""
     raise ExpressionError(f"{ctx.where}: unknown name '{node.id}' at {ctx.at(node)}{hint}; "
-                          f"known names: {known} (define it under [constants] or as a field)")
+                          f"known names: {', '.join(sorted(ctx.names))} "
+                          "(define it under [constants] or as a field)")
 
 
 def _binop(ctx, node):
-    if isinstance(node.op, ast.BitXor):
-        raise ctx.fail("'^' is not a power here; use ** for powers", _op_node(ctx, node))
     if type(node.op) not in _BINOPS:
-        raise ctx.fail(f"{_REFUSED_OPS[type(node.op)]} is not allowed", _op_node(ctx, node))
+        # point at the operator: skip spaces and ')' after the left operand
+        col, raw = node.left.end_col_offset, ctx.flat.encode()
+        while col < node.right.col_offset and raw[col:col + 1] in (b" ", b")"):
+            col += 1
+        where_op = ast.Constant(value=None, col_offset=col)
+        if isinstance(node.op, ast.BitXor):
+            raise ctx.fail("'^' is not a power here; use ** for powers", where_op)
+        raise ctx.fail(f"{_REFUSED_OPS[type(node.op)]} is not allowed", where_op)
     left, right = _build(ctx, node.left), _build(ctx, node.right)
+    op = type(node.op)
     try:
-        if isinstance(node.op, ast.Pow):
+        if op is ast.Pow:
             return _power(ctx, node, left, right)
-        op = type(node.op)
         if op is ast.Add:
             return left + right
         if op is ast.Sub:
             return left - right
         return left * right if op is ast.Mult else left / right
-    except ExpressionError:
-        raise
     except (TypeError, ValueError, ArithmeticError) as exc:
-        raise ctx.fail(f"cannot apply '{_BINOPS[type(node.op)]}' ({exc})", node) from None
-
-
-def _op_node(ctx, node):
-    """A stand-in node whose column is that of the operator of a BinOp."""
-    raw = ctx.flat.encode()
-    col = node.left.end_col_offset
-    while col < node.right.col_offset and raw[col:col + 1] in (b" ", b")"):
-        col += 1
-    return ast.Constant(value=None, col_offset=col)
+        raise ctx.fail(f"cannot apply '{_BINOPS[op]}' ({exc})", node) from None
 
 
 def _power(ctx, node, base, exponent):
     if isinstance(exponent, sympy.Number):
         if abs(exponent) > MAX_EXPONENT:
-            shown = str(exponent) if len(str(exponent)) < 30 else "of %d digits" % len(
+            shown = f"{exponent}" if len(str(exponent)) < 30 else "of %d digits" % len(
                 str(exponent))
-            raise ctx.fail(f"exponent {shown} is larger than {MAX_EXPONENT} in "
-                           "magnitude", node.right)
-        if isinstance(base, sympy.Rational):
-            bits = max(abs(base.p).bit_length(), base.q.bit_length())
-            if bits * abs(exponent) > MAX_NUMBER_BITS:
-                raise ctx.fail(f"power {base}**{exponent} exceeds {MAX_NUMBER_BITS} bits", node)
+            raise ctx.fail(f"exponent {shown} is larger than {MAX_EXPONENT} in magnitude",
+                           node.right)
+        if isinstance(base, sympy.Rational) and isinstance(exponent, sympy.Rational) \
+                and _bits(base) * abs(exponent.p) > MAX_NUMBER_BITS:
+            raise ctx.fail(f"power {str(base)[:30]}**{exponent} exceeds {MAX_NUMBER_BITS} "
+                           "bits", node)
     return base**exponent
 
 
@@ -347,37 +353,35 @@ def _call(ctx, node):
             type(node.func), type(node.func).__name__)
         raise ctx.fail("only calls of a function name such as sin(x) are allowed "
                        f"(here the called thing is {what})", node)
-    name = node.func.id
-    if name in ctx.names and name not in ctx.functions:
-        raise ctx.fail(f"'{name}' is a name, not a function", node)
+    name, nargs = node.func.id, len(node.args)
     if name not in ctx.functions:
-        allowed = ", ".join(sorted(ctx.functions))
-        raise ctx.fail(f"unknown function '{name}' (allowed functions: {allowed})", node)
+        if name in ctx.names:
+            raise ctx.fail(f"'{name}' is a name, not a function", node)
+        raise ctx.fail(f"unknown function '{name}' (allowed functions: "
+                       f"{', '.join(sorted(ctx.functions))})", node)
     if node.keywords:
         raise ctx.fail(f"keyword arguments are not allowed in {name}(...)", node)
     for arg in node.args:
         if isinstance(arg, ast.Starred):
             raise ctx.fail(f"starred argument '*' is not allowed in {name}(...)", arg)
     func = ctx.functions[name]
-    nargs = len(node.args)
-    if name in ALLOWED_FUNCTIONS and func is ALLOWED_FUNCTIONS[name]:
+    if func is ALLOWED_FUNCTIONS.get(name):
         lo, hi = _ARITY.get(name, (1, 1))
         if nargs < lo or (hi is not None and nargs > hi):
-            want = (f"{lo}" if lo == hi else f"at least {lo}" if hi is None
-                    else f"{lo} to {hi}")
+            want = f"{lo}" if lo == hi else f"at least {lo}" if hi is None else f"{lo} to {hi}"
             raise ctx.fail(f"{name}() takes {want} argument{'s' * (want != '1')}, "
                            f"got {nargs}", node)
     else:
         try:
             sig = inspect.signature(func)
-        except (TypeError, ValueError):
+        except (TypeError, ValueError):  # no signature available: let the call decide
             sig = None
-        if sig is not None:
-            try:
+        try:
+            if sig is not None:
                 sig.bind(*range(nargs))
-            except TypeError:
-                raise ctx.fail(f"{name}() got {nargs} argument(s); expected "
-                               f"{name}{sig}", node) from None
+        except TypeError:
+            raise ctx.fail(f"{name}() got {nargs} argument(s); expected {name}{sig}",
+                           node) from None
     args = [_build(ctx, arg) for arg in node.args]
     try:
         return func(*args)
