@@ -16,6 +16,25 @@ Sign conventions (documented once, used everywhere):
   density ``rho`` and kinematic viscosity ``nu``:
   ``u.grad u + grad p / rho - nu lap u = f_u, f_v`` and
   ``du/dx + dv/dy = f_p`` (the mass source, equation named ``p``).
+* navier_stokes_compressible: compressible Navier-Stokes of a calorically
+  perfect gas in conservation form, 2-D or 3-D, primitive fields ``rho``,
+  ``u``, ``v`` (``w`` in 3-D) and ``p``; steady or transient. With
+  ``U = (rho, rho u_i, rho E)`` the residuals are
+  ``dU/dt + div(F_inviscid - F_viscous) = f``::
+
+      mass:        d(rho)/dt   + d(rho u_j)/dx_j                               = f_rho
+      momentum i:  d(rho u_i)/dt + d(rho u_i u_j + p delta_ij - tau_ij)/dx_j   = f_(u_i)
+      energy:      d(rho E)/dt + d((rho E + p) u_j - u_i tau_ij + q_j)/dx_j     = f_p
+
+  with ``E = p / ((gamma - 1) rho) + |u|**2 / 2``, the Stokes stress
+  ``tau_ij = mu (du_i/dx_j + du_j/dx_i) - (2/3) mu div(u) delta_ij`` and
+  Fourier's heat flux ``q_j = -k dT/dx_j`` with ``k = mu c_p / Pr``, which
+  for ``T = p / (rho R)`` is ``q = -gamma mu / ((gamma - 1) Pr) grad(p/rho)``
+  (the gas constant cancels). Equations are keyed like the incompressible
+  operator: ``rho`` mass, ``u``/``v``/``w`` momentum, ``p`` energy. To
+  give a conductivity ``k`` instead, set ``Pr = mu c_p / k``. ``mu`` may be
+  an expression; it is differentiated where it stands. Neumann data: the
+  viscous traction ``tau_ij n_j`` for each velocity component.
 * custom: equations written in the problem file with ``d(expr, x)``,
   ``d(expr, x, 2)``, ``d(expr, x, y)`` and ``lap(expr)``.
 """
@@ -54,6 +73,13 @@ class Operator:
     dims: tuple
     _residuals: object
     _fluxes: object = None
+    _fields_by_dim: object = None
+
+    def required_fields(self, dim):
+        """Field names the operator needs in ``dim`` space dimensions (None: one scalar of any name)."""
+        if self._fields_by_dim is not None and dim in self._fields_by_dim:
+            return self._fields_by_dim[dim]
+        return self.fields
 
     def residuals(self, q, X, t, par):
         """Residual expression of each equation, keyed by equation name."""
@@ -147,6 +173,75 @@ def _ns_flux(q, X, par):
     return {c: [par["nu"] * g for g in _grad(q[c], X)] for c in ("u", "v")}
 
 
+_VELOCITY = ("u", "v", "w")
+
+
+def _compressible_parts(q, X, par):
+    """Velocity list, stress tensor and heat flux of the compressible operator."""
+    vel = [q[c] for c in _VELOCITY[: len(X)]]
+    mu, gamma, pr = par["mu"], par["gamma"], par["Pr"]
+    div_u = sp.Add(*[sp.diff(c, xi) for c, xi in zip(vel, X)])
+    tau = [[mu * (sp.diff(vel[i], X[j]) + sp.diff(vel[j], X[i]))
+            - (sp.Rational(2, 3) * mu * div_u if i == j else 0)
+            for j in range(len(X))] for i in range(len(X))]
+    conduct = gamma * mu / ((gamma - 1) * pr)
+    heat = [-conduct * sp.diff(q["p"] / q["rho"], xi) for xi in X]
+    return vel, tau, heat
+
+
+def _by_chain_rule(build, q, X, t, par):
+    """Run ``build`` on undefined functions for the fields, then insert the fields.
+
+    Differentiating products of the full fields repeats the differentiation
+    of each field in every product and makes the result grow with the
+    number of terms; built on placeholders, the operator is differentiated
+    on small expressions, each field derivative is computed once, and the
+    result shares it wherever it occurs (which CSE then finds at once).
+    """
+    args = tuple(X) + ((t,) if t is not None else ())
+    funcs = {sp.Function(f"_field_{k}")(*args): k for k in q}
+    out = build({k: f for f, k in funcs.items()}, X, t, par)
+    exprs = [e for v in out.values() for e in (v if isinstance(v, list) else [v])]
+    mapping = {f: q[k] for f, k in funcs.items()}
+    for e in exprs:
+        for d in sp.sympify(e).atoms(sp.Derivative):
+            if d not in mapping:
+                mapping[d] = sp.diff(q[funcs[d.expr]], *d.variable_count)
+    return {k: ([sp.sympify(c).xreplace(mapping) for c in v] if isinstance(v, list)
+                else sp.sympify(v).xreplace(mapping)) for k, v in out.items()}
+
+
+def _ns_compressible(q, X, t, par):
+    return _by_chain_rule(_ns_compressible_placeholders, q, X, t, par)
+
+
+def _ns_compressible_placeholders(q, X, t, par):
+    rho, p, gamma = q["rho"], q["p"], par["gamma"]
+    vel, tau, heat = _compressible_parts(q, X, par)
+    dim = len(X)
+    rho_e = p / (gamma - 1) + rho * sp.Add(*[c ** 2 for c in vel]) / 2
+    res = {"rho": _div([rho * c for c in vel], X)}
+    for i, name in enumerate(_VELOCITY[:dim]):
+        flux = [rho * vel[i] * vel[j] + (p if i == j else 0) - tau[i][j] for j in range(dim)]
+        res[name] = _div(flux, X)
+    energy = [(rho_e + p) * vel[j] - sp.Add(*[vel[i] * tau[i][j] for i in range(dim)]) + heat[j]
+              for j in range(dim)]
+    res["p"] = _div(energy, X)
+    if t is not None:
+        res["rho"] += sp.diff(rho, t)
+        for name, c in zip(_VELOCITY, vel):
+            res[name] += sp.diff(rho * c, t)
+        res["p"] += sp.diff(rho_e, t)
+    return res
+
+
+def _ns_compressible_flux(q, X, par):
+    def build(q, X, t, par):
+        _, tau, _ = _compressible_parts(q, X, par)
+        return {name: list(tau[i]) for i, name in enumerate(_VELOCITY[: len(X)])}
+    return _by_chain_rule(build, q, X, None, par)
+
+
 OPERATORS = MappingProxyType({
     "diffusion": Operator("diffusion", "rho_c du/dt - div(k grad u) = f (Poisson when steady, k = 1)",
                           None, {"k": 1, "rho_c": 1}, (1, 2, 3), _diffusion, _diffusive_flux),
@@ -159,6 +254,12 @@ OPERATORS = MappingProxyType({
                         {"nu": 1}, (1,), _burgers, _burgers_flux),
     "navier_stokes": Operator("navier_stokes", "steady or transient incompressible 2-D Navier-Stokes, fields u, v, p",
                               ("u", "v", "p"), {"rho": 1, "nu": 1}, (2,), _navier_stokes, _ns_flux),
+    "navier_stokes_compressible": Operator(
+        "navier_stokes_compressible",
+        "compressible Navier-Stokes (perfect gas, conservation form), 2-D/3-D, fields rho, u, v, (w), p",
+        ("rho", "u", "v", "w", "p"), {"gamma": 1.4, "mu": 1, "Pr": 0.72}, (2, 3),
+        _ns_compressible, _ns_compressible_flux,
+        MappingProxyType({2: ("rho", "u", "v", "p"), 3: ("rho", "u", "v", "w", "p")})),
 })
 
 

@@ -307,11 +307,12 @@ class _Reader:
                 raise ProblemError(f"{self.where('operator', 'kind')}: {exc}") from None
             if len(coords) not in op.dims:
                 self.fail("operator", "kind", f"{kind} works in {op.dims} dimensions; [domain] has {len(coords)}")
-            if op.fields is None and len(fields) != 1:
+            needed = op.required_fields(len(coords))
+            if needed is None and len(fields) != 1:
                 raise ProblemError(f"{self.where('fields')}: operator {kind} takes one scalar field, got {list(fields)}")
-            if op.fields is not None and set(op.fields) != set(fields):
-                raise ProblemError(f"{self.where('fields')}: operator {kind} needs fields {', '.join(op.fields)}; "
-                                   f"got {', '.join(fields)}")
+            if needed is not None and set(needed) != set(fields):
+                raise ProblemError(f"{self.where('fields')}: operator {kind} needs fields {', '.join(needed)} "
+                                   f"in {len(coords)}-D; got {', '.join(fields)}")
             unknown = set(op_tab) - set(op.parameters)
             if unknown:
                 self.fail("operator", sorted(unknown)[0],
