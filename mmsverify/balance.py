@@ -174,6 +174,9 @@ def balance(problem, tune=None, iterations=100, *, max_factor=10.0, base_cells=N
     def values_of(s):
         return np.where(mult, x0 * np.exp(np.clip(s, -span, span)), np.clip(s, -1.0, 1.0))
 
+    fine = sample_points(model, 2 * len(np.unique(pts[0])) - 1)     # bounds: twice as dense
+    margin = [1e-2]                 # stay inside by this fraction; grows if optimisation finds a violation
+
     def objective(s):
         vals = values_of(s)
         terms = term_fn(*pts, *vals)
@@ -184,36 +187,43 @@ def balance(problem, tune=None, iterations=100, *, max_factor=10.0, base_cells=N
             if len(r) > 1 and r.max() > 0:
                 spread += float(np.var(np.log10(np.maximum(r, 1e-12 * r.max()))))
         penalty = 0.0
-        for b, v in zip(model.bounds, bound_fn(*pts, *vals) if bound_fn else []):
+        for b, v in zip(model.bounds, bound_fn(*fine, *vals) if bound_fn else []):
             bad = ~np.isfinite(v)
             penalty += float(bad.mean())
             v = v[~bad]
             if not v.size:
                 continue
             scale = max(abs(b.lower or 0.0), abs(b.upper or 0.0), float(np.ptp(v)), 1e-12)
-            margin = 1e-3 * scale       # stay a little inside, so optimisation between samples agrees
-            short = [b.lower - v.min() + margin if b.lower is not None else 0.0,
-                     v.max() - b.upper + margin if b.upper is not None else 0.0]
+            gap = margin[0] * scale
+            short = [b.lower - v.min() + gap if b.lower is not None else 0.0,
+                     v.max() - b.upper + gap if b.upper is not None else 0.0]
             penalty += sum(max(0.0, d) / scale + (max(0.0, d) / scale) ** 2 for d in short)
         if wavy:
             penalty += float(np.sum(np.maximum(0.0, waviness(vals) - limit) ** 2))
         return spread / max(len(groups), 1) + 10.0 * penalty + 1e-2 * float(np.sum(np.asarray(s) ** 2))
 
     n = len(x0)
-    if n:
-        simplex = np.vstack([np.zeros(n)] + [0.5 * np.eye(n)[i] for i in range(n)])
-        res = minimize(objective, np.zeros(n), method="Nelder-Mead",
+    best, nit, nfev = np.zeros(n), 0, 0
+    a_before = _admissibility(model, pts, starts, seed)
+    after_m, a_after = model, a_before
+    # Nelder-Mead within the iteration budget; when optimisation between the samples still finds a
+    # violation, widen the safety margin and go on from the best point with the iterations left.
+    while n and nit < int(iterations):
+        simplex = np.vstack([best] + [best + 0.5 * np.eye(n)[i] for i in range(n)])
+        res = minimize(objective, best, method="Nelder-Mead",
                        bounds=[(-span, span) if m else (-1.0, 1.0) for m in mult],
-                       options={"maxiter": int(iterations), "initial_simplex": simplex, "xatol": 1e-3,
+                       options={"maxiter": int(iterations) - nit, "initial_simplex": simplex, "xatol": 1e-3,
                                 "fatol": 1e-6})
-        best = res.x if res.fun <= objective(np.zeros(n)) else np.zeros(n)
-        nit, nfev = int(res.nit), int(res.nfev)
-    else:
-        best, nit, nfev = np.zeros(0), 0, 0
+        nit, nfev = nit + max(int(res.nit), 1), nfev + int(res.nfev)
+        if res.fun <= objective(best):
+            best = res.x
+        after_m = replace(model, values=tuple(float(v) for v in values_of(best)))
+        a_after = _admissibility(after_m, pts, starts, seed)
+        if a_after.ok or margin[0] >= 0.2:
+            break
+        margin[0] *= 4
     after_vals = values_of(best)
-    before_m, after_m = model, replace(model, values=tuple(float(v) for v in after_vals))
-    t_before, t_after = _term_sizes(before_m, threshold, pts), _term_sizes(after_m, threshold, pts)
-    a_before, a_after = _admissibility(before_m, pts, starts, seed), _admissibility(after_m, pts, starts, seed)
+    t_before, t_after = _term_sizes(model, threshold, pts), _term_sizes(after_m, threshold, pts)
     consts = dict(zip(names, first.values))
     tuned = tuple(str(c) for c in model.consts)
     after = dict(consts) | {k: float(v) for k, v in zip(tuned, after_vals)}
