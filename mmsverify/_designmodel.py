@@ -36,15 +36,17 @@ from .problem import get_problem, problem_from_text
 __all__ = ["Model", "Term", "Bound", "IMPLIED_LOWER", "model_from_problem", "model_from_text",
            "split_sum", "sample_points", "compile_exprs", "diff"]
 
-#: Quantities a built-in operator needs strictly above a limit to be well posed:
-#: positive conductivity, heat capacity, viscosity, density, pressure; gamma > 1.
+#: Lower limits a built-in operator needs to be well posed, as (limit, strict): positive
+#: conductivity, heat capacity, density, pressure; non-negative diffusivity and viscosity
+#: where zero leaves a meaningful (advective, inviscid) equation; gamma > 1.
 IMPLIED_LOWER = {
-    "diffusion": {"k": 0.0, "rho_c": 0.0},
-    "poisson": {"k": 0.0, "rho_c": 0.0},
-    "advection_diffusion": {"k": 0.0},
-    "burgers": {"nu": 0.0},
-    "navier_stokes": {"rho": 0.0, "nu": 0.0},
-    "navier_stokes_compressible": {"rho": 0.0, "p": 0.0, "mu": 0.0, "Pr": 0.0, "gamma": 1.0},
+    "diffusion": {"k": (0.0, True), "rho_c": (0.0, True)},
+    "poisson": {"k": (0.0, True), "rho_c": (0.0, True)},
+    "advection_diffusion": {"k": (0.0, False)},
+    "burgers": {"nu": (0.0, False)},
+    "navier_stokes": {"rho": (0.0, True), "nu": (0.0, False)},
+    "navier_stokes_compressible": {"rho": (0.0, True), "p": (0.0, True), "mu": (0.0, False),
+                                   "Pr": (0.0, True), "gamma": (1.0, True)},
 }
 
 
@@ -255,12 +257,12 @@ def _build_terms(operator, X, t, fields, parameters, equation_text, equations, b
 
 def _implied_bounds(operator, fields, parameters, taken):
     out = []
-    for name, lo in IMPLIED_LOWER.get(operator, {}).items():
+    for name, (lo, strict) in IMPLIED_LOWER.get(operator, {}).items():
         if name in taken:
             continue
         expr = fields.get(name, parameters.get(name))
         if expr is not None:
-            out.append(Bound(name, expr, lo, None, strict=True, implied=True))
+            out.append(Bound(name, expr, lo, None, strict=strict, implied=True))
     return out
 
 

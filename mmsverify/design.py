@@ -83,13 +83,13 @@ class TermSize:
     rms: float
     peak: float
     relative: float
-    status: str          # "ok", "small" or "zero"
+    status: str          # "ok", "small", "zero", or "off" (every coefficient of the term is 0)
     hint: str = ""
     reasons: tuple = ()  # fields, derivatives, coefficients of the term that vanish
 
     @property
     def ok(self):
-        return self.status == "ok"
+        return self.status in ("ok", "off")
 
     @property
     def message(self):
@@ -114,7 +114,7 @@ class TermReport:
         out = []
         for eq in dict.fromkeys(t.equation for t in self.terms):
             terms = [t for t in self.terms if t.equation == eq]
-            if len(terms) > 1 and all(t.status == "zero" for t in terms):
+            if len(terms) > 1 and all(t.status in ("zero", "off") for t in terms):
                 why = "; ".join(dict.fromkeys(r for t in terms for r in t.reasons))
                 out.append(f"equation {eq}: every term vanishes" + (f" ({why})" if why else "")
                            + "; the equation is not exercised at all, give its fields variation")
@@ -129,27 +129,43 @@ class TermReport:
         for t in self.terms:
             name = t.term if len(t.term) <= 32 else t.term[:29] + "..."
             lines.append(f"  {t.equation:<10}{name:<34}{t.rms:<12.3e}{t.peak:<12.3e}{t.relative:<10.3g}{t.status}")
+        lines += [f"  note: equation {t.equation}, term {t.term} is switched off ({'; '.join(t.reasons)}); "
+                  "this problem does not verify the code's handling of it" for t in self.terms if t.status == "off"]
         lines += [f"  !! {w}" for w in self.warnings]
         return "\n".join(lines)
 
 
+def _is_coefficient(atom):
+    if isinstance(atom, sp.Derivative):
+        return False
+    name = atom.name if isinstance(atom, sp.Symbol) else atom.func.__name__
+    return name.startswith("_par_")
+
+
 def _why_zero(model, term, pts):
-    """Which fields, derivatives or coefficients of a term vanish on the samples."""
+    """Which fields, derivatives or coefficients of a term vanish on the samples.
+
+    Returns ``(reasons, off)``: ``off`` when every coefficient multiplying the
+    term is zero, i.e. the problem switches the term off on purpose (pure
+    advection with ``k = 0``, inviscid flow with ``nu = 0``).
+    """
     atoms = sorted((term.expr.atoms(sp.Derivative, sp.core.function.AppliedUndef) | term.expr.free_symbols)
                    & set(model.atoms), key=sp.default_sort_key)
     if not atoms:
-        return ()
+        return (), False
     values = model.compile(atoms)(*pts, *model.values)
     extent = min(hi - lo for lo, hi in model.box)
     field_rms = dict(zip(model.fields, map(_rms, model.compile(list(model.fields.values()))(*pts, *model.values))))
-    out = []
+    out, coefficients, zero_coefficients = [], 0, 0
     for atom, v in zip(atoms, values):
         deriv = isinstance(atom, sp.Derivative)
         base = atom.expr if deriv else atom
         order = sum(c for _, c in atom.variable_count) if deriv else 0
         scale = field_rms.get(getattr(base, "func", type(base)).__name__, 1.0) or 1.0
+        coefficients += _is_coefficient(atom)
         if _rms(v) > _ZERO * scale / extent ** order:
             continue
+        zero_coefficients += _is_coefficient(atom)
         if not deriv:
             out.append(f"{_atom_label(atom)} is 0")
         elif len(atom.variable_count) == 1 and order == 1:
@@ -159,7 +175,7 @@ def _why_zero(model, term, pts):
             out.append(f"{_atom_label(atom)} = 0 ({_atom_label(base)} is a polynomial of degree below {order} in {var})")
         else:
             out.append(f"{_atom_label(atom)} = 0")
-    return tuple(out)
+    return tuple(out), bool(coefficients) and zero_coefficients == coefficients
 
 
 def _hint(term, status, rel, largest, reasons):
@@ -192,8 +208,10 @@ def _term_sizes(model, threshold, pts):
             rms, peak = sizes[t]
             rel = rms / big if big > 0 else 0.0
             status = "zero" if rel <= _ZERO else "small" if rel < threshold else "ok"
-            reasons = () if status == "ok" else _why_zero(model, t, pts)
-            hint = "" if status == "ok" else _hint(t, status, rel, top.name, reasons)
+            reasons, off = ((), False) if status == "ok" else _why_zero(model, t, pts)
+            if status == "zero" and off:
+                status = "off"
+            hint = "" if status in ("ok", "off") else _hint(t, status, rel, top.name, reasons)
             out.append(TermSize(eq, t.name, rms, peak, rel, status, hint, reasons))
     return TermReport(model.name, tuple(out), threshold, len(pts[0]))
 

@@ -124,6 +124,18 @@ def test_advection_switched_off_by_the_field_and_by_the_coefficient():
     assert fixed.ok
 
 
+def test_term_switched_off_by_a_zero_coefficient_is_noted_not_warned():
+    # pure advection (k = 0) is a legitimate problem: the diffusion term is absent, not badly designed
+    text = ('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nc = "1 + sin(2*x)*cos(y)"\n'
+            '[operator]\nkind = "advection_diffusion"\nk = 0\nax = 1.0\nay = 0.5\n')
+    a = audit(problem_from_text(text), starts=0)
+    diffusion = next(t for t in a.terms.terms if t.term == "diffusion")
+    assert diffusion.status == "off" and diffusion.reasons == ("coefficient k is 0",)
+    assert a.ok and "term diffusion is switched off" in str(a.terms)
+    k = next(c for c in a.admissibility.checks if c.name == "k")
+    assert k.ok and k.rule == "0 <= k"          # a diffusivity may be zero; a conductivity may not
+
+
 def test_small_term_is_flagged_and_the_threshold_is_respected():
     report = term_sizes(DATA / "weak-diffusion.toml")
     diff = next(t for t in report.terms if t.term == "diffusion")
