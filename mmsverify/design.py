@@ -178,7 +178,7 @@ def _why_zero(model, term, pts):
     return tuple(out), bool(coefficients) and zero_coefficients == coefficients
 
 
-def _hint(term, status, rel, largest, reasons):
+def _hint(term, status, rel, largest, reasons, threshold):
     levers = []
     if term.fields:
         levers.append(f"the amplitudes or wavenumbers of {', '.join(term.fields)}")
@@ -193,7 +193,8 @@ def _hint(term, status, rel, largest, reasons):
                 f"(give the fields variation in every direction the term differentiates)")
     extra = f" ({'; '.join(reasons)})" if reasons else ""
     return (f"only {rel:.1e} of the largest term ({largest}){extra}; a mistake in it could hide below the "
-            f"others. Raise it about {1 / max(rel, 1e-300):.0f}x through {lever}, or see `mmsverify audit --balance`")
+            f"others. Raise it at least {threshold / max(rel, 1e-300):.1f}x (about {1 / max(rel, 1e-300):.0f}x to "
+            f"match the largest) through {lever}, or see `mmsverify audit --balance`")
 
 
 def _term_sizes(model, threshold, pts):
@@ -211,7 +212,7 @@ def _term_sizes(model, threshold, pts):
             reasons, off = ((), False) if status == "ok" else _why_zero(model, t, pts)
             if status == "zero" and off:
                 status = "off"
-            hint = "" if status in ("ok", "off") else _hint(t, status, rel, top.name, reasons)
+            hint = "" if status in ("ok", "off") else _hint(t, status, rel, top.name, reasons, threshold)
             out.append(TermSize(eq, t.name, rms, peak, rel, status, hint, reasons))
     return TermReport(model.name, tuple(out), threshold, len(pts[0]))
 

@@ -95,9 +95,11 @@ class Operator:
         Returns ``{equation: {term name: expr}}``; the terms of an equation
         add up to its residual. Operators without a split give one term,
         ``"residual"``. Names used: ``time``, ``diffusion``, ``advection``,
-        ``convection``, ``pressure``, ``viscous`` and, for the mass equation
-        of ``navier_stokes``, ``continuity_x`` and ``continuity_y`` (kept
-        apart because a divergence-free velocity makes only their sum zero).
+        ``convection``, ``pressure``, ``viscous``, ``conduction`` (the heat
+        flux of the compressible energy equation, whose ``pressure`` term is
+        the pressure work ``div(p u)``) and, for the mass equation of
+        ``navier_stokes``, ``continuity_x`` and ``continuity_y`` (kept apart
+        because a divergence-free velocity makes only their sum zero).
         """
         split = _TERM_SPLITS.get(self.name)
         if split is None:
@@ -205,7 +207,7 @@ def _by_chain_rule(build, q, X, t, par):
     mapping = {f: q[k] for f, k in funcs.items()}
     for e in exprs:
         for d in sp.sympify(e).atoms(sp.Derivative):
-            if d not in mapping:
+            if d not in mapping and d.expr in funcs:     # derivatives of coefficients stay as they are
                 mapping[d] = sp.diff(q[funcs[d.expr]], *d.variable_count)
     return {k: ([sp.sympify(c).xreplace(mapping) for c in v] if isinstance(v, list)
                 else sp.sympify(v).xreplace(mapping)) for k, v in out.items()}
@@ -339,6 +341,40 @@ def _navier_stokes_terms(q, X, t, par):
     return out
 
 
+def _ns_compressible_term_placeholders(q, X, t, par):
+    """Flat ``{"equation/term": expr}`` of the compressible operator (for :func:`_by_chain_rule`)."""
+    rho, p, gamma = q["rho"], q["p"], par["gamma"]
+    vel, tau, heat = _compressible_parts(q, X, par)
+    dim = len(X)
+    rho_e = p / (gamma - 1) + rho * sp.Add(*[c ** 2 for c in vel]) / 2
+    out = {}
+    if t is not None:
+        out["rho/time"] = sp.diff(rho, t)
+    out["rho/convection"] = _div([rho * c for c in vel], X)
+    for i, name in enumerate(_VELOCITY[:dim]):
+        if t is not None:
+            out[f"{name}/time"] = sp.diff(rho * vel[i], t)
+        out[f"{name}/convection"] = _div([rho * vel[i] * vel[j] for j in range(dim)], X)
+        out[f"{name}/pressure"] = sp.diff(p, X[i])
+        out[f"{name}/viscous"] = -_div(tau[i], X)
+    if t is not None:
+        out["p/time"] = sp.diff(rho_e, t)
+    out["p/convection"] = _div([rho_e * c for c in vel], X)
+    out["p/pressure"] = _div([p * c for c in vel], X)
+    out["p/viscous"] = -_div([sp.Add(*[vel[i] * tau[i][j] for i in range(dim)]) for j in range(dim)], X)
+    out["p/conduction"] = _div(heat, X)
+    return out
+
+
+def _ns_compressible_terms(q, X, t, par):
+    flat = _by_chain_rule(_ns_compressible_term_placeholders, q, X, t, par)
+    out = {}
+    for key, expr in flat.items():
+        eq, term = key.split("/")
+        out.setdefault(eq, {})[term] = expr
+    return out
+
+
 _TERM_SPLITS = {"diffusion": _diffusion_terms, "poisson": _diffusion_terms,
                 "advection_diffusion": _advection_diffusion_terms, "burgers": _burgers_terms,
-                "navier_stokes": _navier_stokes_terms}
+                "navier_stokes": _navier_stokes_terms, "navier_stokes_compressible": _ns_compressible_terms}

@@ -31,7 +31,8 @@ def test_bad_bounds_name_the_file_line_and_entry(line, message):
     assert "bad.toml, line 6, [bounds]" in str(err.value) and message in str(err.value)
 
 
-@pytest.mark.parametrize("name", ["diffusion", "poisson", "advection_diffusion", "burgers", "navier_stokes"])
+@pytest.mark.parametrize("name", ["diffusion", "poisson", "advection_diffusion", "burgers", "navier_stokes",
+                                  "navier_stokes_compressible"])
 @pytest.mark.parametrize("transient", [False, True])
 def test_operator_terms_add_up_to_the_residuals(name, transient):
     # the split must lose nothing: sum of terms == residual, symbolically  # common practice
@@ -40,7 +41,7 @@ def test_operator_terms_add_up_to_the_residuals(name, transient):
     op = get_operator(name)
     x, y, t = sp.symbols("x y t")
     X = (x,) if name == "burgers" else (x, y)
-    q = {f: sp.Function(f)(*X, t) for f in (op.fields or ("u",))}
+    q = {f: sp.Function(f)(*X, t) for f in (op.required_fields(len(X)) or ("u",))}
     par = {k: sp.Function(k)(*X, t) for k in op.parameters}     # coefficients may vary
     tt = t if transient else None
     res, terms = op.residuals(q, X, tt, par), op.terms(q, X, tt, par)
@@ -140,7 +141,7 @@ def test_small_term_is_flagged_and_the_threshold_is_respected():
     report = term_sizes(DATA / "weak-diffusion.toml")
     diff = next(t for t in report.terms if t.term == "diffusion")
     assert diff.status == "small" and 0.003 < diff.relative < 0.004
-    assert "Raise it about" in diff.hint and "coefficient(s) k" in diff.hint
+    assert "Raise it at least 2.9x" in diff.hint and "coefficient(s) k" in diff.hint
     assert term_sizes(DATA / "weak-diffusion.toml", threshold=0.001).ok
 
 
@@ -178,9 +179,45 @@ def test_operator_coefficients_must_be_positive_without_any_bounds_table():
 
 
 # -- designs that must pass ---------------------------------------------------------------
-@pytest.mark.parametrize("name", bundled_problems())
+_FLAGGED = {  # bundled designs with a real finding, kept visible until their owners change them
+    "compressible-3d": "the viscous work in the energy equation is 0.3% of the energy convection (mu = 10)",
+}
+
+
+@pytest.mark.parametrize("name", [pytest.param(n, marks=pytest.mark.xfail(strict=True, reason=_FLAGGED[n]))
+                                  if n in _FLAGGED else n for n in bundled_problems()])
 def test_bundled_problems_pass_every_design_check(name):
     assert design_warnings(load_problem(name)) == []
+
+
+def test_roy_subsonic_navier_stokes_design_passes_with_physical_bounds():
+    # Roy, Nelson, Smith & Ober 2004, Int. J. Numer. Meth. Fluids 44:599, subsonic case (constants as
+    # bundled in problems/compressible-2d.toml; see its header for their provenance). Subsonic means
+    # Mach < 1 everywhere; density and pressure positive.
+    from mmsverify.problem import PROBLEM_DIR
+    text = (PROBLEM_DIR / "compressible-2d.toml").read_text() + (
+        '\n[bounds]\nMach = {expr = "sqrt(u**2 + v**2)/sqrt(gamma*p/rho)", max = 1}\n'
+        'T = {expr = "p/(287*rho)", min = 100, max = 600}\n')
+    a = audit(problem_from_text(text), starts=4)
+    assert a.ok, a.warnings
+    checks = {c.name: c for c in a.admissibility.checks}
+    assert 0.2 < checks["Mach"].high < 0.45 and checks["rho"].low > 0.7 and checks["p"].low > 5e4
+    terms = {(t.equation, t.term): t.relative for t in a.terms.terms}
+    assert set(terms) >= {("p", "conduction"), ("p", "viscous"), ("u", "viscous"), ("u", "convection")}
+
+
+@pytest.mark.parametrize("name", bundled_problems())
+def test_structured_terms_add_up_to_the_derived_sources(name):
+    from mmsverify._designmodel import model_from_problem, sample_points
+    from mmsverify.derive import compile_expression
+    p = load_problem(name)
+    m = model_from_problem(p)
+    pts = sample_points(m, {1: 9, 2: 5, 3: 3}[p.dim], times=3)
+    values = m.compile([t.expr for t in m.terms])(*pts)
+    for eq, terms in m.equations().items():
+        total = sum(values[m.terms.index(t)] for t in terms)
+        ref = compile_expression(p.equations[eq], m.variables)(*pts)
+        assert np.allclose(total, ref, rtol=1e-10, atol=1e-10 * np.max(np.abs(ref)))
 
 
 def test_design_warnings_are_prefixed_and_never_raise(monkeypatch):
