@@ -236,7 +236,7 @@ def test_html_is_self_contained_with_verdict_and_images(bad):
     assert len(images) == 4
     svgs = [base64.b64decode(i).decode() for i in images]
     assert 'id="error-u-L2"' in svgs[0] and 'id="order-u-L2"' in svgs[1] and 'id="cost-u-L2"' in svgs[2]
-    assert "<image" in svgs[3] and "largest |error|" in svgs[3]  # the map is a raster inside the SVG
+    assert "<image" in svgs[3] and "max |error|" in svgs[3]  # the map is a raster inside the SVG
     png_page = html_text(bad, fmt="png")
     pngs = re.findall(r'src="data:image/png;base64,([^"]+)"', png_page)
     assert len(pngs) == 3 and all(base64.b64decode(p)[:4] == b"\x89PNG" for p in pngs)

@@ -40,7 +40,7 @@ def write_reports(result, folder, formats=FORMATS, pointwise=None, stem=None):
         raise MMSError(f"unknown report format(s) {', '.join(unknown)}; choose from {', '.join(FORMATS)}")
     folder = Path(folder)
     if stem is None:
-        stem = "".join(c if c.isalnum() or c in "-_." else "_" for c in f"{result.problem}_{result.solver}")
+        stem = "".join(c if c.isalnum() or c in "-_." else "_" for c in f"{result.problem}_{result.solver}").strip("_")
     written = {}
     for fmt in formats:
         path = folder / f"{stem}.{fmt}"

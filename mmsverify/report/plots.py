@@ -211,8 +211,9 @@ def error_map_figure(pointwise, title=None):
     if not items or items[0].dim > 2:
         return None
     any_item = items[0]
-    fig, axes = _figure(len(items), title or f"Pointwise error (discrete \u2212 exact) on level {any_item.level} "
-                                             f"({any_item.grid.describe()})\n\u00d7 marks the largest |error|")
+    when = f", t = {any_item.time:g}" if any_item.time is not None else ""
+    fig, axes = _figure(len(items), title or f"Pointwise error (discrete \u2212 exact)\nlevel {any_item.level}: "
+                                             f"{any_item.grid.describe()}{when}")
     for ax, pe in zip(axes, items):
         e = np.asarray(pe.error, dtype=float)
         worst = pe.worst
@@ -245,7 +246,8 @@ def error_map_figure(pointwise, title=None):
             ax.set_aspect("equal")
             ax.set_xlabel("x (units of x)")
             ax.set_ylabel("y (units of y)")
-        ax.set_title(f"field {pe.field}: max |error| {np.max(np.abs(e)):.2e}", fontsize=10)
+        at = " at \u00d7" if pe.dim == 2 else ""
+        ax.set_title(f"field {pe.field}: max |error| {np.max(np.abs(e)):.2e}{at}", fontsize=10)
     return fig
 
 
