@@ -215,7 +215,7 @@ def run_level(solver, case, where):
 
 def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode="combined", base_steps=None,
               grids=None, tolerance=None, formal_order=None, executor=None, options=None,
-              progress=None):
+              progress=None, workers=None, timeout=None, cache_dir=None, resume=True):
     """Run a manufactured-solution study and judge the observed orders.
 
     Parameters
@@ -230,13 +230,26 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
         An explicit sequence instead of the plan; must be a refinement.
     tolerance, formal_order : float, optional
         Override the problem's ``[order]`` values.
-    executor : concurrent.futures.Executor, optional
+    executor : concurrent.futures.Executor or dask.distributed.Client, optional
         Run levels through it (the solver must then be picklable).
     options : dict, optional
         Passed to the solver in ``case.options``.
     progress : callable, optional
         Called as ``progress(level_result)`` after each level finishes
         (see :mod:`mmsverify.progress`).
+    workers : int, optional
+        Without ``executor``: run the levels in a local pool of this many
+        processes (default: one after another in this process).
+    timeout : float, optional
+        Seconds allowed per level; a level past it is stopped and recorded
+        as failed (see :mod:`mmsverify.runner` for how it is enforced).
+    cache_dir : path, optional
+        Keep finished levels there by content (problem, solver and its code,
+        grid, options); a rerun or a resumed study reuses them
+        (see :mod:`mmsverify.cache`).
+    resume : bool
+        With ``cache_dir``: reuse stored levels (default); False recomputes
+        and overwrites them.
 
     Returns
     -------
@@ -257,23 +270,9 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     cases = [Case(g, mms, opts) for g in grids]
     name = solver_name(solver)
     wheres = [f"problem {problem.name}, solver {name}, level {c.grid.level} ({c.grid.describe()})" for c in cases]
-    if executor is None:
-        results = []
-        for c, w in zip(cases, wheres):
-            results.append(run_level(solve, c, w))
-            if progress is not None:
-                progress(results[-1])
-    else:
-        futures = [executor.submit(run_level, solve, c, w) for c, w in zip(cases, wheres)]
-        results = []
-        for fut, c, w in zip(futures, cases, wheres):
-            try:
-                results.append(fut.result())
-            except Exception as exc:  # the worker itself died
-                results.append(LevelResult(c.grid.level, c.grid, c.grid.h, "failed",
-                                           message=f"{w}: the worker failed: {type(exc).__name__}: {exc}"))
-            if progress is not None:
-                progress(results[-1])
+    from .runner import run_levels
+    results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
+                         cache=cache_dir, resume=resume, progress=progress)
     if mode == "time":
         formal = problem.time_order
     else:
