@@ -279,3 +279,26 @@ def test_balancing_only_tunes_what_it_is_told_and_refuses_unknown_constants():
         balance(DATA / "weak-diffusion.toml", iterations=0)
     with pytest.raises(ProblemError, match="cannot read the problem file"):
         balance("no-such-problem.toml")
+
+
+# -- command line ---------------------------------------------------------------------------
+from mmsverify.cli import main
+
+
+def test_audit_command_exit_codes_and_output(capsys):
+    assert main(["audit", "plate-poisson", "--starts", "0"]) == 0
+    assert capsys.readouterr().out.startswith("design OK: plate-poisson")
+    assert main(["audit", str(DATA / "parallel-flow.toml"), "--starts", "0"]) == 1
+    assert "!! equation u, term convection: vanishes everywhere" in capsys.readouterr().out
+    assert main(["audit", str(DATA / "no-such.toml")]) == 2
+    assert "no such problem file" in capsys.readouterr().err
+
+
+def test_audit_command_balances_on_request(capsys):
+    code = main(["audit", str(DATA / "weak-diffusion.toml"), "--balance", "--iterations", "20", "--tune", "kw",
+                 "--starts", "2"])
+    out = capsys.readouterr().out
+    assert code == 1 and "of at most 20 iterations" in out and "tuning kw" in out
+    table = out.split("suggested constants (paste into the problem file):\n")[1].splitlines()
+    assert table[0] == "[constants]" and table[1] == "A = 0.4" and table[2].startswith("kw = ")
+    assert float(table[2].split("=")[1]) > 0.5        # tuned up towards comparable terms

@@ -20,7 +20,7 @@ __all__ = ["main", "EXIT_OK", "EXIT_FAIL", "EXIT_INPUT", "EXIT_INCONCLUSIVE"]
 EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_INCONCLUSIVE = 0, 1, 2, 3
 
 # Command modules, in the order `--help` lists them.
-_COMMANDS = ("_demo", "_run", "_derive", "_list", "_split", "_export", "_report", "_baseline", "_estimate")
+_COMMANDS = ("_demo", "_run", "_derive", "_list", "_split", "_export", "_report", "_baseline", "_estimate", "_audit")
 
 
 def build_parser():
