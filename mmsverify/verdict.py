@@ -9,7 +9,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .order import observed_orders
+from .order import asymptotic_check, observed_orders
 
 __all__ = ["Verdict", "judge", "ROUNDOFF"]
 
@@ -94,6 +94,12 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None):
         status, how = "above", (f"exceeds it by {diff:.2f}, more than the tolerance {tolerance:g}: the levels may "
                                 "not be in the asymptotic range, or the formal order is understated")
     reason = f"observed {_fmt(last)} on {pair}; formal {formal:g}; {how}"
-    if len(p) >= 2 and np.isfinite(p[-2]) and abs(p[-1] - p[-2]) > tolerance:
+    check = asymptotic_check(h, e, formal, scale=scale) if len(h) >= 3 and status != "confirmed" else None
+    if check is not None and check.floor:
+        # the errors stopped falling: say so rather than blame the scheme
+        if check.floor == "round-off":
+            status = "inconclusive"
+        reason += f". {check.message}"
+    elif len(p) >= 2 and np.isfinite(p[-2]) and abs(p[-1] - p[-2]) > tolerance:
         reason += f" (orders still moving: {', '.join(_fmt(q) for q in p)}; add a finer level)"
     return Verdict(field, norm, formal, last, tolerance, status, reason)
