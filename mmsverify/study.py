@@ -206,7 +206,8 @@ def run_level(solver, case, where):
         return LevelResult(grid.level, grid, h, "ok", errors, seconds, int(values[next(iter(values))].size), scale,
                            quantities=quantities)
     except SolverError as exc:
-        return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start, message=str(exc))
+        text = str(exc) if str(exc).startswith(where) else f"{where}: {exc}"
+        return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start, message=text)
     except Exception as exc:  # the solver under test crashed: record it, keep going
         tail = "".join(traceback.format_exception(type(exc), exc, exc.__traceback__)[-3:]).strip()
         return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start,
