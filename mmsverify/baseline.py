@@ -21,6 +21,7 @@ and what to do; its ``passed`` drives the exit code of
 from dataclasses import dataclass
 import datetime
 import json
+import logging
 import os
 from pathlib import Path
 
@@ -34,6 +35,8 @@ __all__ = ["FORMAT", "FORMAT_VERSION", "DEFAULT_ERROR_FACTOR", "Baseline", "Find
 
 FORMAT = "mmsverify.baseline"
 FORMAT_VERSION = 1
+
+_log = logging.getLogger(__name__)
 
 #: Allowed growth of any error over the baseline's, unless stated otherwise.
 DEFAULT_ERROR_FACTOR = 2.0
@@ -396,6 +399,8 @@ def check_baseline(baseline, solver=None, *, problem=None, error_factor=None, to
         raise ProblemError(f"{problem.source}: the problem changed since the baseline was saved (hash "
                            f"{problem.content_hash()[:12]}, baseline {baseline.problem_hash[:12]}); pass the "
                            "problem file the baseline was made with, or save a new baseline")
+    _log.info("rerunning the %d levels of baseline %s (recorded with %s)", len(baseline.grids), baseline.problem,
+              baseline.solver)
     result = run_study(problem, baseline.solver if solver is None else solver, grids=baseline.grids,
                        mode=baseline.mode, formal_order=baseline.formal_order,
                        tolerance=baseline.tolerance if tolerance is None else tolerance, progress=progress,

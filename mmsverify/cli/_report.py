@@ -2,6 +2,7 @@
 
 import sys
 
+from ..errors import MMSError
 from ..progress import QUIET, progress_for, verbosity
 from ..report import FORMATS, write_reports
 from ..report._common import headline, outcome
@@ -40,7 +41,10 @@ def _report(args):
     pointwise = None
     if want_map and {"md", "html"} & set(formats):
         from ..report.pointwise import finest_error
-        pointwise = finest_error(result, solver=args.solver or None, problem=args.problem or None)
+        try:
+            pointwise = finest_error(result, solver=args.solver or None, problem=args.problem or None)
+        except MMSError as exc:  # the reports are still worth writing without the map
+            print(f"mmsverify report: no error map: {exc}", file=sys.stderr)
     written = write_reports(result, args.output, formats, pointwise, stem=args.name)
     if verbosity(args) == QUIET:
         print(f"{outcome(result).upper()}: {headline(result)}")

@@ -7,6 +7,7 @@ error maps of :mod:`mmsverify.report.plots`.
 """
 
 from dataclasses import dataclass
+import logging
 from pathlib import Path
 
 import numpy as np
@@ -17,6 +18,8 @@ from ..problem import get_problem
 from ..solvers import Case, check_solution, resolve_solver
 
 __all__ = ["PointwiseError", "pointwise_error", "finest_error"]
+
+_log = logging.getLogger(__name__)
 
 
 @dataclass(frozen=True)
@@ -84,6 +87,7 @@ def pointwise_error(problem, solver, grid, *, options=None):
     solve = resolve_solver(solver)
     mms = derive(problem)
     where = f"problem {problem.name}, pointwise error on level {grid.level} ({grid.describe()})"
+    _log.info("one more run of the solver on level %d (%s) for the pointwise error", grid.level, grid.describe())
     try:
         sol = solve(Case(grid, mms, dict(options or {})))
     except MMSError:
