@@ -1,0 +1,138 @@
+"""Level cache: content keys, atomic records, reuse, and resuming a killed study."""
+
+import os
+from pathlib import Path
+import subprocess
+import sys
+import textwrap
+import time
+
+import pytest
+
+from mmsverify import Case, derive, plan_grids, run_study
+from mmsverify.cache import LevelCache, solver_identity
+from mmsverify.external import ExternalSolver
+
+PROBLEM = "plate-poisson"
+REPO = Path(__file__).resolve().parent.parent
+
+COUNTING_SOLVER = """
+import os, time
+from solvers_demo.fd.poisson import solve as _solve
+
+def solve(case):
+    with open(os.environ["RUN_LOG"], "a") as fh:
+        fh.write(f"{case.grid.level}\\n")
+    if case.grid.level >= 2 and os.environ.get("HANG_FROM_LEVEL_2") == "1":
+        time.sleep(600)
+    return _solve(case)
+"""
+
+
+@pytest.fixture
+def counting(tmp_path, monkeypatch):
+    """A solver module that logs every call (level number) to a file."""
+    (tmp_path / "counting_solver.py").write_text(textwrap.dedent(COUNTING_SOLVER))
+    log = tmp_path / "calls.log"
+    monkeypatch.setenv("RUN_LOG", str(log))
+    monkeypatch.syspath_prepend(str(tmp_path))
+    yield log
+    sys.modules.pop("counting_solver", None)
+
+
+def _calls(log):
+    return [int(line) for line in log.read_text().split()] if log.exists() else []
+
+
+def _case(level=0, problem=PROBLEM, **options):
+    return Case(plan_grids(problem, levels=3)[level], derive(problem), {"mode": "combined", **options})
+
+
+def test_keys_follow_the_content(tmp_path):
+    cache = LevelCache(tmp_path)
+    key = cache.key(_case(), "solver-a")
+    assert key == cache.key(_case(), "solver-a")
+    assert len({key, cache.key(_case(1), "solver-a"), cache.key(_case(), "solver-b"),
+                cache.key(_case(problem="fin-diffusion"), "solver-a"),
+                cache.key(_case(scheme="upwind"), "solver-a")}) == 5
+
+
+def test_solver_identity_follows_its_code(tmp_path, monkeypatch):
+    mod = tmp_path / "edited_solver.py"
+    mod.write_text("def solve(case):\n    return 1\n")
+    monkeypatch.syspath_prepend(str(tmp_path))
+    import edited_solver
+    first = solver_identity(edited_solver.solve)
+    mod.write_text("def solve(case):\n    return 2\n")
+    assert solver_identity(edited_solver.solve) != first
+    sys.modules.pop("edited_solver", None)
+    prog = tmp_path / "prog.sh"
+    prog.write_text("#!/bin/sh\nexit 0\n")
+    ext = ExternalSolver([str(prog), "{case}"])
+    before = solver_identity(ext)
+    prog.write_text("#!/bin/sh\nexit 1\n")  # a rebuilt program is another solver
+    assert solver_identity(ext) != before
+
+
+def test_records_are_written_atomically_and_unreadable_ones_ignored(tmp_path):
+    result = run_study(PROBLEM, "poisson2d", levels=2, cache_dir=tmp_path)
+    cache = LevelCache(tmp_path)
+    assert len(cache) == 2
+    assert not [p for p in (tmp_path / "levels").iterdir() if p.suffix != ".json"]  # no temporary files left
+    case = _case(0)
+    key = cache.key(case, solver_identity(__import__("solvers_demo.fd.poisson", fromlist=["solve"]).solve))
+    assert cache.load(key, case.grid).errors == result.levels[0].errors
+    cache.path(key).write_text('{"key": "trunc')
+    assert cache.load(key, case.grid) is None
+
+
+def test_rerun_reuses_finished_levels(counting, tmp_path):
+    first = run_study(PROBLEM, "counting_solver:solve", levels=3, cache_dir=tmp_path / "c")
+    assert _calls(counting) == [0, 1, 2]
+    second = run_study(PROBLEM, "counting_solver:solve", levels=4, cache_dir=tmp_path / "c")
+    assert _calls(counting) == [0, 1, 2, 3]  # only the new level ran
+    assert [lv.errors for lv in second.levels[:3]] == [lv.errors for lv in first.levels]
+    assert "reused from the level cache" in second.levels[0].message and second.passed
+    run_study(PROBLEM, "counting_solver:solve", levels=2, cache_dir=tmp_path / "c", resume=False)
+    assert _calls(counting) == [0, 1, 2, 3, 0, 1]
+
+
+_FAILED_CALLS = []
+
+
+def _fail(case):
+    _FAILED_CALLS.append(case.grid.level)
+    raise RuntimeError("diverged")
+
+
+def test_failed_levels_are_not_stored_and_run_again(tmp_path):
+    _FAILED_CALLS.clear()
+    for _ in range(2):
+        result = run_study(PROBLEM, _fail, levels=2, cache_dir=tmp_path)
+        assert not any(lv.ok for lv in result.levels)
+    assert len(LevelCache(tmp_path)) == 0
+    assert _FAILED_CALLS == [0, 1, 0, 1]
+
+
+def test_a_killed_study_resumes_without_redoing_finished_levels(counting, tmp_path):
+    cache_dir = tmp_path / "cache"
+    script = (f"import sys; sys.path[:0] = [{str(tmp_path)!r}, {str(REPO)!r}]\n"
+              "import mmsverify\n"
+              f"mmsverify.run_study({PROBLEM!r}, 'counting_solver:solve', levels=4, cache_dir={str(cache_dir)!r})\n")
+    env = dict(os.environ, HANG_FROM_LEVEL_2="1")
+    proc = subprocess.Popen([sys.executable, "-c", script], env=env, stdout=subprocess.DEVNULL,
+                            stderr=subprocess.PIPE)
+    try:
+        deadline = time.monotonic() + 60
+        while _calls(counting) != [0, 1, 2]:  # levels 0 and 1 done, level 2 hangs
+            assert proc.poll() is None, proc.stderr.read().decode()
+            assert time.monotonic() < deadline, "the study did not reach level 2"
+            time.sleep(0.05)
+        assert len(LevelCache(cache_dir)) == 2
+    finally:
+        proc.kill()
+        proc.wait()
+    result = run_study(PROBLEM, "counting_solver:solve", levels=4, cache_dir=cache_dir)
+    assert _calls(counting) == [0, 1, 2, 2, 3]  # the rerun did only levels 2 and 3
+    assert result.passed and [lv.level for lv in result.levels] == [0, 1, 2, 3]
+    assert len(LevelCache(cache_dir)) == 4

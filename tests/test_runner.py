@@ -1,0 +1,117 @@
+"""Levels through executors: process pools, any Executor, Dask; time limits and failures."""
+
+from concurrent.futures import ThreadPoolExecutor
+import os
+import time
+
+import numpy as np
+import pytest
+
+from mmsverify import Solution, SolverError, run_study
+from mmsverify.runner import run_studies
+from solvers_demo.fd.poisson import solve as fd_solve
+
+PROBLEM = "plate-poisson"  # 2-D Poisson, second order; the bundled solver confirms it on 4 levels
+
+
+class Faulty:
+    """The bundled FD solver, misbehaving on chosen levels (picklable: module-level class)."""
+
+    def __init__(self, **faults):
+        self.faults = faults
+
+    def __call__(self, case):
+        fault = self.faults.get(f"level{case.grid.level}")
+        if fault == "raise":
+            raise RuntimeError("matrix assembly failed")
+        if fault == "sleep":
+            time.sleep(30)
+        if fault == "exit":
+            os._exit(7)
+        sol = fd_solve(case)
+        if fault == "nan":
+            u = sol.values["u"].copy()
+            u[2, 2] = np.nan
+            return Solution({"u": u}, sol.points, sol.weights)
+        if fault == "shape":
+            return Solution({"u": sol.values["u"][:-1]}, sol.points, sol.weights)
+        return sol
+
+
+def _errors(result):
+    return [lv.errors["u"]["L2"] for lv in result.levels]
+
+
+def test_process_pool_gives_the_serial_result():
+    serial = run_study(PROBLEM, "poisson2d", levels=4)
+    pooled = run_study(PROBLEM, "poisson2d", levels=4, workers=2)
+    assert serial.passed and pooled.passed
+    assert _errors(pooled) == _errors(serial)
+    assert [lv.level for lv in pooled.levels] == [0, 1, 2, 3]
+
+
+def test_any_executor_and_progress_callback():
+    seen = []
+    with ThreadPoolExecutor(2) as pool:
+        result = run_study(PROBLEM, "poisson2d", levels=3, executor=pool, progress=seen.append)
+    assert result.passed
+    assert sorted(lv.level for lv in seen) == [0, 1, 2]
+
+
+def test_crash_nan_and_wrong_shape_are_recorded_per_level():
+    solver = Faulty(level1="raise", level2="nan", level4="shape")
+    result = run_study(PROBLEM, solver, levels=5, base_cells=4, workers=2)
+    status = [lv.status for lv in result.levels]
+    assert status == ["ok", "failed", "failed", "ok", "failed"]
+    assert "RuntimeError: matrix assembly failed" in result.levels[1].message
+    assert "NaN" in result.levels[2].message
+    assert "shape" in result.levels[4].message
+    assert result.verdicts and all("levels 0-3" in v.reason for v in result.verdicts)
+    text = str(result)
+    assert "level 1 failed" in text and "level 4 failed" in text
+
+
+@pytest.mark.parametrize("workers", [None, 2])
+def test_a_level_past_the_time_limit_is_stopped_and_recorded(workers):
+    start = time.monotonic()
+    result = run_study(PROBLEM, Faulty(level1="sleep"), levels=3, timeout=2, workers=workers)
+    assert time.monotonic() - start < 15
+    assert [lv.status for lv in result.levels] == ["ok", "failed", "ok"]
+    assert "no result within 2 s" in result.levels[1].message
+
+
+def test_a_dead_worker_fails_only_its_level():
+    result = run_study(PROBLEM, Faulty(level1="exit"), levels=3, workers=2)
+    assert [lv.status for lv in result.levels] == ["ok", "failed", "ok"]
+    assert "worker process died" in result.levels[1].message
+
+
+def test_unpicklable_solver_with_workers_is_a_clear_error():
+    with pytest.raises(SolverError, match="cannot be sent to worker processes"):
+        run_study(PROBLEM, lambda case: fd_solve(case), levels=2, workers=2)
+
+
+def test_bad_limits_are_refused():
+    with pytest.raises(SolverError, match="positive"):
+        run_study(PROBLEM, "poisson2d", levels=2, timeout=0)
+    with pytest.raises(SolverError, match="workers"):
+        run_study(PROBLEM, "poisson2d", levels=2, workers=0)
+
+
+def test_several_studies_in_parallel():
+    jobs = [{"problem": PROBLEM, "solver": "poisson2d", "levels": 3},
+            {"problem": PROBLEM, "solver": "poisson2d-neumann1", "levels": 3}]
+    good, bad = run_studies(jobs, workers=2)
+    assert good.solver == "poisson2d" and bad.solver == "poisson2d-neumann1"
+    assert good.passed and not bad.passed  # the seeded first-order Neumann mistake is caught
+    with pytest.raises(SolverError, match="study job 0"):
+        run_studies([{"problem": PROBLEM, "solver": "no_such_module:solve"}])
+
+
+def test_dask_local_cluster():
+    distributed = pytest.importorskip("distributed", reason="Dask is optional: pip install 'mmsverify[dask]'")
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
+                                  dashboard_address=None) as cluster, distributed.Client(cluster) as client:
+        result = run_study(PROBLEM, "poisson2d", levels=3, executor=client)
+    serial = run_study(PROBLEM, "poisson2d", levels=3)
+    assert _errors(result) == _errors(serial)
