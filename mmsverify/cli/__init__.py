@@ -20,7 +20,7 @@ __all__ = ["main", "EXIT_OK", "EXIT_FAIL", "EXIT_INPUT", "EXIT_INCONCLUSIVE"]
 EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_INCONCLUSIVE = 0, 1, 2, 3
 
 # Command modules, in the order `--help` lists them.
-_COMMANDS = ("_demo", "_run", "_derive", "_list", "_split", "_export", "_report", "_baseline", "_estimate", "_audit")
+_COMMANDS = ("_demo", "_run", "_derive", "_list", "_split", "_export", "_report", "_baseline", "_estimate", "_audit", "_catalogue")
 
 
 def build_parser():
@@ -57,3 +57,7 @@ def main(argv=None):
     except KeyboardInterrupt:
         print("mmsverify: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into `head` and the like: stop quietly
+        import os
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 141
