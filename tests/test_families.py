@@ -93,3 +93,14 @@ def test_constants_are_named_after_the_field_and_can_be_set():
 def test_bad_family_requests_are_refused_clearly(call, message):
     with pytest.raises(ProblemError, match=message):
         call()
+
+
+def test_bundled_style_divergence_free_flow_file_is_sound_and_has_no_mass_source():
+    from pathlib import Path
+    from mmsverify.problem import load_problem
+    p = load_problem(Path(__file__).parent / "data" / "vortex-stream.toml")
+    x, y = p.coords
+    assert is_divergence_free([p.fields["u"], p.fields["v"]], (x, y)) and p.equations["p"] == 0
+    a = audit(p, starts=2)
+    assert a.ok, a.warnings
+    assert {c.name for c in a.admissibility.checks} >= {"speed", "Re_cell"}
