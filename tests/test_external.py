@@ -254,3 +254,16 @@ def test_c_demo_failure_to_converge_is_recorded(c_demo):
     assert not any(lv.ok for lv in result.levels) and not result.passed
     assert "exited with code 3" in result.levels[0].message
     assert "no convergence within param.max_sweeps" in result.levels[0].message
+
+
+def test_c_demo_from_the_command_line_with_workers_and_cache(c_demo, tmp_path, capsys):
+    from mmsverify.cli import main
+    argv = ["run", "plate-poisson", "--external", f"{c_demo} {{case}}", "--workers", "2",
+            "--cache", str(tmp_path / "cache"), "--json", str(tmp_path / "study.json")]
+    assert main(argv) == 0
+    assert "PASS  plate-poisson  solved by  external:poisson2d" in capsys.readouterr().out
+    assert len(list((tmp_path / "cache" / "runs").rglob("case.toml"))) == 4  # the study folder by default
+    assert main(argv) == 0  # the rerun takes every level from the cache
+    data = json.loads((tmp_path / "study.json").read_text())
+    assert all(lv["message"].startswith("reused from the level cache") for lv in data["levels"])
+    assert main(["run", "plate-poisson", "poisson2d", "--external", "x {case}"]) == 2

@@ -1,9 +1,12 @@
 """``mmsverify run PROBLEM SOLVER``: a manufactured-solution study."""
 
 import json
+import shlex
 import sys
 from pathlib import Path
 
+from ..errors import SolverError
+from ..external import OUTPUT_FORMATS, ExternalSolver
 from ..study import MODES, run_study
 from . import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_OK
 
@@ -17,6 +20,33 @@ def add_study_options(p):
     p.add_argument("--base-steps", type=int, help="time steps on the coarsest level (transient problems)")
     p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order (default: problem's)")
     p.add_argument("--formal-order", type=float, help="override the problem's formal order")
+    add_execution_options(p)
+
+
+def add_execution_options(p):
+    """Options for where and how levels run: processes, time limits, cache, external programs."""
+    g = p.add_argument_group("execution")
+    g.add_argument("--workers", type=int, metavar="N",
+                   help="run the levels in a local pool of N processes (default: one after another)")
+    g.add_argument("--timeout", type=float, metavar="SECONDS", help="time limit per level; slower levels fail")
+    g.add_argument("--cache", metavar="DIR", help="keep finished levels in DIR; reruns and resumed studies reuse them")
+    g.add_argument("--fresh", action="store_true", help="with --cache: recompute every level and overwrite")
+    g.add_argument("--dask", metavar="ADDRESS",
+                   help="run the levels on a Dask cluster (scheduler address, or 'local' for one on this machine)")
+    g.add_argument("--external", metavar="COMMAND",
+                   help="solve each level with an external program, e.g. \"./poisson2d {case}\"; split like a "
+                        "shell command line but never run through a shell; placeholders {case} {out} {dir} {level} "
+                        "{problem} {hash}")
+    g.add_argument("--output-format", choices=OUTPUT_FORMATS, default="csv",
+                   help="solution file the external program writes (default csv)")
+    g.add_argument("--case-format", choices=("toml", "json"), default="toml", help="case file format (default toml)")
+    g.add_argument("--workdir", metavar="DIR",
+                   help="keep each level's case file, output log and solution in DIR (default: <cache>/runs with "
+                        "--cache, else temporary)")
+    g.add_argument("--param", action="append", default=[], metavar="NAME=VALUE",
+                   help="parameter for the external program's case file (repeatable)")
+    g.add_argument("--spacing", choices=("grid", "volumes"), default="grid",
+                   help="h of a level: from the case grid, or (V/N)^(1/d) from the program's cell volumes")
 
 
 def exit_code(result):
@@ -27,10 +57,57 @@ def exit_code(result):
     return EXIT_INCONCLUSIVE
 
 
+def _param(text):
+    name, sep, value = text.partition("=")
+    if not sep or not name.strip():
+        raise SolverError(f"--param {text!r}: write NAME=VALUE, e.g. --param omega=1.8")
+    value = value.strip()
+    for kind in (int, float):
+        try:
+            return name.strip(), kind(value)
+        except ValueError:
+            pass
+    return name.strip(), {"true": True, "false": False}.get(value.lower(), value)
+
+
+def external_from_args(args):
+    """The ExternalSolver that ``--external`` describes, or None."""
+    command = getattr(args, "external", None)
+    if not command:
+        return None
+    workdir = args.workdir or (str(Path(args.cache) / "runs") if args.cache else None)
+    return ExternalSolver(shlex.split(command), fmt=args.output_format, case_format=args.case_format,
+                          workdir=workdir, params=dict(_param(p) for p in args.param), spacing=args.spacing,
+                          timeout=args.timeout)
+
+
+def _dask_client(address, workers):
+    try:
+        import distributed
+    except ImportError:
+        raise SolverError("--dask needs the optional Dask dependency: pip install 'mmsverify[dask]'") from None
+    if address == "local":
+        return distributed.Client(distributed.LocalCluster(n_workers=workers or 2, threads_per_worker=1,
+                                                           dashboard_address=None))
+    return distributed.Client(address)
+
+
 def study_from_args(args, problem, solver, progress=None):
-    return run_study(problem, solver, levels=args.levels, base_cells=args.base_cells, ratio=args.ratio,
-                     mode=args.mode, base_steps=args.base_steps, tolerance=args.tolerance,
-                     formal_order=args.formal_order, progress=progress)
+    solver = external_from_args(args) or solver
+    kwargs = dict(levels=args.levels, base_cells=args.base_cells, ratio=args.ratio, mode=args.mode,
+                  base_steps=args.base_steps, tolerance=args.tolerance, formal_order=args.formal_order,
+                  progress=progress, timeout=getattr(args, "timeout", None),
+                  cache_dir=getattr(args, "cache", None), resume=not getattr(args, "fresh", False))
+    if getattr(args, "dask", None):
+        client = _dask_client(args.dask, args.workers)
+        try:
+            return run_study(problem, solver, executor=client, **kwargs)
+        finally:
+            cluster = client.cluster
+            client.close()
+            if args.dask == "local" and cluster is not None:
+                cluster.close()
+    return run_study(problem, solver, workers=getattr(args, "workers", None), **kwargs)
 
 
 def write_json(result, path):
@@ -42,12 +119,16 @@ def write_json(result, path):
 
 
 def _run(args):
-    if args.solver is None:
-        print("mmsverify run: name a solver: a bundled one (see `mmsverify list`) or module:function",
-              file=sys.stderr)
+    if args.solver is None and not args.external:
+        print("mmsverify run: name a solver: a bundled one (see `mmsverify list`) or module:function, "
+              "or an external program with --external", file=sys.stderr)
+        return 2
+    if args.solver is not None and args.external:
+        print("mmsverify run: give either a solver or --external, not both", file=sys.stderr)
         return 2
     from ..progress import progress_for
-    result = study_from_args(args, args.problem, args.solver, progress_for(args, label=f"{args.problem} / {args.solver}"))
+    label = args.solver or args.external
+    result = study_from_args(args, args.problem, args.solver, progress_for(args, label=f"{args.problem} / {label}"))
     print(result)
     if args.json:
         write_json(result, args.json)
@@ -60,7 +141,7 @@ def register(sub):
                        description="Run SOLVER on PROBLEM over a refinement sequence, print errors, observed "
                                    "orders and the verdict against the formal order.")
     p.add_argument("problem", help="problem file (.toml) or bundled problem name")
-    p.add_argument("solver", nargs="?", help="bundled solver name or module:function")
+    p.add_argument("solver", nargs="?", help="bundled solver name or module:function (or use --external)")
     add_study_options(p)
     p.add_argument("--json", metavar="PATH", help="also write every number as JSON")
     p.set_defaults(func=_run)
