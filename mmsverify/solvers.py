@@ -74,6 +74,23 @@ class Solution:
 BUNDLED_SOLVERS = MappingProxyType({
     "poisson2d": "solvers_demo.fd.poisson:solve",
     "poisson2d-neumann1": "solvers_demo.fd.poisson:solve_first_order_neumann",
+    "fd-diffusion": "solvers_demo.bundled:fd_diffusion",
+    "fd-diffusion-neumann1": "solvers_demo.bundled:fd_diffusion_neumann1",
+    "fd-diffusion-neumann3pt": "solvers_demo.bundled:fd_diffusion_neumann3pt",
+    "fd-heat-euler": "solvers_demo.bundled:fd_heat_euler",
+    "fd-heat-cn": "solvers_demo.bundled:fd_heat_cn",
+    "fd-burgers": "solvers_demo.bundled:fd_burgers",
+    "fd-advection-upwind": "solvers_demo.bundled:fd_advection_upwind",
+    "fd-advection-central": "solvers_demo.bundled:fd_advection_central",
+    "fd-advection-upwind2": "solvers_demo.bundled:fd_advection_upwind2",
+    "fv-diffusion": "solvers_demo.bundled:fv_diffusion",
+    "fv-diffusion-stretched": "solvers_demo.bundled:fv_diffusion_stretched",
+    "fv-diffusion-skewed": "solvers_demo.bundled:fv_diffusion_skewed",
+    "fv-diffusion-perturbed": "solvers_demo.bundled:fv_diffusion_perturbed",
+    "fv-two-point": "solvers_demo.bundled:fv_two_point",
+    "fv-advection-upwind": "solvers_demo.bundled:fv_advection_upwind",
+    "fv-advection-unlimited": "solvers_demo.bundled:fv_advection_unlimited",
+    "fv-advection-limited": "solvers_demo.bundled:fv_advection_limited",
 })
 
 

@@ -207,3 +207,12 @@ def test_fv_limited_advection_loses_order_at_extrema(grid):
         assert orders["L1"] < 1.7
     else:
         assert abs(orders["L1"] - 2.0) <= 0.1
+
+
+def test_bundled_demo_solvers_resolve():
+    from mmsverify.solvers import BUNDLED_SOLVERS, resolve_solver
+    demo = [name for name, target in BUNDLED_SOLVERS.items() if target.startswith("solvers_demo.")]
+    assert {"poisson2d", "poisson2d-neumann1", "fd-heat-cn", "fv-diffusion-perturbed"} <= set(demo)
+    for name in demo:
+        solver = resolve_solver(name)
+        assert callable(solver) and solver.formal_order in (1, 2)
