@@ -1,16 +1,25 @@
 """Derivation: exact solution, source terms and boundary data as numbers.
 
 :func:`derive` turns a :class:`~mmsverify.problem.Problem` into a
-:class:`Manufactured` bundle of NumPy evaluators. The sympy expressions are
-compiled lazily, once per process, with common-subexpression elimination,
-so a bundle can be pickled to worker processes cheaply.
+:class:`Manufactured` bundle of NumPy evaluators. Each expression is
+compiled lazily, once per process, into generated NumPy code
+(common-subexpression elimination, lower-dimensional parts hoisted, block
+evaluation with bounded temporaries; see :mod:`mmsverify._evaluate`). The
+generated code of a problem is kept in the on-disk cache
+(:mod:`mmsverify._diskcache`) next to the derived problem, so a second run
+of the same problem content neither differentiates nor generates code
+again. A bundle pickles to worker processes as the problem alone.
 """
 
+from collections import OrderedDict
 from functools import lru_cache
+import threading
 
 import numpy as np
 import sympy as sp
 
+from . import _diskcache
+from ._evaluate import Evaluator, build_program
 from .errors import ProblemError
 from .problem import Problem, get_problem
 
@@ -21,24 +30,62 @@ _AXIS = {"x": 0, "y": 1, "z": 2}
 
 @lru_cache(maxsize=512)
 def _compiled(expr, args):
-    return sp.lambdify(args, expr, modules="numpy", cse=True)
+    return Evaluator(build_program(expr, args))
 
 
 def compile_expression(expr, args):
     """NumPy function of ``args`` for a sympy expression, with CSE, cached by content.
 
     The result always has the broadcast shape of its inputs, also for a
-    constant expression.
+    constant expression, and is a new array the caller may modify.
+
+    Examples
+    --------
+    >>> x, y = sp.symbols("x y")
+    >>> f = compile_expression(sp.sin(x) * y, (x, y))
+    >>> f(np.zeros(2), 3.0)
+    array([0., 0.])
     """
-    fn = _compiled(sp.sympify(expr), tuple(args))
+    return _compiled(sp.sympify(expr), tuple(args))
 
-    def evaluate(*values):
-        out = fn(*values)
-        shape = np.broadcast_shapes(*(np.shape(v) for v in values)) if values else ()
-        out = np.asarray(out, dtype=float)
-        return out if out.shape == shape else np.broadcast_to(out, shape).copy()
 
-    return evaluate
+def _parameters_hash(problem):
+    """Parameters are not part of the content hash; programs of them are keyed by this too."""
+    import hashlib
+    text = repr(sorted((k, sp.srepr(v)) for k, v in problem.parameters.items()))
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+class _Programs:
+    """Generated programs of one problem: in memory, then on disk, else built."""
+
+    _lock = threading.Lock()
+    _memory = OrderedDict()          # (content hash, args) -> {key: Evaluator}
+
+    @staticmethod
+    def ident(problem, args):
+        """What identifies the generated programs of a problem."""
+        return problem.content_hash(), tuple(str(a) for a in args), _parameters_hash(problem)
+
+    @classmethod
+    def evaluator(cls, ident, args, key, make_expr):
+        with cls._lock:
+            table = cls._memory.get(ident)
+            if table is None:
+                stored = _diskcache.load("programs", _diskcache.make_key(*ident))
+                table = {k: Evaluator(v) for k, v in (stored or {}).items()} if isinstance(stored, dict) else {}
+                cls._memory[ident] = table
+                while len(cls._memory) > 64:
+                    cls._memory.popitem(last=False)
+            found = table.get(key)
+        if found is not None:
+            return found
+        program = build_program(make_expr(), args)
+        with cls._lock:
+            table[key] = Evaluator(program)
+            snapshot = {k: e.program for k, e in table.items()}
+        _diskcache.store("programs", _diskcache.make_key(*ident), snapshot)
+        return table[key]
 
 
 class Manufactured:
@@ -60,7 +107,7 @@ class Manufactured:
         self.problem = problem
         args = problem.coords + ((problem.t,) if problem.t is not None else ())
         self._args = args
-        self._hash = problem.content_hash()
+        self._ident = None
 
     def __getstate__(self):
         return {"problem": self.problem}
@@ -69,7 +116,7 @@ class Manufactured:
         self.__init__(state["problem"])
 
     # -- plumbing ---------------------------------------------------------
-    def _eval(self, expr, coords, t):
+    def _eval(self, key, make_expr, coords, t):
         p = self.problem
         if len(coords) != p.dim:
             raise ProblemError(f"{p.name}: expected {p.dim} coordinate arrays, got {len(coords)}")
@@ -78,7 +125,9 @@ class Manufactured:
             if t is None:
                 raise ProblemError(f"{p.name} is transient: pass t=... to evaluate it")
             values += (t,)
-        return compile_expression(expr, self._args)(*values)
+        if self._ident is None:
+            self._ident = _Programs.ident(p, self._args)
+        return _Programs.evaluator(self._ident, self._args, key, make_expr)(*values)
 
     def _check_field(self, name, table, what="field"):
         if name not in table:
@@ -94,17 +143,17 @@ class Manufactured:
     # -- public -----------------------------------------------------------
     @property
     def content_hash(self):
-        return self._hash
+        return self.problem.content_hash()
 
     def exact(self, name, *coords, t=None):
         """Exact value of a field."""
         self._check_field(name, self.problem.fields)
-        return self._eval(self.problem.fields[name], coords, t)
+        return self._eval(f"exact_{name}", lambda: self.problem.fields[name], coords, t)
 
     def source(self, name, *coords, t=None):
         """Manufactured source term of an equation (named after its field)."""
         self._check_field(name, self.problem.equations, "equation")
-        return self._eval(self.problem.equations[name], coords, t)
+        return self._eval(f"source_{name}", lambda: self.problem.equations[name], coords, t)
 
     def initial(self, name, *coords):
         """Initial value of a field at the start of the time interval."""
@@ -129,7 +178,9 @@ class Manufactured:
 
     def normal_derivative(self, name, side, *coords, t=None):
         """Outward normal derivative ``grad(u) . n`` of a field on a side."""
-        return self._eval(self.normal_derivative_expr(name, side), coords, t)
+        self._side(side)
+        self._check_field(name, self.problem.fields)
+        return self._eval(f"dudn_{name}_{side}", lambda: self.normal_derivative_expr(name, side), coords, t)
 
     def normal_flux_expr(self, name, side):
         axis, sign = self._side(side)
@@ -141,12 +192,13 @@ class Manufactured:
 
     def normal_flux(self, name, side, *coords, t=None):
         """Outward normal flux (e.g. ``k grad(u) . n`` for diffusion) on a side."""
-        return self._eval(self.normal_flux_expr(name, side), coords, t)
+        self.normal_flux_expr(name, side)       # checks the side and that a flux exists
+        return self._eval(f"flux_{name}_{side}", lambda: self.normal_flux_expr(name, side), coords, t)
 
     def parameter(self, name, *coords, t=None):
         """An operator parameter (coefficient) evaluated with the exact fields."""
         self._check_field(name, self.problem.parameters, "parameter")
-        return self._eval(self.problem.parameters[name], coords, t)
+        return self._eval(f"parameter_{name}", lambda: self.problem.parameters[name], coords, t)
 
     def exact_quantity(self, name, t=None):
         """Exact value of a functional declared under ``[quantities]``.
@@ -162,7 +214,7 @@ class Manufactured:
         if p.t is not None and t is None:
             t = p.t_range[1]
         if kind == "point":
-            return float(self._eval(expr, where, t))
+            return float(self._eval(f"quantity_{name}", lambda: expr, where, t))
         axes = list(range(p.dim))
         fixed = {}
         if kind == "flux":
@@ -179,7 +231,7 @@ class Manufactured:
             w = w * (0.5 * (hi - lo) * weights).reshape(shape)
         for a, v in fixed.items():
             coords[a] = np.array(v)
-        values = self._eval(expr, coords, t)
+        values = self._eval(f"quantity_{name}", lambda: expr, coords, t)
         return float(np.sum(w * values))
 
     def expressions(self):

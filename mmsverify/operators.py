@@ -178,68 +178,107 @@ def _ns_flux(q, X, par):
 _VELOCITY = ("u", "v", "w")
 
 
-def _compressible_parts(q, X, par):
+def _compressible_parts(q, X, par, d):
     """Velocity list, stress tensor and heat flux of the compressible operator."""
     vel = [q[c] for c in _VELOCITY[: len(X)]]
     mu, gamma, pr = par["mu"], par["gamma"], par["Pr"]
-    div_u = sp.Add(*[sp.diff(c, xi) for c, xi in zip(vel, X)])
-    tau = [[mu * (sp.diff(vel[i], X[j]) + sp.diff(vel[j], X[i]))
+    div_u = sp.Add(*[d(c, xi) for c, xi in zip(vel, X)])
+    tau = [[mu * (d(vel[i], X[j]) + d(vel[j], X[i]))
             - (sp.Rational(2, 3) * mu * div_u if i == j else 0)
             for j in range(len(X))] for i in range(len(X))]
     conduct = gamma * mu / ((gamma - 1) * pr)
-    heat = [-conduct * sp.diff(q["p"] / q["rho"], xi) for xi in X]
+    heat = [-conduct * d(q["p"] / q["rho"], xi) for xi in X]
     return vel, tau, heat
 
 
-def _by_chain_rule(build, q, X, t, par):
-    """Run ``build`` on undefined functions for the fields, then insert the fields.
+class _Jet:
+    """Fields and their partial derivatives as plain symbols (a jet), for the chain rule.
 
     Differentiating products of the full fields repeats the differentiation
     of each field in every product and makes the result grow with the
-    number of terms; built on placeholders, the operator is differentiated
-    on small expressions, each field derivative is computed once, and the
-    result shares it wherever it occurs (which CSE then finds at once).
+    number of terms. On jet symbols the operator is differentiated as a
+    small expression (``d`` applies the chain rule), each field derivative
+    is then computed once, and the result shares it wherever it occurs
+    (which CSE later finds at once).
     """
-    args = tuple(X) + ((t,) if t is not None else ())
-    funcs = {sp.Function(f"_field_{k}")(*args): k for k in q}
-    out = build({k: f for f, k in funcs.items()}, X, t, par)
-    exprs = [e for v in out.values() for e in (v if isinstance(v, list) else [v])]
-    mapping = {f: q[k] for f, k in funcs.items()}
-    for e in exprs:
-        for d in sp.sympify(e).atoms(sp.Derivative):
-            if d not in mapping and d.expr in funcs:     # derivatives of coefficients stay as they are
-                mapping[d] = sp.diff(q[funcs[d.expr]], *d.variable_count)
-    return {k: ([sp.sympify(c).xreplace(mapping) for c in v] if isinstance(v, list)
-                else sp.sympify(v).xreplace(mapping)) for k, v in out.items()}
+
+    def __init__(self, q, variables):
+        self.q, self.variables = q, tuple(variables)
+        self.order = {}                       # jet symbol -> (field, counts)
+        self.symbol = {}                      # (field, counts) -> jet symbol
+        self.fields = {k: self._sym(k, (0,) * len(self.variables)) for k in q}
+        self._values = {}
+
+    def _sym(self, name, counts):
+        key = (name, counts)
+        if key not in self.symbol:
+            sym = sp.Symbol(f"_jet_{name}_" + "_".join(map(str, counts)))
+            self.symbol[key], self.order[sym] = sym, key
+        return self.symbol[key]
+
+    def d(self, expr, var):
+        """Total derivative of an expression in jet symbols and coordinates."""
+        expr = sp.sympify(expr)
+        i = self.variables.index(var)
+        out = [sp.diff(expr, var)]
+        for sym in expr.free_symbols & self.order.keys():
+            name, counts = self.order[sym]
+            up = counts[:i] + (counts[i] + 1,) + counts[i + 1:]
+            out.append(sp.diff(expr, sym) * self._sym(name, up))
+        return sp.Add(*out)
+
+    def insert(self, expr):
+        """Replace jet symbols by the fields' derivatives (each computed once)."""
+        done = self._values
+
+        def value(key):
+            if key not in done:
+                name, counts = key
+                i = next((j for j, c in enumerate(counts) if c), None)
+                if i is None:
+                    done[key] = self.q[name]
+                else:
+                    lower = counts[:i] + (counts[i] - 1,) + counts[i + 1:]
+                    done[key] = sp.diff(value((name, lower)), self.variables[i])
+            return done[key]
+        return sp.sympify(expr).xreplace({s: value(k) for s, k in self.order.items() if s in expr.free_symbols})
+
+
+def _by_chain_rule(build, q, X, t, par):
+    """Run ``build(fields, X, t, par, d)`` on a jet, then insert the fields' derivatives."""
+    jet = _Jet(q, tuple(X) + ((t,) if t is not None else ()))
+    out = build(jet.fields, X, t, par, jet.d)
+    return {k: ([jet.insert(c) for c in v] if isinstance(v, list) else jet.insert(v)) for k, v in out.items()}
 
 
 def _ns_compressible(q, X, t, par):
-    return _by_chain_rule(_ns_compressible_placeholders, q, X, t, par)
+    return _by_chain_rule(_ns_compressible_jet, q, X, t, par)
 
 
-def _ns_compressible_placeholders(q, X, t, par):
+def _ns_compressible_jet(q, X, t, par, d):
     rho, p, gamma = q["rho"], q["p"], par["gamma"]
-    vel, tau, heat = _compressible_parts(q, X, par)
+    vel, tau, heat = _compressible_parts(q, X, par, d)
     dim = len(X)
+
+    def div(vec):
+        return sp.Add(*[d(c, xi) for c, xi in zip(vec, X)])
     rho_e = p / (gamma - 1) + rho * sp.Add(*[c ** 2 for c in vel]) / 2
-    res = {"rho": _div([rho * c for c in vel], X)}
+    res = {"rho": div([rho * c for c in vel])}
     for i, name in enumerate(_VELOCITY[:dim]):
-        flux = [rho * vel[i] * vel[j] + (p if i == j else 0) - tau[i][j] for j in range(dim)]
-        res[name] = _div(flux, X)
-    energy = [(rho_e + p) * vel[j] - sp.Add(*[vel[i] * tau[i][j] for i in range(dim)]) + heat[j]
-              for j in range(dim)]
-    res["p"] = _div(energy, X)
+        res[name] = div([rho * vel[i] * vel[j] + (p if i == j else 0) - tau[i][j] for j in range(dim)])
+    res["p"] = div([(rho_e + p) * vel[j] - sp.Add(*[vel[i] * tau[i][j] for i in range(dim)]) + heat[j]
+                    for j in range(dim)])
     if t is not None:
-        res["rho"] += sp.diff(rho, t)
+        res["rho"] += d(rho, t)
         for name, c in zip(_VELOCITY, vel):
-            res[name] += sp.diff(rho * c, t)
-        res["p"] += sp.diff(rho_e, t)
+            res[name] += d(rho * c, t)
+        res["p"] += d(rho_e, t)
     return res
 
 
 def _ns_compressible_flux(q, X, par):
-    def build(q, X, t, par):
-        _, tau, _ = _compressible_parts(q, X, par)
+    def build(q, X, t, par, d):
+        _, tau, _ = _compressible_parts(q, X, par, d)
         return {name: list(tau[i]) for i, name in enumerate(_VELOCITY[: len(X)])}
     return _by_chain_rule(build, q, X, None, par)
 

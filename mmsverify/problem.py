@@ -50,7 +50,7 @@ is ever executed. The format, with every table but ``[fields]`` optional::
     ratio = 2
 """
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 import hashlib
 import json
 from pathlib import Path
@@ -59,6 +59,7 @@ import tomllib
 
 import sympy as sp
 
+from . import _diskcache
 from .errors import ProblemError, MMSError
 from .expr import parse_expression
 from .operators import OPERATORS, get_operator, derivative_functions
@@ -155,7 +156,14 @@ class Problem:
         return tuple(self.fields)
 
     def content_hash(self):
-        """SHA-256 of everything that defines the mathematics (not the name)."""
+        """SHA-256 of everything that defines the mathematics (not the name).
+
+        Computed once per instance (printing large source terms takes a
+        while) and kept with the problem in the derivation cache.
+        """
+        memo = self.__dict__.get("_content_hash")
+        if memo is not None:
+            return memo
         blob = json.dumps({
             "coords": [str(c) for c in self.coords], "t": str(self.t),
             "box": [self.lower, self.upper, self.t_range],
@@ -165,7 +173,9 @@ class Problem:
             "boundaries": sorted(f"{f}:{s}:{k}" for (f, s), k in self.boundaries.items()),
             "quantities": {k: [q[0], sp.srepr(q[1]), str(q[2])] for k, q in self.quantities.items()},
         }, sort_keys=True)
-        return hashlib.sha256(blob.encode()).hexdigest()
+        memo = hashlib.sha256(blob.encode()).hexdigest()
+        object.__setattr__(self, "_content_hash", memo)
+        return memo
 
     def boundary_kind(self, field_name, side):
         return self.boundaries[(field_name, side)]
@@ -430,7 +440,21 @@ def problem_from_text(text, source="<text>"):
         raise ProblemError(f"{source}: not valid TOML ({exc}); check quotes and brackets") from None
     except (RecursionError, MemoryError):
         raise ProblemError(f"{source}: nested too deeply to read") from None
-    return _Reader(data, text, source).read()
+    # Derivation cache (mmsverify._diskcache): the same text gives the same
+    # problem; only the name default and the source depend on where it is.
+    key = _diskcache.make_key("problem", text)
+    cached = _diskcache.load("problem", key)
+    if isinstance(cached, Problem):
+        name = data.get("name", Path(source).stem)
+        if (name, source) != (cached.name, cached.source):
+            memo = cached.content_hash()
+            cached = replace(cached, name=name, source=source)
+            object.__setattr__(cached, "_content_hash", memo)
+        return cached
+    problem = _Reader(data, text, source).read()
+    problem.content_hash()
+    _diskcache.store("problem", key, problem)
+    return problem
 
 
 def load_problem(path):

@@ -1,0 +1,155 @@
+"""A small on-disk cache for derived problems and generated evaluator code.
+
+Deriving the source terms of a large system (3-D compressible
+Navier-Stokes) and generating its evaluator code takes seconds; reading the
+result back takes a small fraction of that. Entries are pickles in one
+directory:
+
+* ``$MMSVERIFY_CACHE`` when set (``off``, ``0`` or an empty value disable
+  the cache), else ``$XDG_CACHE_HOME/mmsverify``, else ``~/.cache/mmsverify``.
+* Every key includes a fingerprint of the code that produces the entries:
+  the package version, the sympy and Python versions and the text of the
+  modules that read problems, build operators and generate code. Editing
+  any of them, or upgrading sympy, starts a fresh set of entries.
+* Writes go to a temporary file that is then renamed over the entry, so a
+  reader never sees half a file, also with several processes at once.
+* At most ``MAX_ENTRIES`` entries are kept; a write that finds more
+  removes the least recently written ones.
+* An entry that cannot be read (truncated, corrupt, from another version)
+  is ignored, removed and rebuilt by the caller. An entry is only loaded
+  when the current user owns it and nobody else can write it, since
+  loading a pickle runs code.
+"""
+
+from functools import lru_cache
+import hashlib
+import os
+from pathlib import Path
+import pickle
+import sys
+import tempfile
+
+__all__ = ["cache_dir", "fingerprint", "make_key", "load", "store", "clear"]
+
+_OFF = ("", "0", "off", "no", "false", "none")
+# Modules whose text decides what an entry holds.
+_SOURCES = ("problem.py", "operators.py", "expr.py", "derive.py", "_evaluate.py", "_diskcache.py")
+# Entries kept; older ones (by modification time) are removed when a write finds more.
+MAX_ENTRIES = 256
+
+
+def cache_dir():
+    """The cache directory, or None when caching is switched off."""
+    env = os.environ.get("MMSVERIFY_CACHE")
+    if env is not None:
+        return None if env.strip().lower() in _OFF else Path(env).expanduser()
+    base = os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache"
+    return Path(base) / "mmsverify"
+
+
+@lru_cache(maxsize=1)
+def fingerprint():
+    """Hash of everything besides the input that an entry depends on."""
+    import sympy
+    from . import __version__
+    h = hashlib.sha256()
+    h.update(f"mmsverify {__version__}; sympy {sympy.__version__}; python {sys.version_info[:2]}".encode())
+    here = Path(__file__).resolve().parent
+    for name in _SOURCES:
+        try:
+            h.update((here / name).read_bytes())
+        except OSError:
+            h.update(f"missing {name}".encode())
+    return h.hexdigest()
+
+
+def make_key(*parts):
+    """Entry key from text parts and the code fingerprint."""
+    h = hashlib.sha256(fingerprint().encode())
+    for part in parts:
+        data = part if isinstance(part, bytes) else str(part).encode()
+        h.update(len(data).to_bytes(8, "little"))
+        h.update(data)
+    return h.hexdigest()[:40]
+
+
+def _path(kind, key):
+    root = cache_dir()
+    return None if root is None else root / f"{kind}-{key}.pkl"
+
+
+def _trusted(path):
+    if not hasattr(os, "getuid"):
+        return True
+    st = path.stat()
+    return st.st_uid == os.getuid() and not st.st_mode & 0o022
+
+
+def load(kind, key):
+    """The stored object, or None when absent, unreadable or caching is off."""
+    path = _path(kind, key)
+    if path is None:
+        return None
+    try:
+        if not _trusted(path):
+            return None
+        with open(path, "rb") as fh:
+            return pickle.load(fh)
+    except FileNotFoundError:
+        return None
+    except Exception:  # corrupt, truncated or stale: drop it, the caller rebuilds
+        try:
+            path.unlink()
+        except OSError:
+            pass
+        return None
+
+
+def store(kind, key, obj):
+    """Write an entry atomically; returns False (and stays quiet) when it cannot."""
+    path = _path(kind, key)
+    if path is None:
+        return False
+    tmp = None
+    try:
+        path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{kind}-", suffix=".tmp", dir=path.parent)
+        with os.fdopen(fd, "wb") as fh:
+            pickle.dump(obj, fh, protocol=pickle.HIGHEST_PROTOCOL)
+        os.replace(tmp, path)
+        _prune(path.parent)
+        return True
+    except Exception:  # a read-only or full disk must never stop a study
+        if tmp is not None:
+            try:
+                os.unlink(tmp)
+            except OSError:
+                pass
+        return False
+
+
+def _prune(root):
+    try:
+        entries = list(root.glob("*.pkl"))
+        if len(entries) <= MAX_ENTRIES:
+            return
+        entries.sort(key=lambda e: e.stat().st_mtime)
+        for e in entries[: len(entries) - MAX_ENTRIES * 3 // 4]:
+            e.unlink()
+    except OSError:          # another process pruned at the same time
+        pass
+
+
+def clear():
+    """Remove every entry; returns how many files were removed."""
+    root = cache_dir()
+    if root is None or not root.is_dir():
+        return 0
+    n = 0
+    for path in root.glob("*.pkl"):
+        try:
+            path.unlink()
+            n += 1
+        except OSError:
+            pass
+    return n
