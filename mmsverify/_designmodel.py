@@ -212,6 +212,19 @@ def _atoms(terms, field_funcs, param_funcs, fields, parameters):
     """Concrete value of every field, coefficient and derivative atom in the terms."""
     concrete = {F: fields[f] for f, F in field_funcs.items()}
     concrete |= {P: sp.sympify(parameters[k]) for k, P in param_funcs.items()}
+    cache = {}
+
+    def derivative(base, counts):
+        """Derivative of a concrete expression, built from the next lower one (each computed once)."""
+        key = (base, counts)
+        if key not in cache:
+            if not counts:
+                cache[key] = concrete[base]
+            else:
+                (var, n), rest = counts[0], counts[1:]
+                cache[key] = sp.diff(derivative(base, (((var, n - 1),) if n > 1 else ()) + rest), var)
+        return cache[key]
+
     out = {}
     for term in terms:
         expr = sp.sympify(term.expr)
@@ -219,7 +232,8 @@ def _atoms(terms, field_funcs, param_funcs, fields, parameters):
             if a in out:
                 continue
             if isinstance(a, sp.Derivative) and a.expr in concrete:
-                out[a] = diff(concrete[a.expr], *a.variable_count)
+                counts = tuple(sorted(((v, int(n)) for v, n in a.variable_count if n), key=lambda c: str(c[0])))
+                out[a] = derivative(a.expr, counts)
             elif a in concrete:
                 out[a] = concrete[a]
     return out
