@@ -27,7 +27,7 @@ of the domain and time interval:
     the ``[bounds]`` of the problem file and the positivity a built-in
     operator needs (conductivity, viscosity, density, pressure; see
     :data:`~mmsverify._designmodel.IMPLIED_LOWER`), by sampling and then by
-    bounded local optimisation (L-BFGS-B) from several starts over space and
+    bounded local optimisation (SLSQP) from several starts over space and
     time.
 
 :func:`audit` runs all three; :func:`design_warnings` is the fast version a
@@ -414,7 +414,7 @@ class AdmissibilityReport:
     def __str__(self):
         starts = max((c.starts for c in self.checks), default=0)
         lines = [f"physical admissibility of {self.problem} ({self.points} samples"
-                 + (f", then L-BFGS-B from {starts} starts per limit)" if starts else ")")]
+                 + (f", then SLSQP from {starts} starts per limit)" if starts else ")")]
         if not self.checks:
             lines.append("  no bounds stated (add a [bounds] table) and none implied by the operator")
         for c in self.checks:
@@ -440,7 +440,7 @@ def _extreme(fn, sign, pts, vals, box, starts, rng):
         return sign * v if np.isfinite(v) else 1e300
 
     for x0 in x0s:
-        res = minimize(g, x0, method="L-BFGS-B", bounds=list(zip(lo, hi)), options={"maxiter": 60})
+        res = minimize(g, x0, method="SLSQP", bounds=list(zip(lo, hi)), options={"maxiter": 60})
         if res.fun < value:
             value, point = float(res.fun), tuple(float(c) for c in res.x)
     return sign * value, point
@@ -449,12 +449,11 @@ def _extreme(fn, sign, pts, vals, box, starts, rng):
 def _admissibility(model, pts, starts, seed):
     checks = []
     rng = np.random.default_rng(seed)
-    for b in model.bounds:
-        single = model.compile([b.expr])
-        vals = single(*pts, *model.values)[0]
-
-        def fn(*z, _f=single):
-            return _f(*z, *model.values)[0]
+    every = model.compile([b.expr for b in model.bounds]) if model.bounds else None
+    values = every(*pts, *model.values) if every else []
+    for k, (b, vals) in enumerate(zip(model.bounds, values)):
+        def fn(*z, _k=k):
+            return every(*z, *model.values)[_k]
 
         varies = bool(sp.sympify(b.expr).free_symbols & set(model.variables))
         low, at_low = _extreme(fn, 1.0, pts, vals, model.box, starts if varies else 0, rng)
@@ -471,7 +470,7 @@ def admissibility_check(problem, starts=6, seed=0, per_axis=None):
     """Check the fields against the problem's bounds over space and time.
 
     Every bounded quantity is sampled on a grid (boundaries and corners
-    included) and then minimised and maximised with bounded L-BFGS-B from
+    included) and then minimised and maximised with bounded SLSQP from
     ``starts`` points (half the best samples, half drawn with ``seed``), so
     a violation between sample points is still found. ``starts=0`` samples
     only. Returns an :class:`AdmissibilityReport`.
