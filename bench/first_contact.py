@@ -6,7 +6,8 @@ Two measurements:
    end to end in a new process, with an empty derivation cache (first run
    on a machine) and again with the cache that run filled.
 2. Where the time goes: the same demo in a child process with light timers
-   wrapped around the stages: interpreter start and imports, reading and
+   wrapped around the stages: interpreter start and imports, building the
+   command parser (which imports every command module), reading and
    deriving problems (``problem_from_text``), generating evaluator code,
    evaluating exact solutions and sources, the solvers themselves (minus the
    evaluations they ask for), and the rest (norms, orders, verdicts, report).
@@ -32,7 +33,7 @@ import mmsverify
 from mmsverify import problem as problem_mod, study as study_mod, _evaluate, derive as _d
 import mmsverify.cli as cli
 imports = time.perf_counter() - w0
-spent = {"derive": 0.0, "codegen": 0.0, "evaluate": 0.0, "solver": 0.0}
+spent = {"cli": 0.0, "derive": 0.0, "codegen": 0.0, "evaluate": 0.0, "solver": 0.0}
 depth = []
 
 def timed(label, fn):
@@ -49,6 +50,7 @@ def timed(label, fn):
                 depth[-1] += total
     return wrapper
 
+cli.build_parser = timed("cli", cli.build_parser)
 problem_mod.problem_from_text = timed("derive", problem_mod.problem_from_text)
 sys.modules["mmsverify.derive"].build_program = timed("codegen", _evaluate.build_program)
 _evaluate.Evaluator.__call__ = timed("evaluate", _evaluate.Evaluator.__call__)
@@ -105,8 +107,8 @@ def main(argv=None):
     print()
     print(table(["run", "total s", "exit", "last line"], rows))
     print()
-    stages = ["start and imports", "derive", "codegen", "evaluate", "solver", "rest"]
-    names = {"derive": "read and derive problems", "codegen": "generate evaluator code",
+    stages = ["start and imports", "cli", "derive", "codegen", "evaluate", "solver", "rest"]
+    names = {"cli": "command parser (imports every command module)", "derive": "read and derive problems", "codegen": "generate evaluator code",
              "evaluate": "evaluate exact and source", "solver": "solvers (own work)",
              "rest": "norms, orders, verdicts, report"}
     split_rows = []
