@@ -156,7 +156,14 @@ def _python(problem, exprs):
 # -- C99 ------------------------------------------------------------------
 def _c(problem, exprs):
     names = function_names(problem, "c", list(exprs))
-    printer = C99CodePrinter()
+    printer = C99CodePrinter({"human": False})
+
+    def code(e):
+        _, unsupported, text = printer.doprint(e)
+        if unsupported:
+            raise ExportError(f"{problem.name}: C cannot express {sorted(map(str, unsupported))}; rewrite the "
+                              "manufactured solution with other functions")
+        return text
     sig = ", ".join(f"double {a}" for a in _args(problem))
     call = ", ".join(str(a) for a in _args(problem))
     guard = "MMS_" + re.sub(r"\W", "_", problem.name).upper() + "_H"
@@ -171,8 +178,8 @@ def _c(problem, exprs):
         out.append(f"/* {key} */")
         out.append(f"static inline double {names[key]}({sig})")
         out.append("{")
-        out += [f"    const double {s} = {printer.doprint(e)};" for s, e in repl]
-        out.append(f"    return {printer.doprint(reduced)};")
+        out += [f"    const double {s} = {code(e)};" for s, e in repl]
+        out.append(f"    return {code(reduced)};")
         out += ["}", ""]
     fields = list(problem.fields)
     out += ["/* field names, numbered from 0 */", "static inline const char *mms_field_name(int field)", "{"]

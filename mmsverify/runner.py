@@ -44,7 +44,7 @@ from .study import LevelResult, run_level
 __all__ = ["run_levels", "run_studies", "LevelTimeout", "remaining_time", "as_executor"]
 
 _DEADLINE = contextvars.ContextVar("mmsverify_level_deadline", default=None)
-_ALARM_GRACE = 0.25  # seconds; lets an external program's own timeout report first
+_ALARM_GRACE = 1.0  # seconds; lets an external program's own time-out (and kill) report first
 _WAIT_SLACK = 60.0   # seconds added to the overall wait when limits cannot be enforced in workers
 
 
@@ -198,7 +198,9 @@ def run_levels(solve, cases, wheres, *, executor=None, workers=None, timeout=Non
 
 
 def _through(pool, owned, solve, cases, wheres, pending, timeout, finish):
-    futures = {pool.submit(_execute, solve, cases[i], wheres[i], timeout): i for i in pending}
+    # Largest levels first: the finest level dominates, so it should never wait for a worker.
+    order = sorted(pending, key=lambda i: -cases[i].grid.n_cells * (cases[i].grid.steps or 1))
+    futures = {pool.submit(_execute, solve, cases[i], wheres[i], timeout): i for i in order}
     deadline = None if timeout is None else time.monotonic() + timeout * len(pending) + _WAIT_SLACK
     waiting, broken = set(futures), []
     while waiting:
