@@ -386,6 +386,10 @@ def read_solution(path, problem, fmt=None, *, max_bytes=1 << 30):
 
 
 # -- the solver -----------------------------------------------------------
+def _safe(name):
+    return re.sub(r"[^A-Za-z0-9_.-]", "_", name)
+
+
 def _file_digest(path, limit=1 << 28):
     try:
         p = Path(path)
@@ -413,8 +417,9 @@ class ExternalSolver:
         Seconds per level; the program's process group is killed after it.
         A study's own time limit (``run_study(timeout=...)``) also applies.
     workdir : path, optional
-        Study folder; each level gets ``<problem>-<hash>/level-<k>-<cells>/``
-        with its case file, output log and solution, kept for inspection.
+        Study folder; each level gets
+        ``<problem>-<hash>/<solver>-<digest>/level-<k>-<cells>/`` with its case
+        file, output log and solution, kept for inspection.
         By default a temporary folder per level, removed afterwards.
     case_format : {"toml", "json"}
     params : dict, optional
@@ -508,7 +513,8 @@ class ExternalSolver:
         grid, problem = case.grid, case.problem
         where = f"problem {problem.name}, level {grid.level} ({grid.describe()}), program {self.command[0]}"
         if self.workdir:
-            folder = Path(self.workdir) / f"{re.sub(r'[^A-Za-z0-9_.-]', '_', problem.name)}-{problem.content_hash()[:10]}"
+            folder = (Path(self.workdir) / f"{_safe(problem.name)}-{problem.content_hash()[:10]}" /
+                      f"{_safe(self.name)}-{hashlib.sha256(self.identity().encode()).hexdigest()[:8]}")
             level_dir = folder / f"level-{grid.level}-{'x'.join(map(str, grid.cells))}"
             level_dir.mkdir(parents=True, exist_ok=True)
             level_dir = level_dir.resolve()
