@@ -36,6 +36,7 @@ import pickle
 import signal
 import threading
 import time
+import warnings
 
 from .cache import LevelCache, solver_identity
 from .errors import MMSError, SolverError
@@ -173,7 +174,11 @@ def run_levels(solve, cases, wheres, *, executor=None, workers=None, timeout=Non
     def finish(i, result):
         results[i] = result
         if cache is not None and result.ok:
-            cache.store(keys[i], result, cases[i], solver_id=sid)
+            try:
+                cache.store(keys[i], result, cases[i], solver_id=sid)
+            except OSError as exc:  # a full disk must not lose the study itself
+                warnings.warn(f"{wheres[i]}: could not store the level in {cache.directory} ({exc}); "
+                              "it will be recomputed next time", RuntimeWarning, stacklevel=2)
         if progress is not None:
             progress(result)
 
