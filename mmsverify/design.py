@@ -168,11 +168,10 @@ def _why_zero(model, term, pts):
         zero_coefficients += _is_coefficient(atom)
         if not deriv:
             out.append(f"{_atom_label(atom)} is 0")
-        elif len(atom.variable_count) == 1 and order == 1:
-            out.append(f"{_atom_label(atom)} = 0 ({_atom_label(base)} does not vary in {atom.variable_count[0][0]})")
         elif len(atom.variable_count) == 1:
-            var = atom.variable_count[0][0]
-            out.append(f"{_atom_label(atom)} = 0 ({_atom_label(base)} is a polynomial of degree below {order} in {var})")
+            var, field = atom.variable_count[0][0], _atom_label(base)
+            why = f"does not vary in {var}" if order == 1 else f"is a polynomial of degree below {order} in {var}"
+            out.append(f"{_atom_label(atom)} = 0 ({field} {why})")
         else:
             out.append(f"{_atom_label(atom)} = 0")
     return tuple(out), bool(coefficients) and zero_coefficients == coefficients
