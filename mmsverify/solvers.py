@@ -91,6 +91,9 @@ BUNDLED_SOLVERS = MappingProxyType({
     "fv-advection-upwind": "solvers_demo.bundled:fv_advection_upwind",
     "fv-advection-unlimited": "solvers_demo.bundled:fv_advection_unlimited",
     "fv-advection-limited": "solvers_demo.bundled:fv_advection_limited",
+    "ns-staggered": "solvers_demo.bundled:ns_staggered",
+    "ns-staggered-u": "solvers_demo.bundled:ns_staggered_u",
+    "ns-staggered-v": "solvers_demo.bundled:ns_staggered_v",
 })
 
 

@@ -11,12 +11,14 @@ from .fd.diffusion import FDDiffusion
 from .fd.heat import FDHeat
 from .fv.advection import FVAdvection
 from .fv.diffusion import FVDiffusion
+from .ns.staggered import StaggeredNS
 
 __all__ = [
     "fd_diffusion", "fd_diffusion_neumann1", "fd_diffusion_neumann3pt", "fd_heat_euler", "fd_heat_cn",
     "fd_burgers", "fd_advection_upwind", "fd_advection_central", "fd_advection_upwind2",
     "fv_diffusion", "fv_diffusion_stretched", "fv_diffusion_skewed", "fv_diffusion_perturbed",
     "fv_two_point", "fv_advection_upwind", "fv_advection_unlimited", "fv_advection_limited",
+    "ns_staggered", "ns_staggered_u", "ns_staggered_v",
 ]
 
 fd_diffusion = FDDiffusion()
@@ -36,3 +38,6 @@ fv_two_point = FVDiffusion(flux="two-point")
 fv_advection_upwind = FVAdvection(reconstruction="first-order")
 fv_advection_unlimited = FVAdvection(reconstruction="unlimited")
 fv_advection_limited = FVAdvection(reconstruction="limited")
+ns_staggered = StaggeredNS()
+ns_staggered_u = StaggeredNS(report="u")
+ns_staggered_v = StaggeredNS(report="v")

@@ -33,6 +33,7 @@ from .fd.diffusion import FDDiffusion
 from .fd.heat import FDHeat
 from .fv.advection import FVAdvection
 from .fv.diffusion import FVDiffusion
+from .ns.staggered import StaggeredNS
 
 __all__ = ["Entry", "ENTRIES", "entries", "KINDS"]
 
@@ -148,6 +149,13 @@ ENTRIES = (
        "plume-advection", "2 -> 1"),
     _m("fv-inflow-at-centroid", FVAdvection(grid="perturbed", reconstruction="unlimited",
                                             mistake="inflow-at-centroid"), "plume-advection", "2 -> 1"),
+    # -- incompressible flow on a staggered grid -----------------------------------------------
+    _m("ns-pressure-gradient-halved", StaggeredNS(mistake="pressure-gradient-halved"), "cavity-flow",
+       "2 -> 0 (no convergence)"),
+    _m("ns-convection-term-missing", StaggeredNS(mistake="convection-term-missing"), "cavity-flow",
+       "2 -> 0 (no convergence)"),
+    _m("ns-wall-ghost-value", StaggeredNS(mistake="wall-ghost-value"), "cavity-flow", "2 -> 1 or less"),
+    _m("ns-source-at-centre", StaggeredNS(mistake="source-at-centre"), "cavity-flow", "2 -> 1"),
     # -- correct solvers -----------------------------------------------------------------------
     _c("ok-fd-poisson-2d", FDDiffusion(), "plate-poisson"),
     _c("ok-fd-poisson-3d", FDDiffusion(), "block-poisson3d"),
@@ -167,6 +175,10 @@ ENTRIES = (
     _c("ok-fv-two-point-stretched", FVDiffusion(grid="stretched", flux="two-point"), "fin-diffusion"),
     _c("ok-fv-upwind-perturbed", FVAdvection(grid="perturbed", reconstruction="first-order"), "plume-advection"),
     _c("ok-fv-unlimited-perturbed", FVAdvection(grid="perturbed", reconstruction="unlimited"), "plume-advection"),
+    _c("ok-ns-u", StaggeredNS(report="u"), "cavity-flow", note="u on its own faces"),
+    _c("ok-ns-v", StaggeredNS(report="v"), "cavity-flow", note="v on its own faces"),
+    _c("ok-ns-p", StaggeredNS(report="p"), "cavity-flow", norms=("L1", "L2"),
+       note="p at cell centres, judged in L1 and L2 (Linf approaches 2 slowly, see the solver)"),
     _c("ok-fv-limited-l1", FVAdvection(), "plume-advection", norms=("L1",),
        note="limited reconstruction, judged in L1 (its claim on smooth meshes)"),
     # -- known properties of correct schemes ---------------------------------------------------

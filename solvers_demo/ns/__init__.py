@@ -1,0 +1,1 @@
+"""Incompressible-flow demo solver on a staggered grid."""
