@@ -128,8 +128,8 @@ def build_program(expr, args):
     names = [sp.Symbol(f"_a{i}") for i in range(len(args))]
     extra = expr.free_symbols - set(args)
     if extra:
-        raise ExpressionError(f"expression {expr} has symbols {sorted(map(str, extra))} that are not "
-                              f"arguments ({', '.join(map(str, args))})")
+        raise ExpressionError(f"expression {_short(expr)} has symbols {sorted(map(str, extra))} that are "
+                              f"not arguments ({', '.join(map(str, args))})")
     expr = expr.xreplace(dict(zip(args, names)))
     mask = {n: 1 << i for i, n in enumerate(names)}
     fresh = (sp.Symbol(f"_c{i}") for i in itertools.count())
@@ -191,16 +191,21 @@ def build_program(expr, args):
     out = []
     try:
         for sym, rhs in lines:
-            out.append((str(sym), printer.doprint(rhs), mask_of(rhs), _uses(rhs, mask)))
-        result = (printer.doprint(reduced), mask_of(reduced), _uses(reduced, mask))
+            out.append((str(sym), printer.doprint(rhs), mask_of(rhs), _uses(rhs)))
+        result = (printer.doprint(reduced), mask_of(reduced), _uses(reduced))
     except ExpressionError:
         raise
     except Exception as exc:  # an operation with no NumPy counterpart
-        raise ExpressionError(f"cannot generate NumPy code for {expr}: {exc}") from None
+        raise ExpressionError(f"cannot generate NumPy code for {_short(expr)}: {exc}") from None
     return Program(len(args), out, result)
 
 
-def _uses(expr, mask):
+def _short(expr, limit=160):
+    text = str(expr)
+    return text if len(text) <= limit else text[:limit] + " ..."
+
+
+def _uses(expr):
     return tuple(sorted(str(s) for s in expr.free_symbols if str(s).startswith(("_c", "_s"))))
 
 

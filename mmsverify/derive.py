@@ -93,7 +93,11 @@ class Manufactured:
 
     Every method takes the space coordinates as separate arrays that
     broadcast together (full meshes or ``np.ix_``-style axis arrays), and for
-    transient problems the time ``t`` as a keyword.
+    transient problems the time ``t`` as a keyword. Axis arrays are the
+    cheapest input; full ``np.meshgrid`` arrays are recognised and treated
+    alike. Large arrays are evaluated in blocks, so temporary memory stays
+    near the size of the result; ``MMSVERIFY_THREADS=2`` spreads the blocks
+    over two threads.
 
     Examples
     --------
