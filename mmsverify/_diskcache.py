@@ -43,7 +43,12 @@ def cache_dir():
     env = os.environ.get("MMSVERIFY_CACHE")
     if env is not None:
         return None if env.strip().lower() in _OFF else Path(env).expanduser()
-    base = os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache"
+    base = os.environ.get("XDG_CACHE_HOME")
+    if not base:
+        try:
+            base = Path.home() / ".cache"
+        except (RuntimeError, KeyError):     # no home directory: no cache
+            return None
     return Path(base) / "mmsverify"
 
 
