@@ -20,7 +20,7 @@ Examples
 ('central', 'extrapolated', 'interpolated')
 """
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 import math
 
 import numpy as np
@@ -30,6 +30,10 @@ from mmsverify import AnalysisError, Case, derive, plan_grids
 from .studies import problem_for, verify
 
 __all__ = ["SchemeCost", "CostComparison", "compare_at_equal_cost", "plot_equal_cost"]
+
+
+def _pct(fraction):
+    return f"{100 * fraction:g}%"
 
 
 def _reach(x, err, target):
@@ -78,6 +82,15 @@ class CostComparison:
     target: float
     schemes: tuple
 
+    def at(self, target):
+        """The same measurements judged at another target error (nothing is rerun)."""
+        schemes = []
+        for s in self.schemes:
+            t_reach, how = _reach(s.seconds, s.errors, target)
+            n_reach, _ = _reach(s.cells, s.errors, target)
+            schemes.append(replace(s, seconds_to_target=t_reach, cells_to_target=n_reach, how=how))
+        return replace(self, target=target, schemes=tuple(schemes))
+
     @property
     def cheaper(self):
         """Name of the scheme that reaches the target in less measured time (None if unknown)."""
@@ -86,7 +99,7 @@ class CostComparison:
 
     def __str__(self):
         lines = [f"Equal-cost comparison on {self.problem}: relative {self.norm} error (norm / max |exact|), "
-                 f"target {self.target:.0%}"]
+                 f"target {_pct(self.target)}"]
         for s in self.schemes:
             lines.append(f"\n  {s.name} (formal order {s.formal_order:g})")
             lines.append(f"    {'cells':>10}  {'h':>10}  {'error':>10}  {'seconds':>10}")
@@ -96,7 +109,7 @@ class CostComparison:
                 lines.append("    target: cannot be estimated (the error does not fall)")
             else:
                 about = "at most" if s.how == "at most" else "about"
-                lines.append(f"    reaches {self.target:.0%}: {about} {s.cells_to_target:,.0f} cells, "
+                lines.append(f"    reaches {_pct(self.target)}: {about} {s.cells_to_target:,.0f} cells, "
                              f"{s.seconds_to_target:.4g} s ({s.how})")
         winner = self.cheaper
         lines.append("")
@@ -107,7 +120,7 @@ class CostComparison:
             best = next(s for s in self.schemes if s.name == winner)
             ratio = ", ".join(f"{o.seconds_to_target / best.seconds_to_target:.3g} times less than {o.name}"
                               for o in others)
-            lines.append(f"Cheaper to reach {self.target:.0%}: {winner}" + (f" ({ratio})" if ratio else ""))
+            lines.append(f"Cheaper to reach {_pct(self.target)}: {winner}" + (f" ({ratio})" if ratio else ""))
         return "\n".join(lines)
 
 
@@ -177,7 +190,7 @@ def plot_equal_cost(comparison, path):
     ax2.set_xlabel("measured solver time per level [s]")
     ax1.legend()
     ax1.set_title(f"{comparison.problem}: error against grid size")
-    ax2.set_title(f"error against time; star: cost of {comparison.target:.0%}")
+    ax2.set_title(f"error against time; star: cost of {_pct(comparison.target)}")
     fig.tight_layout()
     fig.savefig(path, dpi=120)
     plt.close(fig)
