@@ -26,7 +26,6 @@ from pathlib import Path
 
 import numpy as np
 import sympy as sp
-from scipy.optimize import minimize
 
 from ._designmodel import diff, model_from_text, sample_points
 from .design import SMALL_TERM, _admissibility, _term_sizes
@@ -210,6 +209,7 @@ def balance(problem, tune=None, iterations=100, *, max_factor=10.0, base_cells=N
     # violation, widen the safety margin and go on from the best point with the iterations left.
     while n and nit < int(iterations):
         simplex = np.vstack([best] + [best + 0.5 * np.eye(n)[i] for i in range(n)])
+        from scipy.optimize import minimize  # here: importing scipy.optimize costs ~0.4 s
         res = minimize(objective, best, method="Nelder-Mead",
                        bounds=[(-span, span) if m else (-1.0, 1.0) for m in mult],
                        options={"maxiter": int(iterations) - nit, "initial_simplex": simplex, "xatol": 1e-3,

@@ -39,7 +39,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import sympy as sp
-from scipy.optimize import minimize
 
 from ._designmodel import diff, model_from_problem, sample_points
 
@@ -439,6 +438,7 @@ def _extreme(fn, sign, pts, vals, box, starts, rng):
         return sign * v if np.isfinite(v) else 1e300
 
     for x0 in x0s:
+        from scipy.optimize import minimize  # here: importing scipy.optimize costs ~0.4 s
         res = minimize(g, x0, method="SLSQP", bounds=list(zip(lo, hi)), options={"maxiter": 60})
         if res.fun < value:
             value, point = float(res.fun), tuple(float(c) for c in res.x)
