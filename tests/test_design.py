@@ -179,9 +179,7 @@ def test_operator_coefficients_must_be_positive_without_any_bounds_table():
 
 
 # -- designs that must pass ---------------------------------------------------------------
-_FLAGGED = {  # bundled designs with a real finding, kept visible until their owners change them
-    "compressible-3d": "the viscous work in the energy equation is 0.3% of the energy convection (mu = 10)",
-}
+_FLAGGED = {}  # bundled designs with a real finding, kept visible until their owners change them
 
 
 @pytest.mark.parametrize("name", [pytest.param(n, marks=pytest.mark.xfail(strict=True, reason=_FLAGGED[n]))
