@@ -48,3 +48,19 @@ def test_list_and_derive(capsys):
 def test_module_entry_point_runs():
     r = subprocess.run([sys.executable, "-m", "mmsverify", "--help"], capture_output=True, text=True, timeout=60)
     assert r.returncode == 0 and "Exit codes" in r.stdout
+
+
+def test_run_warns_ahead_of_a_study_whose_design_cannot_catch_mistakes(capsys):
+    # LeVeque 2007: the 5-point Laplacian is exact on quadratics, so no order can be observed
+    from pathlib import Path
+    rc = main(["run", str(Path(__file__).parent / "data" / "quadratic-poisson.toml"), "poisson2d", "--levels", "3"])
+    err = capsys.readouterr().err
+    assert rc == 3 and "warning: design:" in err and "reproduces this solution exactly" in err
+
+
+def test_quiet_run_prints_the_headline_and_json_reads_back(tmp_path, capsys):
+    from mmsverify.report.files import read_json
+    out = tmp_path / "q.json"
+    assert main(["run", "plate-poisson", "poisson2d", "--levels", "3", "--quiet", "--json", str(out)]) == 0
+    assert capsys.readouterr().out.strip() == "PASS  plate-poisson  solved by  poisson2d"
+    assert read_json(out).passed

@@ -1,6 +1,5 @@
 """``mmsverify run PROBLEM SOLVER``: a manufactured-solution study."""
 
-import json
 import shlex
 import sys
 from pathlib import Path
@@ -110,14 +109,6 @@ def study_from_args(args, problem, solver, progress=None):
     return run_study(problem, solver, workers=getattr(args, "workers", None), **kwargs)
 
 
-def write_json(result, path):
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(json.dumps(result.to_dict(), indent=2))
-    tmp.replace(path)
-
-
 def _run(args):
     if args.solver is None and not args.external:
         print("mmsverify run: name a solver: a bundled one (see `mmsverify list`) or module:function, "
@@ -127,13 +118,28 @@ def _run(args):
         print("mmsverify run: give either a solver or --external, not both", file=sys.stderr)
         return 2
     from ..progress import progress_for
+    quiet = getattr(args, "quiet", False)
+    if not quiet:
+        print_design_warnings(args)
     label = args.solver or args.external
     result = study_from_args(args, args.problem, args.solver, progress_for(args, label=f"{args.problem} / {label}"))
-    print(result)
+    print(str(result).splitlines()[0] if quiet else result)
     if args.json:
+        from ..report.files import write_json
         write_json(result, args.json)
-        print(f"\nwrote {args.json}")
+        if not quiet:
+            print(f"\nwrote {args.json}")
     return exit_code(result)
+
+
+def print_design_warnings(args):
+    """Warn, ahead of the study, where the manufactured solution cannot catch mistakes."""
+    from ..design import design_warnings
+    from ..problem import get_problem
+    order = getattr(args, "formal_order", None)
+    kw = {"time_order": order} if getattr(args, "mode", None) == "time" else {"formal_order": order}
+    for w in design_warnings(get_problem(args.problem), **kw):
+        print(f"warning: {w}", file=sys.stderr)
 
 
 def register(sub):
