@@ -22,7 +22,7 @@ from typing import ClassVar
 
 import numpy as np
 
-from mmsverify import SolverError, Solution
+from mmsverify import SolverError
 
 __all__ = ["DemoSolver", "node_weights", "check_choice"]
 

@@ -130,7 +130,6 @@ def assemble_diffusion(case, t=None, neumann="flux", mistake="", coefficient="k"
     for w in widths:
         volume = volume * w
 
-    n = int(np.prod(shape))
     K = _matrix(shape, axes, pts, widths, h, index, k_at, mistake) if with_matrix else None
 
     src_pts = list(pts)

@@ -33,7 +33,6 @@ from mmsverify import Solution, SolverError
 
 from ..base import DemoSolver
 from ._gradients import least_squares_gradient
-from .diffusion import _side_values
 from .mesh import FAMILIES, quad_mesh
 
 __all__ = ["FVAdvection", "RECONSTRUCTIONS"]
