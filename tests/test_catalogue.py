@@ -5,7 +5,7 @@ of Computer Codes in Computational Science and Engineering): mistakes are
 seeded into working codes, some of which an order-of-accuracy test must catch
 and some of which (no effect on the converged answer, or an error of the same
 order as the scheme) it cannot. The verdict sees only observed and formal
-orders.
+orders. Section and chapter numbers cited beside the checks are from memory.
 """
 
 import json

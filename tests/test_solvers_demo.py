@@ -7,7 +7,8 @@ Difference Methods for ODEs and PDEs, sections 2.12-2.15 and 3.2); implicit
 Euler is first and Crank-Nicolson second order in time (LeVeque 2007,
 sections 9.1-9.3); first-order upwind, second-order central and upwind-biased
 convection (LeVeque 2007, section 10.4; Ferziger & Peric 2002, Computational
-Methods for Fluid Dynamics, section 3.4).
+Methods for Fluid Dynamics, section 3.4). The orders are the textbooks'; the
+section numbers cited beside the checks are from memory.
 """
 
 import numpy as np
