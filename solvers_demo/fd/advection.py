@@ -9,7 +9,7 @@ direction, with the velocity taken at the node:
   centred at a node with only one upstream neighbour.
 
 Orders from the truncation errors (LeVeque 2007, Finite Difference Methods
-for ODEs and PDEs, sections 10.4 and 10.10; Ferziger & Peric 2002,
+for ODEs and PDEs, section 10.4; Ferziger & Peric 2002,
 Computational Methods for Fluid Dynamics, section 3.4). Dirichlet data on
 every side.
 """
