@@ -115,7 +115,8 @@ class LevelCache:
             if rec.get("key") != key or r["status"] != "ok":
                 return None
             return LevelResult(grid.level, grid, float(r["h"]), "ok", r["errors"], float(r["seconds"]),
-                               int(r["n_points"]), r["scale"], f"reused from the level cache ({key[:12]})")
+                               int(r["n_points"]), r["scale"], f"reused from the level cache ({key[:12]})",
+                               quantities=r.get("quantities", {}), info=r.get("info", {}))
         except (OSError, ValueError, KeyError, TypeError):
             return None
 
@@ -127,7 +128,8 @@ class LevelCache:
             "problem_hash": case.problem.content_hash() if case is not None else None,
             "solver": solver_id, "grid": _grid_data(result.grid), "level": result.level,
             "result": {"h": result.h, "status": result.status, "errors": result.errors, "seconds": result.seconds,
-                       "n_points": result.n_points, "scale": result.scale},
+                       "n_points": result.n_points, "scale": result.scale, "quantities": result.quantities,
+                       "info": _plain(result.info)},
         }
         path = self.path(key)
         tmp = path.with_name(f".{path.stem}.{os.getpid()}.{time.monotonic_ns()}.tmp")
@@ -140,3 +142,15 @@ class LevelCache:
         finally:
             tmp.unlink(missing_ok=True)
         return path
+
+
+def _plain(info):
+    """The JSON-safe part of a solver's info dict (numbers, text, flags, lists of them)."""
+    out = {}
+    for k, v in info.items():
+        try:
+            json.dumps(v)
+        except (TypeError, ValueError):
+            v = repr(v)
+        out[str(k)] = v
+    return out

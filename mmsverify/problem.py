@@ -173,7 +173,6 @@ class Problem:
             "boundaries": sorted(f"{f}:{s}:{k}" for (f, s), k in self.boundaries.items()),
             "quantities": {k: [q[0], sp.srepr(q[1]), str(q[2])] for k, q in self.quantities.items()},
             "parameters": {k: sp.srepr(v) for k, v in self.parameters.items()},
-            "orders": [self.space_order, self.time_order],
         }, sort_keys=True)
         memo = hashlib.sha256(blob.encode()).hexdigest()
         object.__setattr__(self, "_content_hash", memo)

@@ -20,7 +20,8 @@ from dataclasses import dataclass
 
 from .errors import GridError
 from .problem import get_problem
-from .study import run_study
+from .solvers import resolve_solver
+from .study import design_orders, run_study
 
 __all__ = ["SpaceTimeResult", "run_space_time"]
 
@@ -86,7 +87,8 @@ def run_space_time(problem, solver, *, levels=4, base_cells=None, base_steps=Non
     s = problem.study
     base_cells = int(base_cells or s.get("base_cells", 8))
     base_steps = int(base_steps or s.get("base_steps", 8))
-    tie = problem.space_order / problem.time_order
+    p_space, p_time, _ = design_orders(problem, resolve_solver(solver))
+    tie = p_space / p_time
     if fine_cells is None:
         fine_cells = int(round(base_cells * ratio ** (levels + 1)))
     if fine_steps is None:

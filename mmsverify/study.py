@@ -45,6 +45,7 @@ class LevelResult:
     scale: dict = field(default_factory=dict)
     message: str = ""
     quantities: dict = field(default_factory=dict)
+    info: dict = field(default_factory=dict)
 
     @property
     def ok(self):
@@ -64,6 +65,7 @@ class StudyResult:
     verdicts: tuple
     problem_hash: str = ""
     source: str = ""
+    order_source: str = "problem"
 
     @property
     def passed(self):
@@ -113,8 +115,9 @@ class StudyResult:
             "levels": [{
                 "level": lv.level, "cells": list(lv.grid.cells), "steps": lv.grid.steps, "h": lv.h,
                 "dt": lv.grid.dt, "status": lv.status, "message": lv.message, "seconds": lv.seconds,
-                "n_points": lv.n_points, "errors": lv.errors, "quantities": lv.quantities,
+                "n_points": lv.n_points, "errors": lv.errors, "quantities": lv.quantities, "info": lv.info,
             } for lv in self.levels],
+            "order_source": self.order_source,
             "quantity_orders": {q: [None if not np.isfinite(p) else float(p) for p in self.quantity_orders(q)]
                                 for q in self.quantities},
             "orders": {f: {n: [None if not np.isfinite(p) else float(p) for p in self.orders(f, n)]
@@ -146,15 +149,40 @@ def _verdicts(problem, results, formal, tol):
     return tuple(verdicts)
 
 
-def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combined", base_steps=None):
+def design_orders(problem, solver):
+    """Formal (space, time) orders and where they come from.
+
+    A solver that states ``formal_order`` (and ``time_order``) as data is
+    judged against what it states; otherwise the problem's ``[order]``
+    table applies.
+    """
+    def stated(name):
+        try:
+            value = getattr(solver, name, None)
+        except Exception:  # a property that cannot answer for this solver
+            return None
+        return float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else None
+
+    space, time_ = stated("formal_order"), stated("time_order")
+    if space is None and time_ is None:
+        return problem.space_order, problem.time_order, "problem"
+    return (space if space is not None else problem.space_order,
+            time_ if time_ is not None else problem.time_order, "solver")
+
+
+def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combined", base_steps=None,
+               orders=None):
     """The grids of a study, from arguments or the problem's ``[study]`` defaults.
 
     For transient problems, ``mode`` chooses how time is refined:
     ``"combined"`` ties the number of steps to h by the ratio of formal
     orders (so both errors fall at the space order), ``"space"`` keeps the
     steps fixed, ``"time"`` keeps the cells fixed and refines the steps.
+    ``orders`` = (space, time) overrides the problem's formal orders (for
+    example with the orders a solver states).
     """
     problem = get_problem(problem)
+    p_space, p_time = orders if orders is not None else (problem.space_order, problem.time_order)
     s = problem.study
     levels = int(levels or s.get("levels", 4))
     base_cells = base_cells or s.get("base_cells", 8)
@@ -168,7 +196,7 @@ def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combi
     t0, t1 = problem.t_range
     base_steps = int(base_steps or s.get("base_steps", 8))
     if mode == "combined":
-        time_ratio = ratio ** (problem.space_order / problem.time_order)
+        time_ratio = ratio ** (p_space / p_time)
         return refinement(problem.lower, problem.upper, base_cells, levels, ratio, t_start=t0, t_end=t1,
                           base_steps=base_steps, time_ratio=time_ratio)
     if mode == "space":
@@ -204,7 +232,7 @@ def run_level(solver, case, where):
             exact = mms.exact_quantity(name, t=t)
             quantities[name] = {"value": float(q), "exact": exact, "error": abs(float(q) - exact)}
         return LevelResult(grid.level, grid, h, "ok", errors, seconds, int(values[next(iter(values))].size), scale,
-                           quantities=quantities)
+                           quantities=quantities, info=dict(sol.info) if isinstance(sol.info, dict) else {})
     except SolverError as exc:
         text = str(exc) if str(exc).startswith(where) else f"{where}: {exc}"
         return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start, message=text)
@@ -230,7 +258,10 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     grids : sequence of Grid, optional
         An explicit sequence instead of the plan; must be a refinement.
     tolerance, formal_order : float, optional
-        Override the problem's ``[order]`` values.
+        Override the tolerance and the formal order. Without them the
+        problem's ``[order]`` values apply, unless the solver states its own
+        orders (attributes ``formal_order``, ``time_order``; see
+        :func:`design_orders`).
     executor : concurrent.futures.Executor or dask.distributed.Client, optional
         Run levels through it (the solver must then be picklable).
     options : dict, optional
@@ -259,8 +290,10 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     problem = get_problem(problem)
     solve = resolve_solver(solver)
     mms = derive(problem)
+    p_space, p_time, order_source = design_orders(problem, solve)
     if grids is None:
-        grids = plan_grids(problem, levels, base_cells, ratio, mode=mode, base_steps=base_steps)
+        grids = plan_grids(problem, levels, base_cells, ratio, mode=mode, base_steps=base_steps,
+                           orders=(p_space, p_time))
     else:
         grids = list(grids)
         check_refinement(grids)
@@ -274,12 +307,11 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     from .runner import run_levels
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)
-    if mode == "time":
-        formal = problem.time_order
-    else:
-        formal = problem.space_order
-    formal = float(formal_order if formal_order is not None else formal)
+    formal = p_time if mode == "time" else p_space
+    if formal_order is not None:
+        formal, order_source = formal_order, "caller"
+    formal = float(formal)
     tol = float(tolerance if tolerance is not None else problem.tolerance)
     verdicts = _verdicts(problem, results, formal, tol)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
-                       problem.content_hash(), problem.source)
+                       problem.content_hash(), problem.source, order_source)

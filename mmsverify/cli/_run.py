@@ -18,7 +18,10 @@ def add_study_options(p):
                    help="transient problems: refine space and time together, space only, or time only")
     p.add_argument("--base-steps", type=int, help="time steps on the coarsest level (transient problems)")
     p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order (default: problem's)")
-    p.add_argument("--formal-order", type=float, help="override the problem's formal order")
+    p.add_argument("--formal-order", type=float, help="override the formal order (default: the solver's stated "
+                                                      "order, else the problem's)")
+    p.add_argument("--option", action="append", default=[], metavar="NAME=VALUE",
+                   help="solver option passed in case.options, e.g. --option grid=perturbed (repeatable)")
     add_execution_options(p)
 
 
@@ -59,7 +62,7 @@ def exit_code(result):
 def _param(text):
     name, sep, value = text.partition("=")
     if not sep or not name.strip():
-        raise SolverError(f"--param {text!r}: write NAME=VALUE, e.g. --param omega=1.8")
+        raise SolverError(f"{text!r}: write NAME=VALUE, e.g. --param omega=1.8 or --option grid=stretched")
     value = value.strip()
     for kind in (int, float):
         try:
@@ -96,7 +99,8 @@ def study_from_args(args, problem, solver, progress=None):
     kwargs = dict(levels=args.levels, base_cells=args.base_cells, ratio=args.ratio, mode=args.mode,
                   base_steps=args.base_steps, tolerance=args.tolerance, formal_order=args.formal_order,
                   progress=progress, timeout=getattr(args, "timeout", None),
-                  cache_dir=getattr(args, "cache", None), resume=not getattr(args, "fresh", False))
+                  cache_dir=getattr(args, "cache", None), resume=not getattr(args, "fresh", False),
+                  options=dict(_param(o) for o in getattr(args, "option", [])) or None)
     if getattr(args, "dask", None):
         client = _dask_client(args.dask, args.workers)
         try:

@@ -113,7 +113,9 @@ def study_from_data(data, where="study data"):
                     steps=d.get("steps"))
         levels.append(LevelResult(grid.level, grid, float(_need(d, "h", w)), _need(d, "status", w),
                                   {f: dict(e) for f, e in d.get("errors", {}).items()}, float(d.get("seconds", 0.0)),
-                                  int(d.get("n_points", 0)), dict(d.get("scale", {})), d.get("message", "")))
+                                  int(d.get("n_points", 0)), dict(d.get("scale", {})), d.get("message", ""),
+                                  quantities={q: dict(v) for q, v in d.get("quantities", {}).items()},
+                                  info=dict(d.get("info", {}))))
     known = {f.name for f in dataclasses.fields(Verdict)}
     verdicts = []
     for i, v in enumerate(_need(data, "verdicts", where)):
@@ -123,7 +125,8 @@ def study_from_data(data, where="study data"):
         verdicts.append(Verdict(**{k: v[k] for k in known}))
     return StudyResult(_need(data, "problem", where), _need(data, "solver", where), _need(data, "mode", where),
                        float(_need(data, "formal_order", where)), float(_need(data, "tolerance", where)),
-                       tuple(levels), tuple(verdicts), data.get("problem_hash", ""), data.get("source", ""))
+                       tuple(levels), tuple(verdicts), data.get("problem_hash", ""), data.get("source", ""),
+                       data.get("order_source", "problem"))
 
 
 def write_atomic(path, text):

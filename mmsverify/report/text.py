@@ -20,7 +20,10 @@ def format_study(result):
     lines = []
     overall = outcome(result).upper()
     lines.append(f"{overall}  {result.problem}  solved by  {result.solver}")
-    lines.append(f"  formal order {result.formal_order:g} ({result.mode} refinement), tolerance {result.tolerance:g}")
+    stated = {"solver": ", stated by the solver", "caller": ", given by the caller"}.get(
+        getattr(result, "order_source", "problem"), "")
+    lines.append(f"  formal order {result.formal_order:g} ({result.mode} refinement{stated}), "
+                 f"tolerance {result.tolerance:g}")
     for v in result.verdicts:
         mark = "ok " if v.ok else "!! "
         lines.append(f"  {mark}{v.field:<6}{v.norm:<5} {v.status:<12} {v.reason}")
