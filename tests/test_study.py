@@ -115,3 +115,28 @@ def test_json_ready_dict_has_every_number(good):
     assert d["passed"] is True and len(d["levels"]) == 5
     assert d["levels"][0]["errors"]["u"]["L2"] == good.levels[0].errors["u"]["L2"]
     assert len(d["orders"]["u"]["Linf"]) == 4
+
+
+def test_a_solver_is_judged_against_the_order_it_states():
+    # common practice: a scheme is verified against its own design order
+    from solvers_demo.fd.poisson import solve
+
+    def first_order_claim(case):
+        return solve(case)
+    first_order_claim.formal_order = 1
+    r = run_study("plate-poisson", first_order_claim, levels=3)
+    assert r.formal_order == 1 and r.order_source == "solver"
+    assert {v.status for v in r.verdicts} == {"above"}
+    assert "stated by the solver" in str(r)
+    r = run_study("plate-poisson", first_order_claim, levels=3, formal_order=2)
+    assert r.passed and r.order_source == "caller"
+
+
+def test_solver_options_and_info_reach_the_level_results():
+    from solvers_demo.fd.poisson import solve
+
+    def solver(case):
+        sol = solve(case)
+        return Solution(sol.values, sol.points, sol.weights, info={"grid": case.options.get("grid"), "sweeps": 3})
+    r = run_study("plate-poisson", solver, levels=2, options={"grid": "stretched"})
+    assert r.levels[0].info == {"grid": "stretched", "sweeps": 3}
