@@ -204,13 +204,9 @@ def save_baseline(result, path, **kwargs):
 
 def load_baseline(path):
     """Read a baseline file."""
+    from .report.files import load_json_file
     path = Path(path)
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise MMSError(f"{path}: no such baseline file; make one with `mmsverify baseline save`") from None
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise MMSError(f"{path}: cannot read it as JSON ({exc})") from None
+    data = load_json_file(path, "baseline file", "; make one with `mmsverify baseline save`")
     return Baseline.from_data(data, str(path), path.parent)
 
 

@@ -23,6 +23,15 @@ EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_INCONCLUSIVE = 0, 1, 2, 3
 _COMMANDS = ("_demo", "_run", "_derive", "_list", "_split", "_export", "_report", "_baseline", "_estimate", "_audit", "_catalogue")
 
 
+def comma_choices(text, allowed, what):
+    """Split ``"a, b"`` into a tuple, refusing names outside ``allowed`` with a ValueError naming them."""
+    chosen = tuple(n.strip() for n in text.split(",") if n.strip())
+    unknown = [n for n in chosen if n not in allowed]
+    if unknown or not chosen:
+        raise ValueError(f"unknown {what}(s) {', '.join(unknown) or '(none)'}; choose from {', '.join(allowed)}")
+    return chosen
+
+
 def build_parser():
     parser = argparse.ArgumentParser(
         prog="mmsverify",

@@ -5,7 +5,7 @@ import sys
 from ..baseline import DEFAULT_ERROR_FACTOR, check_baseline, load_baseline, save_baseline
 from ..norms import NORMS
 from ..progress import NORMAL, QUIET, VERBOSE, progress_for, verbosity
-from . import EXIT_FAIL, EXIT_INPUT, EXIT_OK
+from . import EXIT_FAIL, EXIT_INPUT, EXIT_OK, comma_choices
 from ._run import add_study_options, study_from_args
 
 
@@ -24,11 +24,7 @@ def _save(args):
 def _norms(text):
     if text is None:
         return None
-    chosen = tuple(n.strip() for n in text.split(",") if n.strip())
-    unknown = [n for n in chosen if n not in NORMS]
-    if unknown or not chosen:
-        raise ValueError(f"unknown norm(s) {', '.join(unknown) or '(none)'}; choose from {', '.join(NORMS)}")
-    return chosen
+    return comma_choices(text, NORMS, "norm")
 
 
 def _check(args):

@@ -6,16 +6,12 @@ from ..errors import MMSError
 from ..progress import QUIET, progress_for, verbosity
 from ..report import FORMATS, write_reports
 from ..report._common import headline, outcome
-from . import EXIT_INPUT
+from . import EXIT_INPUT, comma_choices
 from ._run import add_study_options, exit_code, study_from_args
 
 
 def _formats(text):
-    chosen = [f.strip().lower() for f in text.split(",") if f.strip()]
-    unknown = [f for f in chosen if f not in FORMATS]
-    if unknown or not chosen:
-        raise ValueError(f"unknown format(s) {', '.join(unknown) or '(none)'}; choose from {', '.join(FORMATS)}")
-    return chosen
+    return list(comma_choices(text.lower(), FORMATS, "format"))
 
 
 def _report(args):

@@ -144,16 +144,20 @@ def write_json(result, path):
     return write_atomic(path, json.dumps(study_to_data(result), indent=2, allow_nan=False) + "\n")
 
 
-def read_json(path):
-    """Read a study written by :func:`write_json`."""
+def load_json_file(path, what="file", missing_hint=""):
+    """Parsed JSON of a file; a missing or unreadable file is an MMSError naming it."""
     path = Path(path)
     try:
-        data = json.loads(path.read_text(encoding="utf-8"))
+        return json.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
-        raise MMSError(f"{path}: no such file") from None
+        raise MMSError(f"{path}: no such {what}{missing_hint}") from None
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise MMSError(f"{path}: cannot read it as JSON ({exc})") from None
-    return study_from_data(data, str(path))
+
+
+def read_json(path):
+    """Read a study written by :func:`write_json`."""
+    return study_from_data(load_json_file(path), str(path))
 
 
 def _csv_rows(result):
