@@ -20,7 +20,12 @@ Limits (each a refusal, never a silent truncation):
 * ``MAX_BUILD_SECONDS``: safety net (sympy's root extraction on products of
   large radicals is slow; realistic expressions take milliseconds).  A hard
   limit by ``SIGALRM`` is used in the main thread when no timer is running;
-  otherwise the clock is checked between syntax nodes only.
+  otherwise the clock is checked between syntax nodes only.  The limit nests
+  inside a longer one of this module (the whole-file budget of
+  :mod:`mmsverify.problem`) and never outlasts it.
+* Results are real: the imaginary unit and constants that are not real
+  (``sqrt(-1)``, ``asin(2)``, ``(-8)**(1/3)``) are refused, since the
+  evaluators compute in real floating point.
 """
 
 import ast
@@ -171,6 +176,8 @@ def parse_expression(text: str, names: Mapping[str, sympy.Basic], *,
     except (RecursionError, MemoryError):
         raise ExpressionError(f"{where}: expression is too complex to build") from None
     except _Timeout:
+        if _outer_expired():
+            raise  # the budget of an enclosing limit is spent: that limit reports it
         raise ExpressionError(f"{where}: expression took longer than {MAX_BUILD_SECONDS} s "
                               "to build; simplify it or split it into named constants") from None
     if not isinstance(result, sympy.Expr):
@@ -178,30 +185,68 @@ def parse_expression(text: str, names: Mapping[str, sympy.Basic], *,
     if result.has(*_BAD):
         raise ExpressionError(f"{where}: expression evaluates to an infinite or undefined "
                               f"value ({str(result)[:80]}); check for division by zero")
+    complex_part = sympy.I if result.has(sympy.I) else next(
+        (a for a in result.atoms(sympy.Function, sympy.Pow) if a.is_number and a.is_real is False), None)
+    if complex_part is not None:
+        raise ExpressionError(f"{where}: expression has the value {str(complex_part)[:60]}, which is not a "
+                              "real number (check square roots, logarithms and inverse functions of "
+                              "constants); fields and coefficients must be real")
     return result
+
+
+# Deadlines (time.monotonic) of the hard limits armed now in the main thread, outermost first.
+_ARMED = []
 
 
 def _raise_timeout(signum, frame):
     raise _Timeout
 
 
+def _outer_expired():
+    """True when an enclosing hard limit has run out (after the inner one was left)."""
+    return bool(_ARMED) and time.monotonic() >= _ARMED[-1]
+
+
+def _arm(deadline):
+    signal.setitimer(signal.ITIMER_REAL, max(deadline - time.monotonic(), 1e-4))
+
+
 @contextlib.contextmanager
 def _time_limit(seconds):
-    """Hard time limit through SIGALRM where that disturbs nobody; else a no-op."""
-    if not (hasattr(signal, "setitimer") and threading.current_thread() is threading.main_thread()
-            and signal.getsignal(signal.SIGALRM) == signal.SIG_DFL
-            and signal.getitimer(signal.ITIMER_REAL) == (0.0, 0.0)):
+    """Hard time limit through SIGALRM where that disturbs nobody; else a no-op.
+
+    Raises :class:`_Timeout` in the main thread when ``seconds`` have passed.
+    Limits nest: an inner limit ends no later than the enclosing one, and on
+    leaving it the enclosing limit is armed again (an expired one fires at
+    once). A timer or SIGALRM handler that is not this module's is left alone.
+    """
+    if not (hasattr(signal, "setitimer") and threading.current_thread() is threading.main_thread()):
         yield
         return
-    old = signal.signal(signal.SIGALRM, _raise_timeout)
-    signal.setitimer(signal.ITIMER_REAL, seconds)
+    nested = bool(_ARMED) and signal.getsignal(signal.SIGALRM) is _raise_timeout
+    if not nested and not (signal.getsignal(signal.SIGALRM) == signal.SIG_DFL
+                           and signal.getitimer(signal.ITIMER_REAL) == (0.0, 0.0)):
+        yield
+        return
+    deadline = time.monotonic() + seconds
+    if nested:
+        deadline = min(deadline, _ARMED[-1])
+        old = None
+    else:
+        old = signal.signal(signal.SIGALRM, _raise_timeout)
+    _ARMED.append(deadline)
     try:
+        _arm(deadline)
         yield
     finally:
         try:
             signal.setitimer(signal.ITIMER_REAL, 0)
         finally:
-            signal.signal(signal.SIGALRM, old)
+            _ARMED.pop()
+            if nested:
+                _arm(_ARMED[-1])
+            else:
+                signal.signal(signal.SIGALRM, old)
 
 
 def _parse(ctx, text, body):
