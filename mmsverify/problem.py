@@ -46,13 +46,23 @@ is ever executed. The format, with every table but ``[fields]`` optional::
 
     [study]                             # defaults for `mmsverify run`
     levels = 4
-    base_cells = 8
+    base_cells = 8                      # or one count per direction, [8, 16]
     ratio = 2
+    base_steps = 8                      # time steps of the coarsest level
+
+Limits (each a :class:`~mmsverify.errors.ProblemError` naming the file and
+the place, never a hang): files of at most ``MAX_FILE_CHARS`` characters;
+the whole load (TOML, expressions, derivation of the source terms) within
+``MAX_LOAD_SECONDS`` where a hard limit is possible (the main thread, see
+:mod:`mmsverify.expr`); at most ``MAX_EQUATION_NODES`` nodes in the
+expression tree of each derived source term or flux, everywhere. Numbers
+are finite; orders are whole numbers from 1 to ``MAX_ORDER``.
 """
 
 from dataclasses import dataclass, field, replace
 import hashlib
 import json
+import math
 from pathlib import Path
 import re
 import tomllib
@@ -61,16 +71,26 @@ import sympy as sp
 
 from . import _diskcache
 from .errors import ProblemError, MMSError
-from .expr import parse_expression
+from .expr import _Timeout, _time_limit, parse_expression
 from .operators import OPERATORS, get_operator, derivative_functions
 
 __all__ = ["Problem", "load_problem", "problem_from_text", "bundled_problems", "get_problem",
-           "SIDES", "PROBLEM_DIR"]
+           "SIDES", "PROBLEM_DIR", "MAX_FILE_CHARS", "MAX_LOAD_SECONDS", "MAX_EQUATION_NODES", "MAX_ORDER"]
 
 PROBLEM_DIR = Path(__file__).resolve().parent.parent / "problems"
 SPACE = ("x", "y", "z")
 SIDES = ("x_min", "x_max", "y_min", "y_max", "z_min", "z_max")
 _KINDS = ("dirichlet", "neumann")
+#: Longest problem file read (characters); real ones are a few thousand.
+MAX_FILE_CHARS = 1_000_000
+#: Seconds allowed for reading, parsing and deriving one file (main thread only).
+MAX_LOAD_SECONDS = 10.0
+#: Largest expression tree (nodes) of one derived source term or flux;
+#: the 3-D compressible Navier-Stokes energy equation has about 8 000.
+MAX_EQUATION_NODES = 100_000
+#: Largest formal order accepted in [order].
+MAX_ORDER = 20
+_STUDY_KEYS = {"levels": (2, 30), "base_cells": (1, 10**9), "ratio": None, "base_steps": (1, 10**9)}
 _TOP_KEYS = {"name", "description", "domain", "constants", "fields", "operator", "boundaries", "order", "study",
              "quantities", "bounds"}
 
@@ -200,6 +220,7 @@ class _Reader:
 
     def __init__(self, data, text, source):
         self.data, self.text, self.source = data, text, source
+        self.stage = None  # (section, key) being read, named when the time budget runs out
 
     def where(self, section, key=None):
         line = _line_of(self.text, section, key) if key else None
@@ -219,15 +240,19 @@ class _Reader:
 
     def number(self, section, key, value, kind=float):
         if isinstance(value, bool) or not isinstance(value, (int, float)):
-            self.fail(section, key, f"expected a number, got {value!r}")
+            self.fail(section, key, f"expected a number, got {value!r:.60}")
+        if not (math.isfinite(value) if isinstance(value, float) else abs(value) < 1e300):
+            self.fail(section, key, f"expected a finite number, got {value!r:.60}")
         if kind is int and int(value) != value:
             self.fail(section, key, f"expected a whole number, got {value!r}")
         return kind(value)
 
     def expression(self, section, key, value, names, functions=None):
+        self.stage = (section, key)
         if isinstance(value, bool) or not isinstance(value, (str, int, float)):
-            self.fail(section, key, f"expected an expression in quotes or a number, got {value!r}")
+            self.fail(section, key, f"expected an expression in quotes or a number, got {value!r:.60}")
         if isinstance(value, (int, float)):
+            self.number(section, key, value)
             return sp.nsimplify(value) if isinstance(value, int) else sp.Float(value)
         try:
             return parse_expression(value, names, functions=functions, where=self.where(section, key))
@@ -293,6 +318,8 @@ class _Reader:
 
         op_tab = dict(self.table("operator"))
         kind = op_tab.pop("kind", "poisson")
+        if not isinstance(kind, str):
+            self.fail("operator", "kind", f"expected an operator name in quotes, got {kind!r:.60}")
         with_fields = {**names, **fields}
         equations, fluxes, parameters = {}, {}, {}
         if kind == "custom":
@@ -330,17 +357,26 @@ class _Reader:
                           f"not a parameter of {kind}; its parameters are {', '.join(op.parameters)}")
             for k, default in op.parameters.items():
                 parameters[k] = self.expression("operator", k, op_tab.get(k, default), with_fields)
+            self.stage = ("operator", "kind")
             equations = op.residuals(fields, coords, t, parameters)
             fluxes = op.fluxes(fields, coords, parameters)
+        for k, e in equations.items():
+            self.check_size("operator.equations" if kind == "custom" else "operator", k if kind == "custom"
+                            else "kind", e, f"the source term of equation {k!r}")
+        for k, vec in fluxes.items():
+            for c, e in zip(coords, vec):
+                self.check_size("operator", "kind", e, f"the {c}-flux of field {k!r}")
 
+        self.stage = None
         boundaries = self._boundaries(fields, axes)
         order = self.table("order")
         space_order = self.number("order", "space", order.get("space", 2), int)
         time_order = self.number("order", "time", order["time"], int) if "time" in order else (1 if t is not None else None)
         tolerance = self.number("order", "tolerance", order.get("tolerance", 0.1))
-        if space_order < 1 or (time_order is not None and time_order < 1) or not tolerance > 0:
-            raise ProblemError(f"{self.where('order')}: orders must be at least 1 and the tolerance positive")
-        study = dict(self.table("study"))
+        if not 1 <= space_order <= MAX_ORDER or not 1 <= (time_order or 1) <= MAX_ORDER or not tolerance > 0:
+            raise ProblemError(f"{self.where('order')}: orders must be whole numbers from 1 to {MAX_ORDER} and the "
+                               "tolerance positive")
+        study = self._study(len(axes))
         quantities = self._quantities(with_fields, fields, fluxes, coords, box, axes)
         bounds = self._bounds({**with_fields, **parameters}, fields, parameters)
         equation_text = {k: str(v) for k, v in eqs.items()} if kind == "custom" else {}
@@ -351,6 +387,34 @@ class _Reader:
                        parameters=parameters, equations=equations, fluxes=fluxes, boundaries=boundaries,
                        space_order=space_order, time_order=time_order, tolerance=tolerance, study=study,
                        source=self.source)
+
+    def check_size(self, section, key, expr, what):
+        """Refuse a derived expression whose tree has more than MAX_EQUATION_NODES nodes."""
+        for n, _ in enumerate(sp.preorder_traversal(expr)):
+            if n >= MAX_EQUATION_NODES:
+                self.fail(section, key, f"{what} has more than {MAX_EQUATION_NODES} terms and factors after "
+                                        "differentiation; use fewer or simpler terms in the fields (each factor "
+                                        "of a product multiplies the size of every derivative)")
+
+    def _study(self, dim):
+        """The [study] table: levels, base_cells, ratio and base_steps, checked."""
+        study = dict(self.table("study"))
+        unknown = set(study) - set(_STUDY_KEYS)
+        if unknown:
+            self.fail("study", sorted(unknown)[0], f"unknown entry; [study] takes {', '.join(_STUDY_KEYS)}")
+        for key, value in study.items():
+            if key == "ratio":
+                if not 1 < self.number("study", key, value) <= 16:
+                    self.fail("study", key, f"the refinement ratio must exceed 1 (and be at most 16), got {value}")
+                continue
+            lo, hi = _STUDY_KEYS[key]
+            items = value if key == "base_cells" and isinstance(value, list) else [value]
+            if key == "base_cells" and isinstance(value, list) and len(value) != dim:
+                self.fail("study", key, f"give one number of cells or {dim} (one per direction), got {value!r:.60}")
+            for v in items:
+                if not lo <= self.number("study", key, v, int) <= hi:
+                    self.fail("study", key, f"expected a whole number from {lo} to {hi}, got {v!r:.60}")
+        return study
 
     def _bounds(self, names, fields, parameters):
         """The [bounds] table: name -> (expression, min or None, max or None)."""
@@ -434,26 +498,58 @@ class _Reader:
 
 
 def problem_from_text(text, source="<text>"):
-    """Read a problem from TOML text; ``source`` names it in error messages."""
+    """Read a problem from TOML text; ``source`` names it in error messages.
+
+    Raises
+    ------
+    ProblemError
+        For anything that is not a valid problem, including files beyond the
+        limits of size and time (see the module documentation).
+    """
+    if not isinstance(text, str):
+        raise ProblemError(f"{source}: expected the text of a TOML file, got {type(text).__name__}")
+    if len(text) > MAX_FILE_CHARS:
+        raise ProblemError(f"{source}: the file has {len(text)} characters; problem files are limited to "
+                           f"{MAX_FILE_CHARS} (define long expressions with fewer terms)")
+    reader = None
     try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise ProblemError(f"{source}: not valid TOML ({exc}); check quotes and brackets") from None
-    except (RecursionError, MemoryError):
-        raise ProblemError(f"{source}: nested too deeply to read") from None
-    # Derivation cache (mmsverify._diskcache): the same text gives the same
-    # problem; only the name default and the source depend on where it is.
-    key = _diskcache.make_key("problem", text)
-    cached = _diskcache.load("problem", key)
-    if isinstance(cached, Problem):
-        name = data.get("name", Path(source).stem)
-        if (name, source) != (cached.name, cached.source):
-            memo = cached.content_hash()
-            cached = replace(cached, name=name, source=source)
-            object.__setattr__(cached, "_content_hash", memo)
-        return cached
-    problem = _Reader(data, text, source).read()
-    problem.content_hash()
+        with _time_limit(MAX_LOAD_SECONDS):
+            try:
+                data = tomllib.loads(text)
+            except tomllib.TOMLDecodeError as exc:
+                raise ProblemError(f"{source}: not valid TOML ({exc}); check quotes and brackets") from None
+            except (RecursionError, MemoryError):
+                raise ProblemError(f"{source}: nested too deeply to read") from None
+            # Derivation cache (mmsverify._diskcache): the same text gives the same
+            # problem; only the name default and the source depend on where it is.
+            key = _diskcache.make_key("problem", text)
+            cached = _diskcache.load("problem", key)
+            if isinstance(cached, Problem):
+                name = data.get("name", Path(source).stem)
+                if (name, source) != (cached.name, cached.source):
+                    memo = cached.content_hash()
+                    cached = replace(cached, name=name, source=source)
+                    object.__setattr__(cached, "_content_hash", memo)
+                return cached
+            reader = _Reader(data, text, source)
+            problem = reader.read()
+            reader.stage = ("operator", "kind")  # the hash prints every derived term
+            problem.content_hash()
+    except _Timeout:
+        section, entry = (reader.stage if reader is not None and reader.stage else (None, None))
+        where = reader.where(section, entry) if section else source
+        if reader is None:
+            doing = "reading the TOML; split deeply nested or very long tables"
+        elif section is None:
+            doing = "checking the tables"
+        else:
+            doing = ("deriving the source terms" if (section, entry) == ("operator", "kind") else
+                     "reading this entry") + ("; use fewer or simpler terms (each factor of a product "
+                                              "multiplies the size of every derivative)")
+        raise ProblemError(f"{where}: loading took longer than {MAX_LOAD_SECONDS:g} s and was stopped while "
+                           f"{doing}") from None
+    except RecursionError:
+        raise ProblemError(f"{source}: an expression is nested too deeply to differentiate") from None
     _diskcache.store("problem", key, problem)
     return problem
 
@@ -469,6 +565,9 @@ def load_problem(path):
             raise ProblemError(f"no problem file {str(path)!r} and no bundled problem of that name; "
                                f"bundled problems: {', '.join(bundled_problems())}")
     try:
+        if p.stat().st_size > 4 * MAX_FILE_CHARS:  # before reading it into memory
+            raise ProblemError(f"{p}: {p.stat().st_size} bytes is far too large for a problem file "
+                               f"(at most {MAX_FILE_CHARS} characters)")
         text = p.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise ProblemError(f"{p}: no such problem file") from None
