@@ -115,3 +115,11 @@ def test_dask_local_cluster():
         result = run_study(PROBLEM, "poisson2d", levels=3, executor=client)
     serial = run_study(PROBLEM, "poisson2d", levels=3)
     assert _errors(result) == _errors(serial)
+
+
+def test_command_line_workers_timeout_and_dask(capsys):
+    from mmsverify.cli import main
+    assert main(["run", PROBLEM, "poisson2d", "--levels", "3", "--workers", "2", "--timeout", "60"]) == 0
+    assert "PASS" in capsys.readouterr().out
+    pytest.importorskip("distributed", reason="Dask is optional: pip install 'mmsverify[dask]'")
+    assert main(["run", PROBLEM, "poisson2d", "--levels", "3", "--dask", "local", "--workers", "1"]) == 0
