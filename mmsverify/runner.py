@@ -80,31 +80,23 @@ def _time_limit(seconds, where):
         _DEADLINE.reset(token)
 
 
-class _Recorder:
-    """Calls the solver and keeps what its Solution reports in ``info``."""
-
-    def __init__(self, solve):
-        self.solve, self.info = solve, {}
-
-    def __call__(self, case):
-        sol = self.solve(case)
-        self.info = dict(getattr(sol, "info", None) or {})
-        return sol
-
-
 def _failed(case, where, message):
     return LevelResult(case.grid.level, case.grid, case.grid.h, "failed", message=f"{where}: {message}")
 
 
 def _execute(solve, case, where, timeout):
-    """Run one level where it is sent (this process or a worker); never raises for solver faults."""
-    recorder = _Recorder(solve)
+    """Run one level where it is sent (this process or a worker); never raises for solver faults.
+
+    A solver that measures its own grid size (``Solution.info["h"]``, as
+    :class:`~mmsverify.external.ExternalSolver` does from cell volumes) sets
+    the level's h, except in a time-refinement study.
+    """
     try:
         with _time_limit(timeout, where):
-            result = run_level(recorder, case, where)
+            result = run_level(solve, case, where)
     except LevelTimeout as exc:  # the limit struck outside the solver call (while measuring errors)
         return LevelResult(case.grid.level, case.grid, case.grid.h, "failed", message=str(exc))
-    h = recorder.info.get("h")
+    h = result.info.get("h")
     time_mode = case.problem.transient and case.options.get("mode") == "time"
     if result.ok and h is not None and not time_mode:
         result = replace(result, h=float(h))
