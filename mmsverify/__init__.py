@@ -15,6 +15,9 @@ from .estimate import assess, assess_table, load_levels, plan
 from .verdict import Verdict
 from .study import LevelResult, StudyResult, run_study, plan_grids
 from .spacetime import SpaceTimeResult, run_space_time
+from .external import ExternalSolver
+from .runner import run_studies
+from .cache import LevelCache
 
 __all__ = [
     "MMSError", "ProblemError", "ExpressionError", "GridError", "SolverError", "AnalysisError",
@@ -22,5 +25,5 @@ __all__ = [
     "Manufactured", "derive", "Case", "Solution", "error_norms", "observed_orders", "Verdict",
     "LevelResult", "StudyResult", "run_study", "plan_grids", "SpaceTimeResult", "run_space_time",
     "fit_order", "classify_convergence", "asymptotic_check", "eca_hoekstra", "gci", "gci_profile",
-    "assess", "assess_table", "load_levels", "plan",
+    "assess", "assess_table", "load_levels", "plan", "ExternalSolver", "run_studies", "LevelCache",
 ]

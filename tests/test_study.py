@@ -75,6 +75,7 @@ def test_a_failing_level_is_recorded_and_the_study_goes_on(fault, words):
     assert "level 1" in failed[0].message
     assert all(lv.ok for lv in r.levels if lv.level != 1)
     assert r.passed  # levels 0, 2, 3 still support the order
+    assert str(r).splitlines()[0].endswith("(level 1 failed, left out)")
 
 
 def test_grid_sequence_that_is_not_a_refinement_is_refused():

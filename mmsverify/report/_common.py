@@ -34,9 +34,12 @@ def headline(result):
     kind = outcome(result)
     p = f"{result.formal_order:g}"
     n = len(result.verdicts)
+    failed = [str(lv.level) for lv in result.failed_levels]
     if kind == "pass":
+        left_out = (f" Level{'s' if len(failed) > 1 else ''} {', '.join(failed)} failed and "
+                    f"{'were' if len(failed) > 1 else 'was'} left out." if failed else "")
         return (f"Every field and norm ({n} checks) converges at the formal order {p} within "
-                f"{result.tolerance:g}.")
+                f"{result.tolerance:g}.{left_out}")
     if kind == "fail":
         off = [v for v in result.verdicts if v.status in ("below", "above")]
         which = ", ".join(f"{v.field} {v.norm}" for v in off)

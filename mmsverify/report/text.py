@@ -19,7 +19,9 @@ def format_study(result):
     """The study as a text table: verdict first, then levels, errors and orders."""
     lines = []
     overall = outcome(result).upper()
-    lines.append(f"{overall}  {result.problem}  solved by  {result.solver}")
+    failed = [str(lv.level) for lv in result.failed_levels]
+    note = f"  (level{'s' if len(failed) > 1 else ''} {', '.join(failed)} failed, left out)" if failed else ""
+    lines.append(f"{overall}  {result.problem}  solved by  {result.solver}{note}")
     stated = {"solver": ", stated by the solver", "caller": ", given by the caller"}.get(
         getattr(result, "order_source", "problem"), "")
     lines.append(f"  formal order {result.formal_order:g} ({result.mode} refinement{stated}), "
