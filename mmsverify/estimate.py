@@ -36,9 +36,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ._fmt import _fmt, _kv, _pct, _table
 from .errors import AnalysisError
 from .gci import _sizes, gci
-from .order import _as_levels, _fmt, _pct, _table, asymptotic_check, classify_convergence, eca_hoekstra, fit_order
+from .order import _as_levels, asymptotic_check, classify_convergence, eca_hoekstra, fit_order
 
 __all__ = [
     "ACCEPTANCE_LEVEL",
@@ -147,12 +148,6 @@ class Assessment:
         if self.warnings:
             text += "\n" + "\n".join("warning: " + w for w in self.warnings)
         return text
-
-
-def _kv(rows):
-    """Label-value lines with the labels padded to one width."""
-    w = max(len(k) for k, _ in rows)
-    return "\n".join(f"{k.ljust(w)}  {v}" for k, v in rows)
 
 
 def _verdict(rel, method, name):

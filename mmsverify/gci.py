@@ -16,8 +16,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ._fmt import _fmt, _pct, _table
 from .errors import AnalysisError
-from .order import _apparent_order, _as_levels, _fmt, _pct, _table, classify_convergence
+from .order import _apparent_order, _as_levels, classify_convergence
 
 __all__ = [
     "representative_h",

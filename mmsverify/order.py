@@ -13,6 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ._fmt import _fmt, _pct, _table
 from .errors import AnalysisError
 
 __all__ = [
@@ -33,33 +34,6 @@ _EPS = np.finfo(float).eps
 # --------------------------------------------------------------------------
 # small shared helpers (also used by gci.py and estimate.py)
 # --------------------------------------------------------------------------
-
-def _fmt(x, spec=".6g"):
-    """Format a number for a report; ``None`` and NaN print as ``n/a``."""
-    if x is None:
-        return "n/a"
-    try:
-        xf = float(x)
-    except (TypeError, ValueError):
-        return str(x)
-    if math.isnan(xf):
-        return "n/a"
-    return format(xf, spec)
-
-
-def _pct(x, spec=".3g"):
-    """Format a fraction as a percentage; ``None`` prints as ``n/a``."""
-    return "n/a" if x is None or (isinstance(x, float) and math.isnan(x)) else format(100.0 * x, spec) + " %"
-
-
-def _table(header, rows):
-    """Plain-text table with columns padded to their widest cell."""
-    cells = [list(map(str, header))] + [[str(c) for c in row] for row in rows]
-    widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
-    lines = ["  ".join(c.rjust(w) for c, w in zip(r, widths)) for r in cells]
-    lines.insert(1, "  ".join("-" * w for w in widths))
-    return "\n".join(lines)
-
 
 def _as_levels(h, y, name="e", need=2):
     """Validate ``h`` (strictly decreasing, positive) and ``y`` of equal length."""
