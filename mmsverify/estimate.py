@@ -36,10 +36,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ._celik import _as_levels, _sizes, representative_h
 from ._fmt import _fmt, _kv, _pct, _table
 from .errors import AnalysisError
-from .gci import _sizes, gci
-from .order import _as_levels, asymptotic_check, classify_convergence, eca_hoekstra, fit_order
+from .gci import gci
+from .order import asymptotic_check, classify_convergence, eca_hoekstra, fit_order
 
 __all__ = [
     "ACCEPTANCE_LEVEL",
@@ -464,8 +465,6 @@ def load_levels(path, dim=None):
         if "dim" not in settings:
             raise AnalysisError(f"{path}: cell counts need the number of dimensions; add a line 'dim = 2' (or 1, 3) "
                                 "before the header")
-        from .gci import representative_h
-
         hs = representative_h(sizes, settings["dim"], settings.get("volume"))
     else:
         hs = sizes

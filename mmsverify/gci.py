@@ -16,9 +16,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ._celik import _FS2, _FS3, _apparent_order, _as_levels, _sizes, representative_h
 from ._fmt import _fmt, _pct, _table
 from .errors import AnalysisError
-from .order import _apparent_order, _as_levels, classify_convergence
+from .order import classify_convergence
 
 __all__ = [
     "representative_h",
@@ -33,59 +34,7 @@ __all__ = [
 
 #: Smallest refinement ratio Celik et al. (2008) recommend between grids.
 MIN_RATIO = 1.3  # common practice (Celik et al. 2008 recommend r > 1.3)
-_FS3, _FS2 = 1.25, 3.0  # Roache (1998) safety factors for >= 3 grids and for 2 grids
 _ASYMPTOTIC_BAND = 0.1  # common practice: asymptotic ratio within about 10 % of 1
-
-
-def representative_h(cells, dim, volume=None):
-    """Representative cell size ``h = (V/N)**(1/d)`` (Celik et al. 2008, Eq. 1).
-
-    Parameters
-    ----------
-    cells : array_like
-        Number of cells (or nodes) of each grid.
-    dim : int
-        Number of space dimensions, 1 to 3.
-    volume : float or array_like, optional
-        Domain size (length, area or volume); 1 when not given, which gives
-        ``h = (1/N)**(1/d)``. Ratios do not depend on it.
-
-    Returns
-    -------
-    ndarray
-
-    Examples
-    --------
-    >>> representative_h([4500, 18000], dim=2).round(6)
-    array([0.014907, 0.007454])
-    """
-    try:
-        N = np.asarray(cells, dtype=float)
-    except (TypeError, ValueError):
-        raise AnalysisError(f"cells must be numbers, got {cells!r}") from None
-    if dim not in (1, 2, 3):
-        raise AnalysisError(f"dim must be 1, 2 or 3 (space dimensions of the grids), got {dim!r}")
-    if N.ndim != 1 or not np.all(np.isfinite(N)) or np.any(N <= 0):
-        raise AnalysisError(f"cell counts must be positive numbers, got {np.atleast_1d(N).tolist()}")
-    V = 1.0 if volume is None else np.asarray(volume, dtype=float)
-    if np.any(~np.isfinite(V)) or np.any(V <= 0):
-        raise AnalysisError(f"volume must be positive, got {volume!r}")
-    return (V / N) ** (1.0 / dim)
-
-
-def _sizes(h, cells, dim, volume, n):
-    """One place that turns h or (cells, dim, volume) into grid sizes."""
-    if h is not None and cells is not None:
-        raise AnalysisError("give either h (grid sizes) or cells (with dim), not both")
-    if h is None and cells is None:
-        raise AnalysisError("give the grid sizes h, or the cell counts cells together with dim")
-    if cells is not None:
-        if dim is None:
-            raise AnalysisError("cell counts need the number of dimensions: pass dim=1, 2 or 3")
-        if len(np.atleast_1d(cells)) != n:
-            raise AnalysisError(f"{len(np.atleast_1d(cells))} cell counts for {n} values: give one per level")
-        return representative_h(cells, dim, volume)
-    return h
 
 
 @dataclass(frozen=True)

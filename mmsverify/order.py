@@ -13,6 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ._celik import _apparent_order, _as_levels
 from ._fmt import _fmt, _pct, _table
 from .errors import AnalysisError
 
@@ -29,76 +30,6 @@ __all__ = [
 ]
 
 _EPS = np.finfo(float).eps
-
-
-# --------------------------------------------------------------------------
-# small shared helpers (also used by gci.py and estimate.py)
-# --------------------------------------------------------------------------
-
-def _as_levels(h, y, name="e", need=2):
-    """Validate ``h`` (strictly decreasing, positive) and ``y`` of equal length."""
-    try:
-        h = np.asarray(h, dtype=float)
-        y = np.asarray(y, dtype=float)
-    except (TypeError, ValueError) as exc:
-        raise AnalysisError(f"h and {name} must be sequences of numbers: {exc}") from None
-    if h.ndim != 1 or h.shape != y.shape:
-        raise AnalysisError(f"h and {name} must be 1-D of equal length, got shapes {h.shape} and {y.shape}")
-    if len(h) < need:
-        raise AnalysisError(f"this analysis needs at least {need} levels, got {len(h)}: run more grid levels")
-    if not (np.all(np.isfinite(h)) and np.all(np.isfinite(y))):
-        raise AnalysisError(f"h and {name} must be finite numbers (got h={h.tolist()}, {name}={y.tolist()})")
-    if np.any(h <= 0):
-        raise AnalysisError(f"grid sizes must be positive, got h={h.tolist()}")
-    bad = np.nonzero(np.diff(h) >= 0)[0]
-    if bad.size:
-        k = int(bad[0])
-        raise AnalysisError(
-            f"grid sizes must strictly decrease from coarse to fine, but level {k + 1} (h={h[k + 1]:g}) is not finer "
-            f"than level {k} (h={h[k]:g}); list the levels coarse to fine and drop repeated grids")
-    return h, y
-
-
-def _apparent_order(r21, r32, eps21, eps32, tol=1e-13, maxiter=1000):
-    """Apparent order of Celik et al. (2008), Eqs. (3a)-(3c), by fixed-point iteration.
-
-    ``p = |ln|eps32/eps21| + q(p)| / ln r21`` with
-    ``q(p) = ln((r21**p - s) / (r32**p - s))`` and ``s = sign(eps32/eps21)``.
-    Returns ``(p, iterations)`` or ``(None, reason)``; a root bracket search is
-    the fallback when the iteration does not settle.
-    """
-    ratio = eps32 / eps21
-    s = 1.0 if ratio > 0 else -1.0
-    lr = math.log(abs(ratio))
-    ln21 = math.log(r21)
-    p = abs(lr) / ln21
-    for it in range(1, maxiter + 1):
-        num, den = r21 ** p - s, r32 ** p - s
-        if num <= 0 or den <= 0:
-            break
-        p_new = abs(lr + math.log(num / den)) / ln21
-        if abs(p_new - p) <= tol * max(1.0, p):
-            return p_new, it
-        p = p_new
-    # fallback: root of F(p) = p ln r21 + ln((r32^p - s)/(r21^p - s)) - ln|eps32/eps21|
-    from scipy.optimize import brentq
-
-    def F(q):
-        return q * ln21 + math.log((r32 ** q - s) / (r21 ** q - s)) - lr
-
-    grid = np.geomspace(1e-6, 50.0, 400)
-    with np.errstate(all="ignore"):
-        vals = []
-        for q in grid:
-            try:
-                vals.append(F(q))
-            except (ValueError, ZeroDivisionError, OverflowError):
-                vals.append(np.nan)
-    vals = np.asarray(vals)
-    for i in range(len(grid) - 1):
-        if np.isfinite(vals[i]) and np.isfinite(vals[i + 1]) and vals[i] * vals[i + 1] <= 0:
-            return brentq(F, grid[i], grid[i + 1], xtol=1e-14), -1
-    return None, "the order equation of Celik et al. (2008) has no positive root for these values"
 
 
 # --------------------------------------------------------------------------
