@@ -158,6 +158,19 @@ def _rel(num, den):
     return None if den == 0 else abs(num / den)
 
 
+def _richardson(fine, coarse, r, p, fs, e_a):
+    """Richardson extrapolation of one pair of grids (Celik et al. 2008).
+
+    Returns the extrapolated value ``(r^p fine - coarse) / (r^p - 1)``, its
+    relative error ``|(ext - fine) / ext|``, and the fine and coarse GCIs
+    ``Fs e_a / (r^p - 1)`` and ``r^p`` times that; None where undefined.
+    """
+    rp = r ** p
+    ext = (rp * fine - coarse) / (rp - 1)
+    g = None if e_a is None else fs * e_a / (rp - 1)
+    return ext, _rel(ext - fine, ext), g, None if g is None else g * rp
+
+
 def gci(values, h=None, cells=None, dim=None, volume=None, formal_order=None, safety_factor=None):
     """Richardson extrapolation and GCI (Celik et al. 2008) from two or three grids.
 
@@ -228,16 +241,12 @@ def gci(values, h=None, cells=None, dim=None, volume=None, formal_order=None, sa
             raise AnalysisError(f"formal_order must be positive, got {formal_order}")
         fs = _FS2 if safety_factor is None else float(safety_factor)
         p = float(formal_order)
-        rp = r21 ** p
-        phi_ext = (rp * phi1 - phi2) / (rp - 1)
-        g = None if e_a21 is None else fs * e_a21 / (rp - 1)
-        gc = None if g is None else g * rp
-        e_ext = _rel(phi_ext - phi1, phi_ext)
+        phi_ext, e_ext, g, gc = _richardson(phi1, phi2, r21, p, fs, e_a21)
         warnings.append(f"two grids: the order is assumed equal to the formal order {p:g} and Fs = {fs:g}; "
                         "run a third grid to measure it")
         formula = FormulaValues(p=p, phi_ext21=phi_ext, e_ext21=e_ext, gci_fine21=g, gci_coarse21=gc)
         return GCIResult(tuple(hh), tuple(ph), r21, None, eps21, None, e_a21, None, "two-grid", True, p, phi_ext,
-                         None, e_ext, None, g, gc, None, fs * abs(eps21) / (rp - 1), None, fs, None, None, formula,
+                         None, e_ext, None, g, gc, None, fs * abs(eps21) / (r21 ** p - 1), None, fs, None, None, formula,
                          tuple(warnings))
 
     fs = _FS3 if safety_factor is None else float(safety_factor)
@@ -253,14 +262,10 @@ def gci(values, h=None, cells=None, dim=None, volume=None, formal_order=None, sa
     p, it = _apparent_order(r21, r32, eps21, eps32)
     formula = FormulaValues()
     if p is not None and p > 0:
-        rp21, rp32 = r21 ** p, r32 ** p
-        ext21 = (rp21 * phi1 - phi2) / (rp21 - 1)
-        ext32 = (rp32 * phi2 - phi3) / (rp32 - 1)
-        g21 = None if e_a21 is None else fs * e_a21 / (rp21 - 1)
-        g32 = None if e_a32 is None else fs * e_a32 / (rp32 - 1)
-        formula = FormulaValues(p, ext21, ext32, _rel(ext21 - phi1, ext21), _rel(ext32 - phi2, ext32), g21,
-                                None if g21 is None else g21 * rp21, g32,
-                                None if (g21 is None or g32 is None or g21 == 0) else g32 / (rp21 * g21))
+        ext21, e_ext21, g21, gc21 = _richardson(phi1, phi2, r21, p, fs, e_a21)
+        ext32, e_ext32, g32, _ = _richardson(phi2, phi3, r32, p, fs, e_a32)
+        formula = FormulaValues(p, ext21, ext32, e_ext21, e_ext32, g21, gc21, g32,
+                                None if (g21 is None or g32 is None or g21 == 0) else g32 / (r21 ** p * g21))
     if conv.kind == "monotone" and formula.p is not None:
         status = "monotone"
     elif conv.kind in ("oscillatory", "divergent"):
