@@ -189,6 +189,12 @@ def classify_convergence(phi, h=None, tol=None):
 
 _ROUNDOFF_FACTOR = 1e3  # common practice: within ~1000 eps of the solution size counts as round-off
 _HEALTHY, _STALLED = 0.5, 0.2  # fractions of the reference order: falling / stopped falling
+_FAR_FROM_FORMAL = 0.25  # common practice: flag an observed order more than 25 % away from the formal order
+
+
+def _far_from_formal(order, formal_order):
+    """Whether an observed order is more than 25 % away from the formal order (False if either is None)."""
+    return order is not None and formal_order is not None and abs(order - formal_order) > _FAR_FROM_FORMAL * formal_order
 
 
 @dataclass(frozen=True)
