@@ -64,3 +64,13 @@ def test_quiet_run_prints_the_headline_and_json_reads_back(tmp_path, capsys):
     assert main(["run", "plate-poisson", "poisson2d", "--levels", "3", "--quiet", "--json", str(out)]) == 0
     assert capsys.readouterr().out.strip() == "PASS  plate-poisson  solved by  poisson2d"
     assert read_json(out).passed
+
+
+def test_run_plans_the_grid_for_a_target_error(capsys):
+    # closed form check: with e = C h^2, the plan's h must give C h^2 = target
+    assert main(["run", "plate-poisson", "poisson2d", "--levels", "4", "--target-error", "1e-6"]) == 0
+    out = capsys.readouterr().out
+    assert "plan for field u: L2 error 1e-06" in out
+    c = float(out.split("error model")[1].split()[0])
+    h = float(out.split("h needed")[1].split()[0])
+    assert abs(c * h ** 2 / 1e-6 - 1) < 0.02

@@ -128,12 +128,31 @@ def _run(args):
     label = args.solver or args.external
     result = study_from_args(args, args.problem, args.solver, progress_for(args, label=f"{args.problem} / {label}"))
     print(str(result).splitlines()[0] if quiet else result)
+    if args.target_error is not None and not quiet:
+        print_plans(result, args.target_error)
     if args.json:
         from ..report.files import write_json
         write_json(result, args.json)
         if not quiet:
             print(f"\nwrote {args.json}")
     return exit_code(result)
+
+
+def print_plans(result, target):
+    """Predicted grid and run time to reach ``target`` in the L2 norm, per field."""
+    from ..errors import AnalysisError
+    from ..estimate import plan
+    for f in result.fields:
+        ok = [lv for lv in result.levels if lv.ok and f in lv.errors]
+        print(f"\nplan for field {f}: L2 error {target:g}")
+        try:
+            p = plan([lv.h for lv in ok], [lv.errors[f]["L2"] for lv in ok], [lv.seconds for lv in ok], target,
+                     cells=[lv.grid.n_cells for lv in ok], dim=ok[-1].grid.dim if ok else None,
+                     formal_order=result.formal_order)
+        except AnalysisError as exc:
+            print(f"  no plan: {exc}")
+            continue
+        print("  " + str(p).replace("\n", "\n  "))
 
 
 def print_design_warnings(args):
@@ -154,4 +173,6 @@ def register(sub):
     p.add_argument("solver", nargs="?", help="bundled solver name or module:function (or use --external)")
     add_study_options(p)
     p.add_argument("--json", metavar="PATH", help="also write every number as JSON")
+    p.add_argument("--target-error", type=float, metavar="E",
+                   help="also predict the grid and run time that bring the L2 error of each field to E")
     p.set_defaults(func=_run)
