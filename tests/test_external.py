@@ -216,7 +216,7 @@ def test_failing_levels_are_recorded_and_the_rest_still_judged(tmp_path):
     assert "exited with code 139" in result.levels[1].message
     assert "segmentation fault (simulated)" in result.levels[1].message
     assert "NaN" in result.levels[4].message
-    assert result.passed  # judged on levels 2-3
+    assert result.orders_confirmed and not result.passed  # judged on levels 2-3; failed levels are defects
     assert "levels 2-3" in result.verdicts[0].reason
 
 

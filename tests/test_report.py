@@ -246,7 +246,8 @@ def test_html_escapes_messages_and_can_skip_figures(partial):
     page = html_text(partial, figures=False)
     assert "&lt;finest&gt;" in page and "<finest>" not in page
     assert "<img" not in page
-    assert "Verdict: PASS." in page  # two levels still confirm order 2
+    assert "Verdict: FAIL." in page  # two levels confirm order 2, but a failed level is a defect
+    assert "the study is not a pass until every level runs" in page
     assert "Only two levels succeeded" in page
 
 

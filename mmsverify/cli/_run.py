@@ -52,11 +52,8 @@ def add_execution_options(p):
 
 
 def exit_code(result):
-    if result.passed:
-        return EXIT_OK
-    if any(v.status in ("below", "above") for v in result.verdicts):
-        return EXIT_FAIL
-    return EXIT_INCONCLUSIVE
+    from ..report._common import outcome
+    return {"pass": EXIT_OK, "fail": EXIT_FAIL}.get(outcome(result), EXIT_INCONCLUSIVE)
 
 
 def _param(text):

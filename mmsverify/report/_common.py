@@ -24,7 +24,7 @@ def outcome(result):
     """
     if result.passed:
         return "pass"
-    if any(v.status in ("below", "above") for v in result.verdicts):
+    if any(v.status in ("below", "above") for v in result.verdicts) or result.failed_levels:
         return "fail"
     return "inconclusive"
 
@@ -36,10 +36,12 @@ def headline(result):
     n = len(result.verdicts)
     failed = [str(lv.level) for lv in result.failed_levels]
     if kind == "pass":
-        left_out = (f" Level{'s' if len(failed) > 1 else ''} {', '.join(failed)} failed and "
-                    f"{'were' if len(failed) > 1 else 'was'} left out." if failed else "")
         return (f"Every field and norm ({n} checks) converges at the formal order {p} within "
-                f"{result.tolerance:g}.{left_out}")
+                f"{result.tolerance:g}.")
+    if failed and result.orders_confirmed:
+        return (f"Level{'s' if len(failed) > 1 else ''} {', '.join(failed)} failed (see below); the "
+                f"{n} checks on the other levels confirm the formal order {p}, but the study is not a pass "
+                "until every level runs.")
     if kind == "fail":
         off = [v for v in result.verdicts if v.status in ("below", "above")]
         which = ", ".join(f"{v.field} {v.norm}" for v in off)
@@ -137,7 +139,7 @@ def extra_cautions(result):
     if result.failed_levels:
         notes.append(f"{len(result.failed_levels)} level(s) failed; orders use only the levels that succeeded.")
     ok = [lv for lv in result.levels if lv.ok]
-    if result.passed and len(ok) < 3:
+    if result.orders_confirmed and len(ok) < 3:
         notes.append("Only two levels succeeded, so the order was measured once; three or more levels show "
                      "whether it has settled.")
     return notes

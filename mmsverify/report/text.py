@@ -20,7 +20,8 @@ def format_study(result):
     lines = []
     overall = outcome(result).upper()
     failed = [str(lv.level) for lv in result.failed_levels]
-    note = f"  (level{'s' if len(failed) > 1 else ''} {', '.join(failed)} failed, left out)" if failed else ""
+    note = (f"  (level{'s' if len(failed) > 1 else ''} {', '.join(failed)} failed; the orders are judged on the "
+            "others)") if failed else ""
     lines.append(f"{overall}  {result.problem}  solved by  {result.solver}{note}")
     stated = {"solver": ", stated by the solver", "caller": ", given by the caller"}.get(
         getattr(result, "order_source", "problem"), "")
