@@ -12,11 +12,37 @@ equal weights they reduce to the mean, the root mean square and the
 maximum of the pointwise errors.
 """
 
+import functools
+import string
+
 import numpy as np
 
 __all__ = ["NORMS", "error_norms"]
 
 NORMS = ("L1", "L2", "Linf")
+
+
+def _sum_of_products(*arrays):
+    """``sum(a * b * ...)`` over arrays of one shape, without a full-size temporary."""
+    ndim = arrays[0].ndim
+    if ndim > len(string.ascii_letters):  # more axes than einsum has letters for
+        return np.sum(functools.reduce(np.multiply, arrays))
+    axes = string.ascii_letters[:ndim]
+    return np.einsum(",".join([axes] * len(arrays)) + "->", *arrays)
+
+
+def _magnitude_norms(e, weights=None):
+    """The norms of :func:`error_norms` for a float array ``e`` that already holds ``|error|``."""
+    if weights is None:
+        n = e.size
+        return {"L1": float(e.sum() / n), "L2": float(np.sqrt(_sum_of_products(e, e) / n)), "Linf": float(e.max())}
+    w = np.broadcast_to(np.asarray(weights, dtype=float), e.shape)
+    total = w.sum()
+    return {
+        "L1": float(_sum_of_products(w, e) / total),
+        "L2": float(np.sqrt(_sum_of_products(w, e, e) / total)),
+        "Linf": float(e.max()),
+    }
 
 
 def error_norms(error, weights=None):
@@ -39,14 +65,4 @@ def error_norms(error, weights=None):
     >>> error_norms([1.0, -3.0], [3.0, 1.0])
     {'L1': 1.5, 'L2': 1.7320508075688772, 'Linf': 3.0}
     """
-    e = np.abs(np.asarray(error, dtype=float))
-    if weights is None:
-        w = np.ones_like(e)
-    else:
-        w = np.broadcast_to(np.asarray(weights, dtype=float), e.shape)
-    total = w.sum()
-    return {
-        "L1": float(np.sum(w * e) / total),
-        "L2": float(np.sqrt(np.sum(w * e * e) / total)),
-        "Linf": float(e.max()),
-    }
+    return _magnitude_norms(np.abs(np.asarray(error, dtype=float)), weights)

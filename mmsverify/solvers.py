@@ -133,11 +133,18 @@ def solver_name(solver):
     return f"{mod}:{qual}"
 
 
+def _all_finite(a):
+    """True when every entry is finite: one pass without a temporary array in the usual case."""
+    with np.errstate(all="ignore"):
+        total = np.add.reduce(a, axis=None)  # a NaN or an infinity makes the sum NaN or infinite
+    return bool(np.isfinite(total)) or bool(np.isfinite(a).all())  # an overflowing sum is checked entry by entry
+
+
 def check_solution(sol, problem, where):
     """Validate a solver's return value; raise :class:`SolverError` saying what is wrong.
 
     Returns the values and weights as float arrays of one common shape and the
-    points broadcast to it.
+    points broadcast to it (weights and points as read-only broadcast views).
     """
     if not isinstance(sol, Solution):
         raise SolverError(f"{where}: the solver returned {type(sol).__name__}; return mmsverify.Solution("
@@ -153,13 +160,19 @@ def check_solution(sol, problem, where):
                           f"dimension; got {type(sol.points).__name__} of length "
                           f"{len(sol.points) if hasattr(sol.points, '__len__') else '?'}")
     values, points = {}, None
+    raw_points = []
+    for p in sol.points:
+        try:
+            raw_points.append(np.asarray(p, dtype=float))
+        except (TypeError, ValueError):
+            raise SolverError(f"{where}: the points are not numeric arrays") from None
     for name, v in sol.values.items():
         try:
             arr = np.asarray(v, dtype=float)
         except (TypeError, ValueError):
             raise SolverError(f"{where}: field {name!r} is not numeric (dtype {np.asarray(v).dtype})") from None
         try:
-            pts = np.broadcast_arrays(*[np.asarray(p, dtype=float) for p in sol.points], arr)
+            pts = np.broadcast_arrays(*raw_points, arr)
         except ValueError:
             shapes = [np.shape(p) for p in sol.points]
             raise SolverError(f"{where}: field {name!r} has shape {arr.shape}, which does not match the "
@@ -169,28 +182,29 @@ def check_solution(sol, problem, where):
                               f"{pts[-1].shape}; return one value per point")
         if arr.size == 0:
             raise SolverError(f"{where}: field {name!r} is empty")
-        bad = ~np.isfinite(arr)
-        if bad.any():
+        if not _all_finite(arr):
+            bad = ~np.isfinite(arr)
             raise SolverError(f"{where}: field {name!r} has {int(bad.sum())} NaN/Inf value(s) of {arr.size}; "
                               "the solver diverged or left entries unset")
         if points is not None and points[0].shape != arr.shape:
             raise SolverError(f"{where}: fields have different shapes; return each field on one set of points "
                               "or use separate solvers per staggered location")
+        if points is None and not all(_all_finite(p) for p in raw_points):  # before broadcasting: cheaper
+            raise SolverError(f"{where}: the points contain NaN/Inf")
         points = tuple(pts[:-1])
-        for p in points:
-            if not np.isfinite(p).all():
-                raise SolverError(f"{where}: the points contain NaN/Inf")
         values[name] = arr
     shape = points[0].shape
     if sol.weights is None:
-        weights = np.ones(shape)
+        weights = np.broadcast_to(1.0, shape)
     else:
         try:
-            weights = np.broadcast_to(np.asarray(sol.weights, dtype=float), shape)
+            raw = np.asarray(sol.weights, dtype=float)
+            weights = np.broadcast_to(raw, shape)
         except (ValueError, TypeError):
             raise SolverError(f"{where}: weights of shape {np.shape(sol.weights)} do not match the values' "
                               f"shape {shape}") from None
-        if not np.isfinite(weights).all() or (weights < 0).any() or weights.sum() <= 0:
+        # checked before broadcasting; with no negative entry the sum is positive exactly when the largest is
+        if not _all_finite(raw) or raw.min() < 0 or not raw.max() > 0:
             raise SolverError(f"{where}: weights (cell volumes) must be finite, non-negative and not all zero")
     if not isinstance(sol.quantities, dict):
         raise SolverError(f"{where}: Solution.quantities must be a dict of name to number")
