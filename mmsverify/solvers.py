@@ -97,6 +97,20 @@ BUNDLED_SOLVERS = MappingProxyType({
 })
 
 
+def _import_from_here(module):
+    """Import a module, also from the current folder (as ``python -m`` would find it)."""
+    import os
+    import sys
+    try:
+        return importlib.import_module(module)
+    except ModuleNotFoundError as exc:
+        here = os.getcwd()
+        if here in sys.path or not (exc.name and module.split(".")[0] == exc.name.split(".")[0]):
+            raise
+        sys.path.insert(0, here)
+        return importlib.import_module(module)
+
+
 def resolve_solver(spec):
     """Accept a callable, ``"module:function"`` or a bundled name; return the callable."""
     if callable(spec):
@@ -109,7 +123,7 @@ def resolve_solver(spec):
                           f"{', '.join(BUNDLED_SOLVERS)}")
     module, _, attr = target.partition(":")
     try:
-        mod = importlib.import_module(module)
+        mod = _import_from_here(module)
     except ImportError as exc:
         raise SolverError(f"cannot import solver module {module!r} ({exc}); check the name and that its "
                           "folder is on PYTHONPATH (run from the folder that contains it)") from None
