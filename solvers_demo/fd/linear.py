@@ -53,6 +53,17 @@ def _amg(A, b):
     return ml.solve(b, tol=_RTOL * 0.1, accel="cg", maxiter=300)
 
 
+def _columns(rows, keep):
+    """``rows[:, keep]`` for a CSR matrix and a boolean mask, by renumbering (no column gather)."""
+    rows = rows.tocsr()
+    mask = keep[rows.indices]
+    kind = rows.indices.dtype  # keep scipy's index type (pyamg converts other types on every call)
+    start = np.concatenate(([0], np.cumsum(mask, dtype=kind)))
+    number = (np.cumsum(keep, dtype=kind) - 1).astype(kind)
+    return sps.csr_matrix((rows.data[mask], number[rows.indices[mask]], start[rows.indptr]),
+                          shape=(rows.shape[0], int(np.count_nonzero(keep))))
+
+
 def solve_nodes(system, method="auto", grid=None, kconst=None, where="solver"):
     """Solve a :class:`~solvers_demo.fd._assembly.NodeSystem`; return the flat node values.
 
@@ -71,8 +82,9 @@ def solve_nodes(system, method="auto", grid=None, kconst=None, where="solver"):
         raise SolverError(f"{where}: linear solver {method!r} is not known; use one of {', '.join(METHODS)}")
     free = ~system.dirichlet
     u = system.values.copy()
-    A = system.K[free][:, free].tocsr()
-    b = system.load[free] - system.K[free][:, ~free] @ u[~free]
+    rows = system.K[free]
+    A = _columns(rows, free)
+    b = system.load[free] - rows[:, ~free] @ u[~free]
     interior = np.zeros(system.shape, dtype=bool)
     interior[tuple(slice(1, -1) for _ in system.shape)] = True
     dst_ok = (grid is not None and kconst is not None and system.symmetric
