@@ -238,6 +238,11 @@ class _Reader:
             raise ProblemError(f"{self.source}: [{name}] must be a table of key = value lines")
         return value
 
+    def known_keys(self, section, table, allowed):
+        unknown = sorted(set(table) - set(allowed))
+        if unknown:
+            self.fail(section, unknown[0], f"unknown entry; [{section}] takes {', '.join(allowed)}")
+
     def number(self, section, key, value, kind=float):
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             self.fail(section, key, f"expected a number, got {value!r:.60}")
@@ -370,6 +375,7 @@ class _Reader:
         self.stage = None
         boundaries = self._boundaries(fields, axes)
         order = self.table("order")
+        self.known_keys("order", order, ("space", "time", "tolerance"))
         space_order = self.number("order", "space", order.get("space", 2), int)
         time_order = self.number("order", "time", order["time"], int) if "time" in order else (1 if t is not None else None)
         tolerance = self.number("order", "tolerance", order.get("tolerance", 0.1))

@@ -18,7 +18,7 @@ import traceback
 import numpy as np
 
 from .derive import derive
-from .errors import GridError, MMSError, SolverError
+from .errors import AnalysisError, GridError, MMSError, SolverError
 from .grids import Grid, check_refinement, refinement
 from .norms import NORMS, _magnitude_norms
 from .order import observed_orders
@@ -29,6 +29,8 @@ from .verdict import judge
 __all__ = ["LevelResult", "StudyResult", "plan_grids", "run_level", "run_study", "MODES"]
 
 MODES = ("combined", "space", "time")
+MAX_LEVELS = 30          # more levels than any study needs; beyond, the finest grid is astronomically large
+MAX_CELLS = 1e9          # a level larger than this would not fit in memory on any workstation
 
 
 @dataclass(frozen=True)
@@ -188,15 +190,32 @@ def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combi
     ``"combined"`` ties the number of steps to h by the ratio of formal
     orders (so both errors fall at the space order), ``"space"`` keeps the
     steps fixed, ``"time"`` keeps the cells fixed and refines the steps.
+    Unless given, the frozen resolution (cells in ``"time"``, steps in
+    ``"space"``) is two refinements beyond the finest combined level.
     ``orders`` = (space, time) overrides the problem's formal orders (for
     example with the orders a solver states).
     """
     problem = get_problem(problem)
     p_space, p_time = orders if orders is not None else (problem.space_order, problem.time_order)
     s = problem.study
-    levels = int(levels or s.get("levels", 4))
-    base_cells = base_cells or s.get("base_cells", 8)
-    ratio = float(ratio or s.get("ratio", 2))
+    frozen_default = {"time": base_cells is None, "space": base_steps is None}.get(mode, False)
+    levels = s.get("levels", 4) if levels is None else levels
+    base_cells = s.get("base_cells", 8) if base_cells is None else base_cells
+    ratio = float(s.get("ratio", 2) if ratio is None else ratio)
+    if isinstance(levels, bool) or int(levels) != levels or not 2 <= levels <= MAX_LEVELS:
+        raise GridError(f"levels must be a whole number from 2 to {MAX_LEVELS}, got {levels!r}; "
+                        "use 3 or more to see whether the order has settled")
+    levels = int(levels)
+    for n in np.atleast_1d(base_cells):
+        if int(n) != n or n < 1:
+            raise GridError(f"base cells must be positive whole numbers, got {base_cells!r}")
+    if not 1 < ratio <= 16:
+        raise GridError(f"the refinement ratio must exceed 1 (and be at most 16), got {ratio:g}")
+    finest = np.prod(np.broadcast_to(np.asarray(base_cells, dtype=float), (problem.dim,))) * ratio ** (
+        problem.dim * (levels - 1))
+    if finest > MAX_CELLS:
+        raise GridError(f"the finest level would have about {finest:.2g} cells, more than {MAX_CELLS:.0e}; "
+                        "use fewer levels, fewer base cells or a smaller ratio")
     if mode not in MODES:
         raise GridError(f"unknown refinement mode {mode!r}; use one of {', '.join(MODES)}")
     if not problem.transient:
@@ -204,15 +223,23 @@ def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combi
             raise GridError(f"{problem.name} is steady; only spatial refinement applies (mode 'space')")
         return refinement(problem.lower, problem.upper, base_cells, levels, ratio)
     t0, t1 = problem.t_range
-    base_steps = int(base_steps or s.get("base_steps", 8))
+    base_steps = s.get("base_steps", 8) if base_steps is None else base_steps
+    if isinstance(base_steps, bool) or int(base_steps) != base_steps or base_steps < 1:
+        raise GridError(f"base steps must be a positive whole number, got {base_steps!r}")
+    base_steps = int(base_steps)
     if mode == "combined":
         time_ratio = ratio ** (p_space / p_time)
         return refinement(problem.lower, problem.upper, base_cells, levels, ratio, t_start=t0, t_end=t1,
                           base_steps=base_steps, time_ratio=time_ratio)
+    # The frozen resolution of a one-sided study defaults to two refinements beyond the finest level
+    # of the combined plan, so the frozen error stays below the one being measured.
     if mode == "space":
+        steps = base_steps * ratio ** ((levels + 1) * p_space / p_time) if frozen_default else base_steps
         return refinement(problem.lower, problem.upper, base_cells, levels, ratio, t_start=t0, t_end=t1,
-                          base_steps=base_steps, time_ratio=1.0)
-    cells = (int(base_cells),) * problem.dim if np.ndim(base_cells) == 0 else tuple(base_cells)
+                          base_steps=int(round(steps)), time_ratio=1.0)
+    if frozen_default:
+        base_cells = np.round(np.asarray(base_cells) * ratio ** (levels + 1)).astype(int)
+    cells = (int(base_cells),) * problem.dim if np.ndim(base_cells) == 0 else tuple(int(n) for n in base_cells)
     grids = [Grid(k, problem.lower, problem.upper, cells, t_start=t0, t_end=t1,
                   steps=int(round(base_steps * ratio ** k))) for k in range(levels)]
     check_refinement(grids)
@@ -311,6 +338,13 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
         for g in grids:
             if g.dim != problem.dim:
                 raise GridError(f"level {g.level} is {g.dim}-D but problem {problem.name} is {problem.dim}-D")
+    formal = p_time if mode == "time" else p_space
+    if formal_order is not None:
+        formal, order_source = formal_order, "caller"
+    formal = float(formal)
+    tol = float(tolerance if tolerance is not None else problem.tolerance)
+    if not formal > 0 or not tol > 0:
+        raise AnalysisError(f"the formal order and the tolerance must be positive, got {formal:g} and {tol:g}")
     opts = dict(options or {}, mode=mode)
     cases = [Case(g, mms, opts) for g in grids]
     name = solver_name(solver)
@@ -318,11 +352,6 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     from .runner import run_levels
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)
-    formal = p_time if mode == "time" else p_space
-    if formal_order is not None:
-        formal, order_source = formal_order, "caller"
-    formal = float(formal)
-    tol = float(tolerance if tolerance is not None else problem.tolerance)
     verdicts = _verdicts(problem, results, formal, tol)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
                        problem.content_hash(), problem.source, order_source)

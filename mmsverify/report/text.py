@@ -27,14 +27,16 @@ def format_study(result):
         getattr(result, "order_source", "problem"), "")
     lines.append(f"  formal order {result.formal_order:g} ({result.mode} refinement{stated}), "
                  f"tolerance {result.tolerance:g}")
+    size = "dt" if result.mode == "time" else "h"
     for v in result.verdicts:
         mark = "ok " if v.ok else "!! "
-        lines.append(f"  {mark}{v.field:<6}{v.norm:<5} {v.status:<12} {v.reason}")
+        label = f"{v.field} {v.norm}"
+        lines.append(f"  {mark}{label:<12} {v.status:<12} {v.reason}")
     lines.append("")
     for f in result.fields:
         head = f"  field {f}"
         lines.append(head)
-        lines.append("  level  grid                    h          " + "".join(f"{n + ' error':<13}{'order':<8}" for n in NORMS))
+        lines.append(f"  level  grid                    {size:<10} " + "".join(f"{n + ' error':<13}{'order':<8}" for n in NORMS))
         ok = [lv for lv in result.levels if lv.ok and f in lv.errors]
         orders = {n: result.orders(f, n) for n in NORMS}
         for lv in result.levels:
@@ -50,7 +52,7 @@ def format_study(result):
         lines.append("")
     for q in result.quantities:
         lines.append(f"  quantity {q}")
-        lines.append("  level  grid                    h          value           exact           error        order")
+        lines.append(f"  level  grid                    {size:<10} value           exact           error        order")
         ok = [lv for lv in result.levels if lv.ok and q in lv.quantities]
         orders = result.quantity_orders(q)
         for i, lv in enumerate(ok):
