@@ -360,10 +360,12 @@ def asymptotic_check(h, e_or_phi, formal_order=None, *, kind="error", scale=None
                 good_order = float(np.max(q[:j0][np.isfinite(q[:j0])])) if formal_order is None else formal_order
                 expected = float(proxy[j0] * (h[lvl[-1]] / h[lvl[j0]]) ** good_order)
                 hint = expected / 10.0
-                msgs.append(f"{what} stop falling at about {floor_value:.3g}, far above round-off: most likely "
-                            f"the iterative (solver) tolerance. Tighten it below about {hint:.1g} (a tenth of the "
-                            f"{'error' if kind == 'error' else 'change'} expected on the finest level), or drop the "
-                            f"levels with h = {hs}.")
+                msgs.append(f"{what} stop falling at about {floor_value:.3g}, far above round-off: an error that "
+                            f"does not shrink with h is left, such as iteration error (tighten the solver tolerance "
+                            f"below about {hint:.1g}, a tenth of the {'error' if kind == 'error' else 'change'} "
+                            f"expected on the finest level), a frozen error of another kind (a fixed time step or "
+                            f"grid) or an inconsistent term of the scheme. Find which before dropping the levels "
+                            f"with h = {hs}.")
     if floor is None and proxy[-1] <= roundoff:
         msgs.append(f"the finest {'error' if kind == 'error' else 'change'} ({proxy[-1]:.3g}) is at round-off "
                     f"relative to {S:.3g}; its order is noise: drop the level with h = {h[-1]:g}.")

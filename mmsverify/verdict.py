@@ -99,7 +99,7 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None):
         # the errors stopped falling: say so rather than blame the scheme
         if check.floor == "round-off":
             status = "inconclusive"
-        reason += f". {check.message}"
+        reason += ". " + check.message[:1].upper() + check.message[1:]
     elif len(p) >= 2 and np.isfinite(p[-2]) and abs(p[-1] - p[-2]) > tolerance:
         reason += f" (orders still moving: {', '.join(_fmt(q) for q in p)}; add a finer level)"
     return Verdict(field, norm, formal, last, tolerance, status, reason)

@@ -287,7 +287,7 @@ def test_plan_says_when_data_are_too_weak():
     _no_nan(osc)
     h5 = np.array([0.1, 0.05, 0.025, 0.0125, 0.00625])
     floor = plan(h5, [4e-3, 1e-3, 2.6e-4, 2.5e-4, 2.5e-4], 4 ** np.arange(5), 1e-5)
-    assert not floor.reliable and any("Tighten" in r for r in floor.reasons)
+    assert not floor.reliable and any("tighten the solver tolerance" in r for r in floor.reasons)
     noisy_time = plan([0.1, 0.05, 0.025], [4e-3, 1e-3, 2.5e-4], [5.0, 1.0, 30.0], 1e-4)
     assert not noisy_time.reliable and any("run times" in r for r in noisy_time.reasons)
     far = plan([0.1, 0.05, 0.025], [4e-3, 1e-3, 2.5e-4], [1, 4, 16], 1e-9)

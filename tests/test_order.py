@@ -170,7 +170,7 @@ def test_iteration_floor_names_levels_and_tolerance():
     # expected finest error from the last falling stage: 2.6e-4 * (0.00625/0.025)^2
     assert chk.tolerance_hint == pytest.approx(2.6e-4 / 16 / 10)
     assert "0.0125" in chk.message and "0.00625" in chk.message
-    assert "Tighten" in chk.message
+    assert "tighten the solver tolerance" in chk.message
     _no_nan(chk)
 
 

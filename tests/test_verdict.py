@@ -21,7 +21,7 @@ def test_iteration_floor_is_named_with_the_tolerance_to_tighten():
     # common practice: an error that stops falling well above round-off is iteration error
     v = judge("u", "L2", H, [4e-3, 1e-3, 2.6e-4, 2.5e-4, 2.5e-4], 2, 0.1, scale=1.0)
     assert v.status == "below"
-    assert "far above round-off" in v.reason and "Tighten" in v.reason
+    assert "far above round-off" in v.reason and "tighten the solver tolerance" in v.reason and "frozen error" in v.reason
 
 
 def test_round_off_floor_is_inconclusive_not_a_failure():
