@@ -144,12 +144,12 @@ class StudyResult:
         return format_study(self)
 
 
-def _verdicts(problem, results, formal, tol):
-    """One verdict per field and norm, then one per reported quantity."""
+def _verdicts(problem, results, formal, tol, norms=NORMS):
+    """One verdict per field and judged norm, then one per reported quantity."""
     verdicts = []
     for f in problem.fields:
         ok = [r for r in results if r.ok and f in r.errors]
-        for n in NORMS if ok else ():
+        for n in norms if ok else ():
             verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], formal, tol,
                                   scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
     for q in problem.quantities:
@@ -282,7 +282,7 @@ def run_level(solver, case, where):
 
 def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode="combined", base_steps=None,
               grids=None, tolerance=None, formal_order=None, executor=None, options=None,
-              progress=None, workers=None, timeout=None, cache_dir=None, resume=True):
+              progress=None, workers=None, timeout=None, cache_dir=None, resume=True, norms=NORMS):
     """Run a manufactured-solution study and judge the observed orders.
 
     Parameters
@@ -320,6 +320,9 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     resume : bool
         With ``cache_dir``: reuse stored levels (default); False recomputes
         and overwrites them.
+    norms : sequence of str
+        Norms that get a verdict (default all of L1, L2, Linf; every norm is
+        still measured and reported).
 
     Returns
     -------
@@ -345,6 +348,9 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     tol = float(tolerance if tolerance is not None else problem.tolerance)
     if not formal > 0 or not tol > 0:
         raise AnalysisError(f"the formal order and the tolerance must be positive, got {formal:g} and {tol:g}")
+    norms = tuple(norms)
+    if not norms or set(norms) - set(NORMS):
+        raise AnalysisError(f"norms to judge must be among {', '.join(NORMS)}, got {', '.join(norms) or 'none'}")
     opts = dict(options or {}, mode=mode)
     cases = [Case(g, mms, opts) for g in grids]
     name = solver_name(solver)
@@ -352,6 +358,6 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     from .runner import run_levels
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)
-    verdicts = _verdicts(problem, results, formal, tol)
+    verdicts = _verdicts(problem, results, formal, tol, norms)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
                        problem.content_hash(), problem.source, order_source)

@@ -141,3 +141,11 @@ def test_solver_options_and_info_reach_the_level_results():
         return Solution(sol.values, sol.points, sol.weights, info={"grid": case.options.get("grid"), "sweeps": 3})
     r = run_study("plate-poisson", solver, levels=2, options={"grid": "stretched"})
     assert r.levels[0].info == {"grid": "stretched", "sweeps": 3}
+
+
+def test_only_the_chosen_norms_are_judged():
+    from mmsverify import AnalysisError
+    r = run_study("plate-poisson", "poisson2d-neumann1", levels=3, norms=("L2",))
+    assert [v.norm for v in r.verdicts] == ["L2"] and "Linf" in r.levels[0].errors["u"]
+    with pytest.raises(AnalysisError, match="among L1, L2, Linf"):
+        run_study("plate-poisson", "poisson2d", levels=2, norms=("H1",))

@@ -20,6 +20,8 @@ def add_study_options(p):
     p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order (default: problem's)")
     p.add_argument("--formal-order", type=float, help="override the formal order (default: the solver's stated "
                                                       "order, else the problem's)")
+    p.add_argument("--norms", default="L1,L2,Linf", metavar="LIST",
+                   help="norms that get a verdict, comma-separated (default L1,L2,Linf; all are reported)")
     p.add_argument("--option", action="append", default=[], metavar="NAME=VALUE",
                    help="solver option passed in case.options, e.g. --option grid=perturbed (repeatable)")
     add_execution_options(p)
@@ -69,6 +71,18 @@ def _param(text):
     return name.strip(), {"true": True, "false": False}.get(value.lower(), value)
 
 
+def _norm_list(text):
+    from ..errors import AnalysisError
+    from ..norms import NORMS
+    from . import comma_choices
+    if not text:
+        return NORMS
+    try:
+        return comma_choices(text, NORMS, "norm")
+    except ValueError as exc:
+        raise AnalysisError(f"--norms: {exc}") from None
+
+
 def external_from_args(args):
     """The ExternalSolver that ``--external`` describes, or None."""
     command = getattr(args, "external", None)
@@ -97,7 +111,8 @@ def study_from_args(args, problem, solver, progress=None):
                   base_steps=args.base_steps, tolerance=args.tolerance, formal_order=args.formal_order,
                   progress=progress, timeout=getattr(args, "timeout", None),
                   cache_dir=getattr(args, "cache", None), resume=not getattr(args, "fresh", False),
-                  options=dict(_param(o) for o in getattr(args, "option", [])) or None)
+                  options=dict(_param(o) for o in getattr(args, "option", [])) or None,
+                  norms=_norm_list(getattr(args, "norms", None)))
     if getattr(args, "dask", None):
         client = _dask_client(args.dask, args.workers)
         try:
