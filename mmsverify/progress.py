@@ -63,7 +63,7 @@ class LevelProgress:
     >>> from mmsverify.study import LevelResult
     >>> p(LevelResult(0, Grid(0, (0.0,), (1.0,), (8,)), 0.125, "ok", seconds=1.2))
     >>> print(out.getvalue().strip())
-    demo: level 1/2 done (8 cells, solver 1.2 s; 1.5 s elapsed)
+    demo: 1/2 levels run; level 0 done (8 cells, solver 1.2 s; 1.5 s elapsed)
     """
 
     def __init__(self, total=None, label="study", verbosity=NORMAL, stream=None, clock=time.monotonic):
@@ -80,8 +80,9 @@ class LevelProgress:
     def _line(self, lv):
         count = f"{self._done}/{self.total}" if self.total else f"{self._done}"
         what = "done" if lv.ok else "FAILED"
-        return (f"{self.label}: level {count} {what} ({lv.grid.describe()}, solver {lv.seconds:.2g} s; "
-                f"{self._clock() - self._start:.1f} s elapsed)")
+        cached = ", from the cache" if lv.message.startswith("reused from the level cache") else ""
+        return (f"{self.label}: {count} levels run; level {lv.level} {what} ({lv.grid.describe()}, solver "
+                f"{lv.seconds:.2g} s{cached}; {self._clock() - self._start:.1f} s elapsed)")
 
     def __call__(self, level_result):
         self._done += 1

@@ -92,6 +92,6 @@ def test_verbose_logs_to_the_current_stderr(capsys, tmp_path):
     assert main(["--verbose", "baseline", "check", str(tmp_path / "b.json")]) == 0
     err = capsys.readouterr().err
     assert "mmsverify: INFO: rerunning the 2 levels of baseline plate-poisson" in err
-    assert "level 2/2 done" in err
+    assert "2/2 levels run; level 1 done" in err
     assert main(["--quiet", "baseline", "check", str(tmp_path / "b.json")]) == 0
     assert capsys.readouterr().err == ""

@@ -138,7 +138,9 @@ def _run(args):
     if not quiet:
         print_design_warnings(args)
     label = args.solver or args.external
-    result = study_from_args(args, args.problem, args.solver, progress_for(args, label=f"{args.problem} / {label}"))
+    progress = progress_for(args, label=f"{args.problem} / {label}")
+    result = study_from_args(args, args.problem, args.solver, progress)
+    getattr(progress, "close", lambda: None)()  # end a live progress line before the table
     print(str(result).splitlines()[0] if quiet else result)
     if args.target_error is not None and not quiet:
         print_plans(result, args.target_error)
