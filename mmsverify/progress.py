@@ -81,7 +81,8 @@ class LevelProgress:
         count = f"{self._done}/{self.total}" if self.total else f"{self._done}"
         what = "done" if lv.ok else "FAILED"
         cached = ", from the cache" if lv.message.startswith("reused from the level cache") else ""
-        return (f"{self.label}: {count} levels run; level {lv.level} {what} ({lv.grid.describe()}, solver "
+        plural = "" if self._done == 1 and not self.total else "s"
+        return (f"{self.label}: {count} level{plural} run; level {lv.level} {what} ({lv.grid.describe()}, solver "
                 f"{lv.seconds:.2g} s{cached}; {self._clock() - self._start:.1f} s elapsed)")
 
     def __call__(self, level_result):

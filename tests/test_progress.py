@@ -44,7 +44,7 @@ def test_live_line_only_after_delay_and_cleared(monkeypatch):
     assert out.getvalue() == ""
     p(_level(1, ok=False))
     text = out.getvalue()
-    assert "demo: level 2/2 FAILED (16 cells" in text and "3.0 s elapsed" in text
+    assert "demo: 2/2 levels run; level 1 FAILED (16 cells" in text and "3.0 s elapsed" in text
     assert text.startswith("\r") and text.endswith("\r\x1b[2K")  # line cleared after the last level
 
 
@@ -68,7 +68,8 @@ def test_verbose_prints_every_level_anywhere(monkeypatch):
     run_study("plate-poisson", "poisson2d", levels=3, progress=hook)
     assert seen == [0, 1, 2]
     lines = out.getvalue().splitlines()
-    assert [ln.split(" done")[0] for ln in lines] == ["plate: level 1", "plate: level 2", "plate: level 3"]
+    assert [ln.split(" done")[0] for ln in lines] == ["plate: 1 level run; level 0", "plate: 2 levels run; level 1",
+                                                       "plate: 3 levels run; level 2"]
 
 
 @pytest.mark.parametrize("argv, expected", [
