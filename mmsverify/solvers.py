@@ -154,6 +154,23 @@ def _all_finite(a):
     return bool(np.isfinite(total)) or bool(np.isfinite(a).all())  # an overflowing sum is checked entry by entry
 
 
+_KINDS = {"c": "complex", "b": "boolean", "U": "text", "S": "text", "O": "Python object", "M": "date",
+          "m": "time interval", "V": "structured"}
+
+
+def _real_array(v, where, what):
+    """``v`` as a float array; refuses what ``float`` would coerce silently (complex, text, bool, objects)."""
+    try:
+        a = np.asarray(v)
+    except (TypeError, ValueError) as exc:  # ragged nested lists
+        raise SolverError(f"{where}: {what} ({exc})") from None
+    if a.dtype.kind not in "iuf":
+        hint = "; return .real if the imaginary part is zero by design" if a.dtype.kind == "c" else ""
+        raise SolverError(f"{where}: {what}: dtype {a.dtype} holds {_KINDS.get(a.dtype.kind, 'non-numeric')} "
+                          f"values, not real numbers{hint}")
+    return a.astype(float, copy=False)
+
+
 def check_solution(sol, problem, where):
     """Validate a solver's return value; raise :class:`SolverError` saying what is wrong.
 
@@ -175,16 +192,10 @@ def check_solution(sol, problem, where):
                           f"{len(sol.points) if hasattr(sol.points, '__len__') else '?'}")
     values, points = {}, None
     raw_points = []
-    for p in sol.points:
-        try:
-            raw_points.append(np.asarray(p, dtype=float))
-        except (TypeError, ValueError):
-            raise SolverError(f"{where}: the points are not numeric arrays") from None
+    for axis, p in zip("xyz", sol.points):
+        raw_points.append(_real_array(p, where, f"the points are not numeric arrays (coordinate {axis})"))
     for name, v in sol.values.items():
-        try:
-            arr = np.asarray(v, dtype=float)
-        except (TypeError, ValueError):
-            raise SolverError(f"{where}: field {name!r} is not numeric (dtype {np.asarray(v).dtype})") from None
+        arr = _real_array(v, where, f"field {name!r} is not numeric")
         try:
             pts = np.broadcast_arrays(*raw_points, arr)
         except ValueError:
@@ -211,8 +222,8 @@ def check_solution(sol, problem, where):
     if sol.weights is None:
         weights = np.broadcast_to(1.0, shape)
     else:
+        raw = _real_array(sol.weights, where, "the weights (cell volumes) are not numeric")
         try:
-            raw = np.asarray(sol.weights, dtype=float)
             weights = np.broadcast_to(raw, shape)
         except (ValueError, TypeError):
             raise SolverError(f"{where}: weights of shape {np.shape(sol.weights)} do not match the values' "
