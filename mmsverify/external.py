@@ -34,6 +34,7 @@ from pathlib import Path
 import re
 import shutil
 import signal
+import stat
 import string
 import subprocess
 import tempfile
@@ -156,6 +157,7 @@ def write_case(case, directory, output, *, fmt="toml", params=None):
     else:
         raise SolverError(f"unknown case-file format {fmt!r}; use 'toml' or 'json'")
     tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    tmp.unlink(missing_ok=True)  # a link planted under this name is removed, not followed
     tmp.write_text(text, encoding="utf-8")
     os.replace(tmp, path)
     return path
@@ -238,6 +240,7 @@ def _tail(path, chars):
 
 def _run_program(args, cwd, timeout, env, log_path, tail_chars):
     start = time.perf_counter()
+    Path(log_path).unlink(missing_ok=True)  # a link planted under this name is removed, not followed
     with open(log_path, "wb") as log:
         proc = subprocess.Popen(args, cwd=cwd, env=env, stdin=subprocess.DEVNULL, stdout=log,
                                 stderr=subprocess.STDOUT, start_new_session=True)
@@ -284,6 +287,9 @@ def _read_csv(path):
                                           "needs one number per column") from None
     if data.size == 0:
         raise ProgramFailed("bad output", f"{path} has a header but no rows")
+    if not text.endswith(("\n", "\r")):  # a number cut short still parses: 0.84147 of 0.8414709848
+        raise ProgramFailed("bad output", f"{path} does not end with a line break, so its last row may be "
+                                          "truncated (a write cut short); end every row with a newline")
     if data.shape[1] != len(names):
         raise ProgramFailed("bad output", f"{path}: rows have {data.shape[1]} columns but the header names "
                                           f"{len(names)}")
@@ -340,6 +346,8 @@ def read_solution(path, problem, fmt=None, *, max_bytes=1 << 30):
     coords = [str(c) for c in problem.coords]
     time_value = cols.pop("time", None)
     if "points" in cols:
+        if np.asarray(cols["points"]).dtype.kind not in "iuf":
+            raise ProgramFailed("bad output", f"{path}: 'points' is not numeric; write real floating-point numbers")
         pts = np.asarray(cols.pop("points"), dtype=float)
         if pts.ndim != 2 or pts.shape[1] != len(coords):
             raise ProgramFailed("bad output", f"{path}: 'points' must have shape (N, {len(coords)}), "
@@ -354,10 +362,12 @@ def read_solution(path, problem, fmt=None, *, max_bytes=1 << 30):
                                           f"({', '.join(problem.fields)}); found {sorted(cols)}")
     arrays = {}
     for name in coords + fields + (["volume"] if "volume" in cols else []):
-        try:
-            arrays[name] = np.asarray(cols[name], dtype=float).ravel()
-        except (TypeError, ValueError):
-            raise ProgramFailed("bad output", f"{path}: column {name!r} is not numeric") from None
+        kind = np.asarray(cols[name]).dtype.kind
+        if kind not in "iuf":  # float() would drop imaginary parts and parse text silently
+            what = {"c": "complex", "b": "boolean", "U": "text", "S": "text"}.get(kind, "non-numeric")
+            raise ProgramFailed("bad output", f"{path}: column {name!r} is not numeric ({what} values); write "
+                                              "real floating-point numbers")
+        arrays[name] = np.asarray(cols[name], dtype=float).ravel()
     sizes = {n: a.size for n, a in arrays.items()}
     if len(set(sizes.values())) != 1:
         raise ProgramFailed("bad output", f"{path}: columns have different lengths {sizes}; write one value "
@@ -518,6 +528,10 @@ class ExternalSolver:
             level_dir = folder / f"level-{grid.level}-{'x'.join(map(str, grid.cells))}"
             level_dir.mkdir(parents=True, exist_ok=True)
             level_dir = level_dir.resolve()
+            root = Path(self.workdir).resolve()
+            if not level_dir.is_relative_to(root) or not level_dir.is_dir():
+                raise SolverError(f"{where}: the level's folder leads to {level_dir}, outside the study folder "
+                                  f"{root} (a link stands in its place); remove it and run again")
         else:
             level_dir = Path(tempfile.mkdtemp(prefix=f"mmsverify-level{grid.level}-")).resolve()
         try:
@@ -555,9 +569,17 @@ class ExternalSolver:
             how = (f"was killed by signal {signal.Signals(-run.returncode).name}" if run.returncode < 0
                    else f"exited with code {run.returncode}")
             raise ProgramFailed("crash", f"{where}: the program {how}", run.tail)
-        if not out.exists():
+        try:
+            mode = os.lstat(out).st_mode
+        except FileNotFoundError:
             raise ProgramFailed("no output", f"{where}: the program finished but wrote no {out.name} "
-                                             f"(expected at {out}, passed as {{out}} and in the case file)", run.tail)
+                                             f"(expected at {out}, passed as {{out}} and in the case file)",
+                                run.tail) from None
+        if not stat.S_ISREG(mode):  # a link may lead out of the study folder; a pipe would block the read
+            what = ("symbolic link" if stat.S_ISLNK(mode) else "directory" if stat.S_ISDIR(mode) else
+                    "named pipe" if stat.S_ISFIFO(mode) else "device or socket")
+            raise ProgramFailed("bad output", f"{where}: {out} is a {what}, not a regular file; write the "
+                                              "solution itself at {out}", run.tail)
         try:
             sol = read_solution(out, problem, self.fmt, max_bytes=self.max_bytes)
         except ProgramFailed as exc:
