@@ -302,14 +302,14 @@ def _read_npz(path, limit):
             _too_big(sum(i.file_size for i in z.infolist()), limit, path)
         with np.load(path, allow_pickle=False) as data:
             return {k: np.asarray(data[k]) for k in data.files}
-    except (zipfile.BadZipFile, ValueError, OSError) as exc:
+    except (zipfile.BadZipFile, ValueError, OSError, MemoryError) as exc:  # MemoryError: a header lying about size
         raise ProgramFailed("bad output", f"{path} is not a readable .npz of numeric arrays ({exc})") from None
 
 
 def _read_npy(path):
     try:
         arr = np.load(path, allow_pickle=False)
-    except (ValueError, OSError) as exc:
+    except (ValueError, OSError, MemoryError) as exc:
         raise ProgramFailed("bad output", f"{path} is not a readable .npy array ({exc})") from None
     if arr.dtype.names is None:
         raise ProgramFailed("bad output", f"{path}: a .npy solution must be a structured array with named "
