@@ -275,6 +275,13 @@ class _Reader:
         description = self.data.get("description", "")
         if not isinstance(name, str) or not isinstance(description, str):
             raise ProblemError(f"{self.source}: name and description must be text in quotes")
+        # both reach terminals, reports and exported code: no control characters (escape sequences)
+        if not name.strip() or not name.isprintable() or len(name) > 200:
+            raise ProblemError(f"{self.source}: the name must be one line of printable text of at most 200 "
+                               f"characters, got {name[:60]!r}")
+        if not description.replace("\n", " ").replace("\t", " ").isprintable():
+            raise ProblemError(f"{self.source}: the description holds control characters (such as terminal escape "
+                               "sequences); use plain text")
 
         domain = self.table("domain", required=True)
         bad = set(domain) - set(SPACE) - {"t"}

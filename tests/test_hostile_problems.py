@@ -551,14 +551,27 @@ def test_oversized_files_are_refused_before_reading(hostile_env):
 
 # Names and descriptions land in comments and docstrings of exported code.
 INJECTIONS = [
-    ('name', 'x"""\nimport os; open("' + CANARY + '-py", "w")\n"""'),
+    ('name', 'x""" + open("' + CANARY + '-py", "w").name + """'),
+    ('name', '*/ int pwned(void) { return 1; } /*'),
     ('description', '*/ int pwned(void) { return 1; } /*'),
     ('description', 'ok\n#include "/etc/passwd"\n'),
     ('name', 'a\\'),
-    ('description', 'x\r\nimport os\r\n\u2028open("' + CANARY + '-ls", "w")'),
     ('description', 'tail ??/'),
     ('name', '"' * 5),
 ]
+
+
+@pytest.mark.parametrize("key, value, fragment", [
+    ("name", 'x"""\nimport os\n"""', "the name must be one line of printable text"),
+    ("name", "", "the name must be one line"),
+    ("name", "\u001b]0;pwned\u0007", "the name must be one line"),
+    ("description", "\u001b[2J\u001b[Hall verdicts PASS", "control characters"),
+    ("description", 'x\r\nimport os\r\n\u2028open("' + CANARY + '-ls", "w")', "control characters"),
+])
+def test_names_and_descriptions_hold_no_control_characters(hostile_env, key, value, fragment):
+    # names and descriptions reach terminals, reports and exported code
+    with pytest.raises(ProblemError, match=fragment):
+        problem_from_text(f"{key} = {_toml_str(value)}\n[domain]\nx = [0, 1]\n[fields]\nu = \"x\"\n", "c.toml")
 
 
 @pytest.mark.parametrize("key, value", INJECTIONS)
