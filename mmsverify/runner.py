@@ -47,6 +47,7 @@ __all__ = ["run_levels", "run_studies", "LevelTimeout", "remaining_time", "as_ex
 _DEADLINE = contextvars.ContextVar("mmsverify_level_deadline", default=None)
 _ALARM_GRACE = 1.0  # seconds; lets an external program's own time-out (and kill) report first
 _WAIT_SLACK = 60.0   # seconds added to the overall wait when limits cannot be enforced in workers
+_MAX_MESSAGE = 10_000  # characters of a failed level's message that are kept (start and end)
 
 
 class LevelTimeout(SolverError):
@@ -84,22 +85,61 @@ def _failed(case, where, message):
     return LevelResult(case.grid.level, case.grid, case.grid.h, "failed", message=f"{where}: {message}")
 
 
+def _shorten(text, limit=_MAX_MESSAGE):
+    """A message of at most about ``limit`` characters: its start and its end, the middle left out."""
+    if len(text) <= limit:
+        return text
+    head, tail = limit * 2 // 3, limit // 3
+    return f"{text[:head]}\n[... {len(text) - head - tail} characters left out ...]\n{text[-tail:]}"
+
+
+def _escaped(exc):
+    """What a solver did when something other than an Exception left it, or an error could not be printed."""
+    if isinstance(exc, SystemExit):
+        return f"the solver called sys.exit({exc.code!r}); a solver returns a Solution or raises an exception"
+    first = exc
+    while first.__context__ is not None and first.__context__ is not first:
+        first = first.__context__  # the solver's own error, if recording it failed
+    try:
+        text = str(first)
+    except Exception:  # its __str__ fails too
+        text = "(its message cannot be printed)"
+    return f"the solver raised {type(first).__name__}: {text}"
+
+
 def _execute(solve, case, where, timeout):
     """Run one level where it is sent (this process or a worker); never raises for solver faults.
 
     A solver that measures its own grid size (``Solution.info["h"]``, as
     :class:`~mmsverify.external.ExternalSolver` does from cell volumes) sets
-    the level's h, except in a time-refinement study.
+    the level's h, except in a time-refinement study. Only ``KeyboardInterrupt``
+    (the user's) passes through; ``sys.exit`` in a solver fails its level.
+    Messages are kept to about ``_MAX_MESSAGE`` characters.
     """
     try:
         with _time_limit(timeout, where):
             result = run_level(solve, case, where)
     except LevelTimeout as exc:  # the limit struck outside the solver call (while measuring errors)
-        return LevelResult(case.grid.level, case.grid, case.grid.h, "failed", message=str(exc))
+        return LevelResult(case.grid.level, case.grid, case.grid.h, "failed", message=_shorten(str(exc)))
+    except KeyboardInterrupt:
+        raise
+    except BaseException as exc:  # SystemExit, or an error whose message fails while it is recorded
+        return _failed(case, where, _shorten(_escaped(exc)))
     h = result.info.get("h")
     time_mode = case.problem.transient and case.options.get("mode") == "time"
     if result.ok and h is not None and not time_mode:
-        result = replace(result, h=float(h))
+        value = None
+        if not isinstance(h, bool):
+            try:
+                value = float(h)
+            except (TypeError, ValueError, OverflowError):
+                pass
+        if value is None or not 0 < value < float("inf"):
+            return _failed(case, where, f"the solver reported info['h'] = {_shorten(repr(h), 80)}; the grid "
+                                        "size must be a positive finite number")
+        result = replace(result, h=value)
+    if len(result.message) > _MAX_MESSAGE:
+        result = replace(result, message=_shorten(result.message))
     return result
 
 
