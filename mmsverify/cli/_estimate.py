@@ -2,7 +2,7 @@
 
 Three forms:
 
-* ``mmsverify estimate levels.csv`` - a level table (see :mod:`mmsverify.estimate`);
+* ``mmsverify estimate levels.csv`` - a level table (see :mod:`mmsverify.levels`);
 * ``mmsverify estimate --values 6.063,5.972,5.863 --cells 18000,8000,4500 --dim 2``;
 * ``mmsverify estimate --profile coarse.csv medium.csv fine.csv --cells ... --dim 2``
   for a line or field sampled on three grids (interpolated to the fine points).
