@@ -32,6 +32,7 @@ from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, Executor, Proces
 from contextlib import contextmanager
 import contextvars
 from dataclasses import replace
+import os
 import pickle
 import signal
 import threading
@@ -42,7 +43,7 @@ from .cache import LevelCache, solver_identity
 from .errors import MMSError, SolverError
 from .study import LevelResult, run_level
 
-__all__ = ["run_levels", "run_studies", "LevelTimeout", "remaining_time", "as_executor"]
+__all__ = ["run_levels", "run_studies", "LevelTimeout", "remaining_time", "as_executor", "process_pool"]
 
 _DEADLINE = contextvars.ContextVar("mmsverify_level_deadline", default=None)
 _ALARM_GRACE = 1.0  # seconds; lets an external program's own time-out (and kill) report first
@@ -79,6 +80,49 @@ def _time_limit(seconds, where):
             signal.setitimer(signal.ITIMER_REAL, 0)
             signal.signal(signal.SIGALRM, previous)
         _DEADLINE.reset(token)
+
+
+def _cores():
+    try:
+        return len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        return os.cpu_count() or 1
+
+
+_THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+def _share_cores(workers):
+    """Worker initializer: BLAS and OpenMP thread pools get this worker's share of the cores.
+
+    Thread counts the user set in the environment are left as they are.
+    Libraries loaded later (and programs the worker starts) see the
+    environment variables; those already loaded are limited through
+    threadpoolctl.
+    """
+    if any(os.environ.get(v) for v in _THREAD_VARIABLES):
+        return
+    share = max(1, _cores() // workers)
+    for v in _THREAD_VARIABLES:
+        os.environ[v] = str(share)
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # without it the libraries already loaded keep their default
+        return
+    threadpool_limits(share)
+
+
+def process_pool(workers):
+    """A local pool of ``workers`` processes that share the cores instead of competing for them.
+
+    Each worker limits its BLAS and OpenMP thread pools (NumPy's, SciPy's,
+    and those of programs it starts) to ``cores // workers`` threads,
+    unless the environment already sets ``OMP_NUM_THREADS``,
+    ``OPENBLAS_NUM_THREADS`` or ``MKL_NUM_THREADS``: two workers on two
+    cores that each start two BLAS threads spend time waiting on each other
+    (measured in ``bench/parallel_batch.py``).
+    """
+    return ProcessPoolExecutor(max_workers=workers, initializer=_share_cores, initargs=(workers,))
 
 
 def _failed(case, where, message):
@@ -221,7 +265,7 @@ def run_levels(solve, cases, wheres, *, executor=None, workers=None, timeout=Non
     owned = pool is None and workers is not None
     if owned:
         _check_picklable(solve)
-        pool = ProcessPoolExecutor(max_workers=min(int(workers), len(pending)))
+        pool = process_pool(min(int(workers), len(pending)))
     try:
         if pool is None:
             for i in pending:
@@ -292,7 +336,7 @@ def run_studies(jobs, *, executor=None, workers=None):
     pool = as_executor(executor)
     owned = pool is None and workers is not None
     if owned:
-        pool = ProcessPoolExecutor(max_workers=min(int(workers), max(len(jobs), 1)))
+        pool = process_pool(min(int(workers), max(len(jobs), 1)))
     try:
         if pool is None:
             outcomes = []

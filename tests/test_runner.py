@@ -123,3 +123,23 @@ def test_command_line_workers_timeout_and_dask(capsys):
     assert "PASS" in capsys.readouterr().out
     pytest.importorskip("distributed", reason="Dask is optional: pip install 'mmsverify[dask]'")
     assert main(["run", PROBLEM, "poisson2d", "--levels", "3", "--dask", "local", "--workers", "1"]) == 0
+
+
+def _thread_counts(_):
+    from threadpoolctl import threadpool_info
+    return os.environ.get("OPENBLAS_NUM_THREADS"), tuple(sorted({i["num_threads"] for i in threadpool_info()
+                                                                 if i["user_api"] == "blas"}))
+
+
+def test_process_pool_workers_share_the_cores(monkeypatch):
+    # common practice: N processes on C cores run at most C // N BLAS threads each, or they oversubscribe
+    pytest.importorskip("threadpoolctl")
+    from mmsverify.runner import _cores, process_pool
+    for v in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        monkeypatch.delenv(v, raising=False)
+    share = max(1, _cores() // 2)
+    with process_pool(2) as pool:
+        assert set(pool.map(_thread_counts, range(4))) == {(str(share), (share,))}
+    monkeypatch.setenv("OPENBLAS_NUM_THREADS", "7")  # a count the user chose is kept
+    with process_pool(2) as pool:
+        assert {env for env, _ in pool.map(_thread_counts, range(2))} == {"7"}
