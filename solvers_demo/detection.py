@@ -15,11 +15,12 @@ Examples
 (True, True)
 """
 
-from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 import time
 
 import numpy as np
+
+from mmsverify.runner import process_pool
 
 from .catalogue import entries
 from .studies import verify
@@ -191,7 +192,7 @@ def run_catalogue(keys=None, kind=None, workers=1, progress=None):
     start = time.perf_counter()
     outcomes = []
     if workers and workers > 1:
-        with ProcessPoolExecutor(max_workers=workers) as pool:
+        with process_pool(workers) as pool:
             for outcome in pool.map(run_entry, chosen):
                 outcomes.append(outcome)
                 if progress:
