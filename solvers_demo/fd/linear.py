@@ -53,17 +53,6 @@ def _amg(A, b):
     return ml.solve(b, tol=_RTOL * 0.1, accel="cg", maxiter=300)
 
 
-def _columns(rows, keep):
-    """``rows[:, keep]`` for a CSR matrix and a boolean mask, by renumbering (no column gather)."""
-    rows = rows.tocsr()
-    mask = keep[rows.indices]
-    kind = rows.indices.dtype  # keep scipy's index type (pyamg converts other types on every call)
-    start = np.concatenate(([0], np.cumsum(mask, dtype=kind)))
-    number = (np.cumsum(keep, dtype=kind) - 1).astype(kind)
-    return sps.csr_matrix((rows.data[mask], number[rows.indices[mask]], start[rows.indptr]),
-                          shape=(rows.shape[0], int(np.count_nonzero(keep))))
-
-
 def solve_nodes(system, method="auto", grid=None, kconst=None, where="solver"):
     """Solve a :class:`~solvers_demo.fd._assembly.NodeSystem`; return the flat node values.
 
@@ -81,10 +70,9 @@ def solve_nodes(system, method="auto", grid=None, kconst=None, where="solver"):
     if method not in METHODS:
         raise SolverError(f"{where}: linear solver {method!r} is not known; use one of {', '.join(METHODS)}")
     free = ~system.dirichlet
-    u = system.values.copy()
-    rows = system.K[free]
-    A = _columns(rows, free)
-    b = system.load[free] - rows[:, ~free] @ u[~free]
+    u = np.where(free, 0.0, system.values)
+    n_free = int(np.count_nonzero(free))
+    b = (system.load - system.K @ u)[free]     # the Dirichlet values moved to the right-hand side
     interior = np.zeros(system.shape, dtype=bool)
     interior[tuple(slice(1, -1) for _ in system.shape)] = True
     dst_ok = (grid is not None and kconst is not None and system.symmetric
@@ -92,25 +80,28 @@ def solve_nodes(system, method="auto", grid=None, kconst=None, where="solver"):
     if method == "auto":
         if dst_ok:
             method = "dst"
-        elif A.shape[0] <= _DIRECT_LIMIT or not system.symmetric:
+        elif n_free <= _DIRECT_LIMIT or not system.symmetric:
             method = "direct"
         else:
             method = "amg"
-    if method == "dst":
+    if method == "dst":  # needs no matrix of the free nodes: the residual below uses K itself
         if not dst_ok:
             raise SolverError(f"{where}: the sine transform needs a constant coefficient and Dirichlet data on "
                               "every side; use linear='direct' or 'amg'")
         x = _dst(system, b, grid, kconst)
-    elif method == "amg":
-        if not system.symmetric:
-            raise SolverError(f"{where}: algebraic multigrid with CG needs a symmetric system; this boundary "
-                              "treatment is not symmetric, use linear='direct'")
-        x = _amg(A, b)
     else:
-        x = spla.spsolve(A.tocsc() if sps.issparse(A) else A, b)
-    res = np.linalg.norm(A @ x - b)
+        A = system.K[free][:, free].tocsr()
+        if method == "amg":
+            if not system.symmetric:
+                raise SolverError(f"{where}: algebraic multigrid with CG needs a symmetric system; this boundary "
+                                  "treatment is not symmetric, use linear='direct'")
+            x = _amg(A, b)
+        else:
+            x = spla.spsolve(A.tocsc(), b)
+        del A
+    u[free] = x
+    res = np.linalg.norm((system.K @ u - system.load)[free])   # = |A x - b|
     if not res <= 1e3 * _RTOL * max(np.linalg.norm(b), 1e-300):
         raise SolverError(f"{where}: the {method} linear solve left a relative residual "
                           f"{res / max(np.linalg.norm(b), 1e-300):.1e}; use linear='direct'")
-    u[free] = x
     return u
