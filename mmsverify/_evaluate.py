@@ -279,6 +279,10 @@ def _compact(a):
     """An axis array equal to ``a`` broadcast, when ``a`` varies along one axis only."""
     if a.ndim < 2 or a.size <= BLOCK:
         return a
+    if 0 in a.strides:  # a broadcast view: the axes it repeats along are dropped for free
+        a = a[tuple(slice(0, 1) if s == 0 else slice(None) for s in a.strides)]
+        if a.size <= BLOCK:
+            return a
     varying = [k for k in range(a.ndim) if a.shape[k] > 1
                and a[tuple(1 if j == k else 0 for j in range(a.ndim))] != a[(0,) * a.ndim]]
     if len(varying) > 1:

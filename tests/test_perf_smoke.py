@@ -24,7 +24,7 @@ import pytest
 import sympy as sp
 
 from mmsverify import _diskcache, derive, load_problem, problem_from_text
-from mmsverify._evaluate import Evaluator, build_program
+from mmsverify._evaluate import BLOCK, Evaluator, build_program
 from mmsverify.derive import _Programs
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -71,6 +71,18 @@ def test_full_meshgrid_input_is_reduced_exactly_and_still_correct():
     for indexing in ("ij", "xy"):
         X, Y = np.meshgrid(xs, ys, indexing=indexing)
         _assert_roundoff(ev(X, Y), _lambdified(p.equations["u"], p.coords)(X, Y))
+
+
+def test_broadcast_views_as_input_are_reduced_and_still_correct():
+    # check_solution hands the exact solution broadcast views of the solver's axis arrays
+    p = load_problem("compressible-3d")
+    ev = Evaluator(build_program(p.equations["p"], p.coords), block=777)
+    axes = [np.linspace(0, 1, n).reshape([-1 if k == a else 1 for k in range(3)]) for a, n in enumerate((50, 30, 40))]
+    views = np.broadcast_arrays(*axes)
+    assert 0 in views[1].strides and views[1].size > BLOCK
+    ours = ev(*views)
+    assert ours.shape == (50, 30, 40) and ours.flags.writeable
+    _assert_roundoff(ours, _lambdified(p.equations["p"], p.coords)(*axes))
 
 
 def test_scattered_and_rotated_points_are_not_mistaken_for_axis_arrays():
