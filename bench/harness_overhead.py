@@ -196,7 +196,7 @@ def main(argv=None):
                     runs[state] = r
     load1 = os.getloadavg()
     first = next(iter(runs.values()))
-    cells = " / ".join(f"{c[0]}^2" for c, _ in first["levels"])
+    cells = " / ".join(f"{c[0]}^{len(c)}" for c, _ in first["levels"])
     print(f"# Harness overhead: `mmsverify run {args.problem} {args.solver} --levels {args.levels} "
           f"--base-cells {args.base} --cache DIR --json FILE`")
     print(f"levels {cells} cells; fastest of {args.repeats} run(s) per cache state; seconds wall / CPU\n")
@@ -226,7 +226,7 @@ def main(argv=None):
           "thread of the process, so BLAS helper threads still spinning after a solve add to the stage that "
           "follows it; on an idle machine the wall clock is the figure.")
     print("solver seconds per level (as the study measured them): " + ", ".join(
-        f"{c[0]}^2: {s:.3f}" for c, s in first["levels"]))
+        f"{c[0]}^{len(c)}: {s:.3f}" for c, s in first["levels"]))
     print(f"load average before {load0[0]:.2f}, after {load1[0]:.2f}")
     print("Machine: " + "; ".join(machine()))
     return 0
