@@ -594,23 +594,6 @@ def bundled_problems():
     return sorted(p.stem for p in PROBLEM_DIR.glob("*.toml"))
 
 
-def problem_of_record(source, name, expected_hash, problem=None, *, what="the record", hint=""):
-    """The problem a saved study or baseline was made with, checked by content hash.
-
-    ``problem`` (a Problem, path or bundled name) wins; otherwise the
-    recorded file when it still exists, else the recorded bundled name.
-    Raises :class:`ProblemError` when the content differs from the record's.
-    """
-    if problem is None:
-        problem = source if source and Path(source).is_file() else name
-    problem = get_problem(problem)
-    if expected_hash and problem.content_hash() != expected_hash:
-        raise ProblemError(f"{problem.source}: the problem differs from the one {what} was made with (hash "
-                           f"{problem.content_hash()[:12]}, recorded {expected_hash[:12]}); pass the problem "
-                           f"file it was made with{hint}")
-    return problem
-
-
 def get_problem(problem):
     """Accept a :class:`Problem`, a path or a bundled name; return a Problem."""
     return problem if isinstance(problem, Problem) else load_problem(problem)

@@ -8,12 +8,13 @@ error maps of :mod:`mmsverify.report.plots`.
 
 from dataclasses import dataclass
 import logging
+from pathlib import Path
 
 import numpy as np
 
 from ..derive import derive
-from ..errors import MMSError, SolverError
-from ..problem import get_problem, problem_of_record
+from ..errors import MMSError, ProblemError, SolverError
+from ..problem import get_problem
 from ..solvers import Case, check_solution, resolve_solver
 
 __all__ = ["PointwiseError", "pointwise_error", "finest_error"]
@@ -121,7 +122,12 @@ def finest_error(result, solver=None, problem=None):
     ok = [lv for lv in result.levels if lv.ok]
     if not ok:
         return {}
-    problem = problem_of_record(result.source, result.problem, result.problem_hash, problem,
-                                what=f"the study of {result.problem}")
+    if problem is None:
+        problem = result.source if result.source and Path(result.source).is_file() else result.problem
+    problem = get_problem(problem)
+    if result.problem_hash and problem.content_hash() != result.problem_hash:
+        raise ProblemError(f"{problem.source}: this problem's content differs from the one the study of "
+                           f"{result.problem} ran on (hash {problem.content_hash()[:12]} vs "
+                           f"{result.problem_hash[:12]}); pass the problem file the study used")
     return pointwise_error(problem, result.solver if solver is None else solver, ok[-1].grid,
                            options={"mode": result.mode})
