@@ -453,7 +453,10 @@ def test_code_payloads_are_refused_with_a_message_naming_the_place(hostile_env, 
 
 @pytest.mark.parametrize("name, text", BOMBS, ids=[b[0] for b in BOMBS])
 def test_derivation_bombs_stop_at_the_budget_or_the_size_cap_naming_the_entry(hostile_env, name, text):
-    # which guard strikes first depends on how warm sympy's caches are; either is a clear, quick refusal
+    # which guard strikes first depends on how warm sympy's caches are; either is a clear, quick refusal.
+    # Start from cold caches, so what earlier tests derived cannot change the path sympy takes here.
+    from sympy.core.cache import clear_cache
+    clear_cache()
     start = time.perf_counter()
     with pytest.raises(ProblemError, match=f"loading took longer than {LOAD_BUDGET:g} s|has more than "
                                            f"{problem_module.MAX_EQUATION_NODES} terms") as info:
