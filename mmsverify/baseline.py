@@ -25,10 +25,11 @@ import logging
 import os
 from pathlib import Path
 
-from .errors import MMSError, ProblemError
+from ._origin import problem_of_record
+from .errors import MMSError
 from .grids import Grid
 from .norms import NORMS
-from .problem import PROBLEM_DIR, get_problem
+from .problem import PROBLEM_DIR
 
 __all__ = ["FORMAT", "FORMAT_VERSION", "DEFAULT_ERROR_FACTOR", "Baseline", "Finding", "BaselineCheck",
            "baseline_from_study", "save_baseline", "load_baseline", "compare", "check_baseline"]
@@ -40,6 +41,9 @@ _log = logging.getLogger(__name__)
 
 #: Allowed growth of any error over the baseline's, unless stated otherwise.
 DEFAULT_ERROR_FACTOR = 2.0
+
+_CHANGED_PROBLEM = ("{source}: the problem changed since the baseline was saved (hash {hash}, baseline "
+                    "{recorded}); pass the problem file the baseline was made with, or save a new baseline")
 
 
 @dataclass(frozen=True)
@@ -388,13 +392,7 @@ def check_baseline(baseline, solver=None, *, problem=None, error_factor=None, to
     from .study import run_study
     if not isinstance(baseline, Baseline):
         baseline = load_baseline(baseline)
-    if problem is None:
-        problem = baseline.source if baseline.source and Path(baseline.source).is_file() else baseline.problem
-    problem = get_problem(problem)
-    if baseline.problem_hash and problem.content_hash() != baseline.problem_hash:
-        raise ProblemError(f"{problem.source}: the problem changed since the baseline was saved (hash "
-                           f"{problem.content_hash()[:12]}, baseline {baseline.problem_hash[:12]}); pass the "
-                           "problem file the baseline was made with, or save a new baseline")
+    problem = problem_of_record(baseline, problem, mismatch=_CHANGED_PROBLEM)
     _log.info("rerunning the %d levels of baseline %s (recorded with %s)", len(baseline.grids), baseline.problem,
               baseline.solver)
     result = run_study(problem, baseline.solver if solver is None else solver, grids=baseline.grids,

@@ -8,18 +8,21 @@ error maps of :mod:`mmsverify.report.plots`.
 
 from dataclasses import dataclass
 import logging
-from pathlib import Path
 
 import numpy as np
 
+from .._origin import problem_of_record
 from ..derive import derive
-from ..errors import MMSError, ProblemError, SolverError
+from ..errors import MMSError, SolverError
 from ..problem import get_problem
 from ..solvers import Case, check_solution, resolve_solver
 
 __all__ = ["PointwiseError", "pointwise_error", "finest_error"]
 
 _log = logging.getLogger(__name__)
+
+_OTHER_PROBLEM = ("{source}: this problem's content differs from the one the study of {name} ran on (hash "
+                  "{hash} vs {recorded}); pass the problem file the study used")
 
 
 @dataclass(frozen=True)
@@ -122,12 +125,6 @@ def finest_error(result, solver=None, problem=None):
     ok = [lv for lv in result.levels if lv.ok]
     if not ok:
         return {}
-    if problem is None:
-        problem = result.source if result.source and Path(result.source).is_file() else result.problem
-    problem = get_problem(problem)
-    if result.problem_hash and problem.content_hash() != result.problem_hash:
-        raise ProblemError(f"{problem.source}: this problem's content differs from the one the study of "
-                           f"{result.problem} ran on (hash {problem.content_hash()[:12]} vs "
-                           f"{result.problem_hash[:12]}); pass the problem file the study used")
+    problem = problem_of_record(result, problem, mismatch=_OTHER_PROBLEM)
     return pointwise_error(problem, result.solver if solver is None else solver, ok[-1].grid,
                            options={"mode": result.mode})
