@@ -49,13 +49,6 @@ def compile_expression(expr, args):
     return _compiled(sp.sympify(expr), tuple(args))
 
 
-def _parameters_hash(problem):
-    """Parameters are not part of the content hash; programs of them are keyed by this too."""
-    import hashlib
-    text = repr(sorted((k, sp.srepr(v)) for k, v in problem.parameters.items()))
-    return hashlib.sha256(text.encode()).hexdigest()[:16]
-
-
 class _Programs:
     """Generated programs of one problem: in memory, then on disk, else built."""
 
@@ -65,7 +58,7 @@ class _Programs:
     @staticmethod
     def ident(problem, args):
         """What identifies the generated programs of a problem."""
-        return problem.content_hash(), tuple(str(a) for a in args), _parameters_hash(problem)
+        return problem.content_hash(), tuple(str(a) for a in args), problem.parameters_hash()
 
     @classmethod
     def evaluator(cls, ident, args, key, make_expr):
@@ -133,9 +126,10 @@ class Manufactured:
             self._ident = _Programs.ident(p, self._args)
         return _Programs.evaluator(self._ident, self._args, key, make_expr)(*values)
 
-    def _check_field(self, name, table, what="field"):
-        if name not in table:
-            raise ProblemError(f"{self.problem.name}: no {what} {name!r}; known: {', '.join(table)}")
+    def _check_field(self, name, table="fields", what="field"):
+        known = self.problem.names(table)   # names only: the expressions are built when code is generated
+        if name not in known:
+            raise ProblemError(f"{self.problem.name}: no {what} {name!r}; known: {', '.join(known)}")
 
     def _side(self, side):
         axis = _AXIS.get(side[:1])
@@ -151,12 +145,12 @@ class Manufactured:
 
     def exact(self, name, *coords, t=None):
         """Exact value of a field."""
-        self._check_field(name, self.problem.fields)
+        self._check_field(name)
         return self._eval(f"exact_{name}", lambda: self.problem.fields[name], coords, t)
 
     def source(self, name, *coords, t=None):
         """Manufactured source term of an equation (named after its field)."""
-        self._check_field(name, self.problem.equations, "equation")
+        self._check_field(name, "equations", "equation")
         return self._eval(f"source_{name}", lambda: self.problem.equations[name], coords, t)
 
     def initial(self, name, *coords):
@@ -166,7 +160,7 @@ class Manufactured:
 
     def boundary(self, name, side):
         """Kind of boundary data, ``"dirichlet"`` or ``"neumann"``."""
-        self._check_field(name, self.problem.fields)
+        self._check_field(name)
         self._side(side)
         return self.problem.boundaries[(name, side)]
 
@@ -177,13 +171,13 @@ class Manufactured:
 
     def normal_derivative_expr(self, name, side):
         axis, sign = self._side(side)
-        self._check_field(name, self.problem.fields)
+        self._check_field(name)
         return sign * sp.diff(self.problem.fields[name], self.problem.coords[axis])
 
     def normal_derivative(self, name, side, *coords, t=None):
         """Outward normal derivative ``grad(u) . n`` of a field on a side."""
         self._side(side)
-        self._check_field(name, self.problem.fields)
+        self._check_field(name)
         return self._eval(f"dudn_{name}_{side}", lambda: self.normal_derivative_expr(name, side), coords, t)
 
     def normal_flux_expr(self, name, side):
@@ -196,12 +190,14 @@ class Manufactured:
 
     def normal_flux(self, name, side, *coords, t=None):
         """Outward normal flux (e.g. ``k grad(u) . n`` for diffusion) on a side."""
-        self.normal_flux_expr(name, side)       # checks the side and that a flux exists
+        self._side(side)
+        if name not in self.problem.names("fluxes"):
+            self.normal_flux_expr(name, side)   # raises: no flux for this field
         return self._eval(f"flux_{name}_{side}", lambda: self.normal_flux_expr(name, side), coords, t)
 
     def parameter(self, name, *coords, t=None):
         """An operator parameter (coefficient) evaluated with the exact fields."""
-        self._check_field(name, self.problem.parameters, "parameter")
+        self._check_field(name, "parameters", "parameter")
         return self._eval(f"parameter_{name}", lambda: self.problem.parameters[name], coords, t)
 
     def exact_quantity(self, name, t=None):
@@ -213,12 +209,13 @@ class Manufactured:
         evaluated directly. Transient problems default to the end time.
         """
         p = self.problem
-        self._check_field(name, p.quantities, "quantity")
-        kind, expr, where, _ = p.quantities[name]
+        self._check_field(name, "quantities", "quantity")
+        kind, where, _ = p.quantity_info(name)
+        expr = lambda: p.quantities[name][1]  # noqa: E731  (built only when no code is cached)
         if p.t is not None and t is None:
             t = p.t_range[1]
         if kind == "point":
-            return float(self._eval(f"quantity_{name}", lambda: expr, where, t))
+            return float(self._eval(f"quantity_{name}", expr, where, t))
         axes = list(range(p.dim))
         fixed = {}
         if kind == "flux":
@@ -235,7 +232,7 @@ class Manufactured:
             w = w * (0.5 * (hi - lo) * weights).reshape(shape)
         for a, v in fixed.items():
             coords[a] = np.array(v)
-        values = self._eval(f"quantity_{name}", lambda: expr, coords, t)
+        values = self._eval(f"quantity_{name}", expr, coords, t)
         return float(np.sum(w * values))
 
     def expressions(self):

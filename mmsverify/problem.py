@@ -59,11 +59,13 @@ expression tree of each derived source term or flux, everywhere. Numbers
 are finite; orders are whole numbers from 1 to ``MAX_ORDER``.
 """
 
-from dataclasses import dataclass, field, replace
+import copy
+from dataclasses import dataclass, field
 import hashlib
 import json
 import math
 from pathlib import Path
+import pickle
 import re
 import tomllib
 
@@ -163,6 +165,82 @@ class Problem:
     bounds: dict = field(default_factory=dict)
     equation_text: dict = field(default_factory=dict)
 
+    # The tables of sympy expressions. A problem read back from the derivation
+    # cache holds them pickled and builds them on first use: a study whose
+    # evaluator code is cached too never needs them, and building sympy sums
+    # (with sympy's deferred imports) is most of the time of a warm start.
+    _SYMBOLIC = ("fields", "parameters", "equations", "fluxes", "quantities", "bounds")
+
+    def __getattr__(self, name):
+        # Called only when normal lookup fails: a symbolic table not yet built.
+        if name not in Problem._SYMBOLIC:
+            raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
+        blob = self.__dict__.get("_symbolic")
+        if blob is not None:
+            for key, value in pickle.loads(blob).items():
+                object.__setattr__(self, key, value)
+            self.__dict__.pop("_symbolic", None)
+        return object.__getattribute__(self, name)
+
+    def names(self, table):
+        """Keys of one symbolic table (``"fields"``, ``"equations"``, ...), without building it."""
+        known = self.__dict__.get("_names")
+        return known[table] if known is not None else tuple(getattr(self, table))
+
+    def quantity_info(self, name):
+        """``(kind, where, text)`` of a declared quantity, without building its expression."""
+        known = self.__dict__.get("_quantity_info")
+        if known is not None:
+            return known[name]
+        kind, _, where, text = self.quantities[name]
+        return kind, where, text
+
+    def _parameter_table(self):
+        memo = self.__dict__.get("_parameter_info")
+        if memo is None:
+            memo = {}
+            for key, expr in self.parameters.items():
+                expr = sp.sympify(expr)
+                free = tuple(sorted(str(s) for s in expr.free_symbols))
+                memo[key] = (None if free else float(expr), free)
+            object.__setattr__(self, "_parameter_info", memo)
+        return memo
+
+    def parameter_constant(self, name, default=None):
+        """An operator parameter as a float when it is a constant, None when it varies.
+
+        ``default`` when the operator has no parameter of that name. Answers
+        without building the symbolic tables (see :meth:`parameter_symbols`).
+        """
+        found = self._parameter_table().get(name)
+        return default if found is None else found[0]
+
+    def parameter_symbols(self, name):
+        """Names of the coordinates (and ``t``) a parameter depends on; empty when constant or absent."""
+        found = self._parameter_table().get(name)
+        return () if found is None else found[1]
+
+    def _packed(self):
+        """A copy for the derivation cache whose symbolic tables are built on first use."""
+        self.content_hash()
+        self.parameters_hash()
+        self._parameter_table()
+        out = copy.copy(self)
+        tables = {k: getattr(self, k) for k in Problem._SYMBOLIC}
+        for k in Problem._SYMBOLIC:
+            out.__dict__.pop(k, None)
+        out.__dict__["_names"] = {k: tuple(v) for k, v in tables.items()}
+        out.__dict__["_quantity_info"] = {k: (q[0], q[2], q[3]) for k, q in tables["quantities"].items()}
+        out.__dict__["_symbolic"] = pickle.dumps(tables, protocol=pickle.HIGHEST_PROTOCOL)
+        return out
+
+    def renamed(self, name, source):
+        """The same problem under another name and source (memos and lazy tables kept)."""
+        out = copy.copy(self)
+        object.__setattr__(out, "name", name)
+        object.__setattr__(out, "source", source)
+        return out
+
     @property
     def dim(self):
         return len(self.coords)
@@ -173,7 +251,7 @@ class Problem:
 
     @property
     def field_names(self):
-        return tuple(self.fields)
+        return self.names("fields")
 
     def content_hash(self):
         """SHA-256 of everything that defines the mathematics (not the name).
@@ -196,6 +274,15 @@ class Problem:
         }, sort_keys=True)
         memo = hashlib.sha256(blob.encode()).hexdigest()
         object.__setattr__(self, "_content_hash", memo)
+        return memo
+
+    def parameters_hash(self):
+        """Short hash of the operator parameters (keys generated programs of them); kept once computed."""
+        memo = self.__dict__.get("_parameters_hash")
+        if memo is None:
+            text = repr(sorted((k, sp.srepr(v)) for k, v in self.parameters.items()))
+            memo = hashlib.sha256(text.encode()).hexdigest()[:16]
+            object.__setattr__(self, "_parameters_hash", memo)
         return memo
 
     def boundary_kind(self, field_name, side):
@@ -540,9 +627,7 @@ def problem_from_text(text, source="<text>"):
             if isinstance(cached, Problem):
                 name = data.get("name", Path(source).stem)
                 if (name, source) != (cached.name, cached.source):
-                    memo = cached.content_hash()
-                    cached = replace(cached, name=name, source=source)
-                    object.__setattr__(cached, "_content_hash", memo)
+                    cached = cached.renamed(name, source)
                 return cached
             reader = _Reader(data, text, source)
             problem = reader.read()
@@ -563,7 +648,7 @@ def problem_from_text(text, source="<text>"):
                            f"{doing}") from None
     except RecursionError:
         raise ProblemError(f"{source}: an expression is nested too deeply to differentiate") from None
-    _diskcache.store("problem", key, problem)
+    _diskcache.store("problem", key, problem._packed())
     return problem
 
 

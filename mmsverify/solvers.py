@@ -182,10 +182,10 @@ def check_solution(sol, problem, where):
                           "values={...}, points=(...), weights=...)")
     if not isinstance(sol.values, dict) or not sol.values:
         raise SolverError(f"{where}: Solution.values must be a non-empty dict of field name to array")
-    unknown = set(sol.values) - set(problem.fields)
+    unknown = set(sol.values) - set(problem.field_names)
     if unknown:
         raise SolverError(f"{where}: returned field(s) {sorted(unknown)} that the problem does not define; "
-                          f"its fields are {', '.join(problem.fields)}")
+                          f"its fields are {', '.join(problem.field_names)}")
     if not isinstance(sol.points, (tuple, list)) or len(sol.points) != problem.dim:
         raise SolverError(f"{where}: Solution.points must hold {problem.dim} coordinate array(s), one per "
                           f"dimension; got {type(sol.points).__name__} of length "
@@ -233,10 +233,11 @@ def check_solution(sol, problem, where):
             raise SolverError(f"{where}: weights (cell volumes) must be finite, non-negative and not all zero")
     if not isinstance(sol.quantities, dict):
         raise SolverError(f"{where}: Solution.quantities must be a dict of name to number")
-    unknown = set(sol.quantities) - set(problem.quantities)
+    declared = problem.names("quantities")
+    unknown = set(sol.quantities) - set(declared)
     if unknown:
         raise SolverError(f"{where}: returned quantities {sorted(unknown)} that the problem does not declare; "
-                          f"declare them under [quantities] (known: {', '.join(problem.quantities) or 'none'})")
+                          f"declare them under [quantities] (known: {', '.join(declared) or 'none'})")
     for name, q in sol.quantities.items():
         if isinstance(q, bool) or not isinstance(q, (int, float, np.floating, np.integer)) or not np.isfinite(q):
             raise SolverError(f"{where}: quantity {name!r} must be a finite number, got {q!r}")

@@ -147,12 +147,12 @@ class StudyResult:
 def _verdicts(problem, results, formal, tol, norms=NORMS):
     """One verdict per field and judged norm, then one per reported quantity."""
     verdicts = []
-    for f in problem.fields:
+    for f in problem.field_names:
         ok = [r for r in results if r.ok and f in r.errors]
         for n in norms if ok else ():
             verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], formal, tol,
                                   scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
-    for q in problem.quantities:
+    for q in problem.names("quantities"):
         ok = [r for r in results if r.ok and q in r.quantities]
         if ok:
             verdicts.append(judge(q, "value", [r.h for r in ok], [r.quantities[q]["error"] for r in ok], formal,

@@ -19,18 +19,9 @@ from mmsverify.estimate import (
 )
 from mmsverify.gci import gci_profile
 
+from _helpers import no_nan, printed
+
 DATA = Path(__file__).parent / "data"
-
-
-def _printed(value, printed):
-    decimals = len(printed.split(".")[1]) if "." in printed else 0
-    return f"{value:.{decimals}f}" == printed
-
-
-def _no_nan(record):
-    text = str(record)
-    assert "nan" not in text.lower(), text
-    return text
 
 
 # ---------------------------------------------------------------- assess
@@ -38,15 +29,15 @@ def _no_nan(record):
 def test_assess_celik_table1_column1():
     # Celik et al. 2008, J. Fluids Eng. 130:078001, Table 1, column 1
     a = assess([5.863, 5.972, 6.063], cells=[4500, 8000, 18000], dim=2, name="phi", formal_order=2)
-    assert _printed(a.order, "1.53")  # Table 1, column 1: apparent order
-    assert _printed(a.extrapolated, "6.1685")  # Table 1, column 1: phi_ext21
-    assert _printed(100 * a.relative_uncertainty, "2.2")  # Table 1, column 1: GCI_fine21
+    assert printed(a.order, "1.53")  # Table 1, column 1: apparent order
+    assert printed(a.extrapolated, "6.1685")  # Table 1, column 1: phi_ext21
+    assert printed(100 * a.relative_uncertainty, "2.2")  # Table 1, column 1: GCI_fine21
     assert a.convergence.kind == "monotone" and a.method.startswith("GCI_fine21")
     # common practice: ~5 % relative discretization error is a usual acceptance level
     assert a.acceptable is True and "within" in a.verdict
     # r21 = 1.5, r32 = 1.333: non-constant ratio is reported
     assert any("non-constant" in w for w in a.warnings)
-    _no_nan(a)
+    no_nan(a)
 
 
 def test_assess_celik_table1_column3_gives_no_estimate():
@@ -56,7 +47,7 @@ def test_assess_celik_table1_column3_gives_no_estimate():
     assert a.method is None and a.uncertainty is None and a.relative_uncertainty is None and a.extrapolated is None
     assert a.acceptable is None and "no valid" in a.verdict
     assert any("oscillatory" in w for w in a.warnings)
-    _no_nan(a)
+    no_nan(a)
 
 
 def test_common_practice_acceptance_level():
@@ -80,7 +71,7 @@ def test_assess_two_grids_uses_formal_order_and_warns():
     assert a.gci.safety_factor == 3.0 and a.order == 2.0
     assert any("two grids" in w for w in a.warnings)
     assert a.convergence is None
-    _no_nan(a)
+    no_nan(a)
     with pytest.raises(AnalysisError, match="formal_order"):
         assess([0.96854, 0.97050], h=[2.0, 1.0])
 
@@ -103,7 +94,7 @@ def test_assess_four_levels_oscillatory_falls_back_to_least_squares():
     assert a.method.startswith("least squares") and a.least_squares.safety_factor == 3.0
     assert a.uncertainty is not None and a.uncertainty >= abs(a.values[-1] - 1.0)
     assert any("least-squares estimate" in w for w in a.warnings)
-    _no_nan(a)
+    no_nan(a)
 
 
 def test_assess_detects_a_floor_on_fine_levels():
@@ -141,7 +132,7 @@ def test_load_levels_csv_fine_to_coarse_is_reordered():
     assert t.sizes == (4500.0, 8000.0, 18000.0)
     assert t.values("phi") == (5.863, 5.972, 6.063)
     assert t.lines == (7, 6, 5)  # file lines of 4500, 8000, 18000
-    _no_nan(t)
+    no_nan(t)
 
 
 def test_assess_table_celik_columns_2_and_3_from_toml():
@@ -149,11 +140,11 @@ def test_assess_table_celik_columns_2_and_3_from_toml():
     assert len(res) == 2
     c2, c3 = res["column2"], res["column3"]
     # Celik et al. 2008, J. Fluids Eng. 130:078001, Table 1, column 2
-    assert _printed(c2.order, "0.75") and _printed(c2.extrapolated, "10.8801")
-    assert _printed(100 * c2.relative_uncertainty, "1.1")
+    assert printed(c2.order, "0.75") and printed(c2.extrapolated, "10.8801")
+    assert printed(100 * c2.relative_uncertainty, "1.1")
     # Celik et al. 2008, Table 1, column 3: oscillatory, no GCI given
     assert c3.convergence.kind == "oscillatory" and c3.uncertainty is None
-    text = _no_nan(res)
+    text = no_nan(res)
     assert "column2" in text and "column3" in text and "oscillatory" in text
 
 
@@ -264,7 +255,7 @@ def test_plan_errors_closed_form():
     assert pl.time_needed == pytest.approx(0.01 * 0.4 / 1.6e-5)
     assert pl.time_exponent == pytest.approx(1.0)
     assert pl.reliable and not pl.already_met
-    _no_nan(pl)
+    no_nan(pl)
 
 
 def test_plan_gci_target_from_solution_values():
@@ -284,7 +275,7 @@ def test_plan_says_when_data_are_too_weak():
     assert not two.reliable and any("only 2 levels" in r for r in two.reasons)
     osc = plan([0.4, 0.2, 0.1], [1.0, 1.2, 1.1], [1, 8, 64], 1e-3, kind="solution")
     assert osc.h_needed is None and not osc.reliable and "too weak" in osc.advice
-    _no_nan(osc)
+    no_nan(osc)
     h5 = np.array([0.1, 0.05, 0.025, 0.0125, 0.00625])
     floor = plan(h5, [4e-3, 1e-3, 2.6e-4, 2.5e-4, 2.5e-4], 4 ** np.arange(5), 1e-5)
     assert not floor.reliable and any("tighten the solver tolerance" in r for r in floor.reasons)

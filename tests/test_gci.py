@@ -11,17 +11,7 @@ from hypothesis import strategies as st
 from mmsverify.errors import AnalysisError
 from mmsverify.gci import gci, gci_profile, plot_profile, representative_h
 
-
-def _printed(value, printed):
-    """True if value, rounded to the digits of the printed string, equals it."""
-    decimals = len(printed.split(".")[1]) if "." in printed else 0
-    return f"{value:.{decimals}f}" == printed
-
-
-def _no_nan(record):
-    text = str(record)
-    assert "nan" not in text.lower(), text
-    return text
+from _helpers import no_nan, printed
 
 
 # ---------------------------------------------------------------- Celik et al. 2008, Table 1
@@ -32,27 +22,27 @@ def test_celik_table1_column1():
     # Celik et al. 2008, J. Fluids Eng. 130:078001, Table 1, column 1
     res = gci([5.863, 5.972, 6.063], cells=[4500, 8000, 18000], dim=2)
     assert res.valid and res.status == "monotone"
-    assert _printed(res.r21, "1.5") and _printed(res.r32, "1.333")  # Table 1, column 1
-    assert _printed(res.p, "1.53")  # Table 1, column 1: apparent order
-    assert _printed(res.phi_ext21, "6.1685")  # Table 1, column 1: phi_ext21
-    assert _printed(100 * res.e_a21, "1.5")  # Table 1, column 1: e_a21 = 1.5 %
-    assert _printed(100 * res.e_ext21, "1.7")  # Table 1, column 1: e_ext21 = 1.7 %
-    assert _printed(100 * res.gci_fine21, "2.2")  # Table 1, column 1: GCI_fine21 = 2.2 %
-    _no_nan(res)
+    assert printed(res.r21, "1.5") and printed(res.r32, "1.333")  # Table 1, column 1
+    assert printed(res.p, "1.53")  # Table 1, column 1: apparent order
+    assert printed(res.phi_ext21, "6.1685")  # Table 1, column 1: phi_ext21
+    assert printed(100 * res.e_a21, "1.5")  # Table 1, column 1: e_a21 = 1.5 %
+    assert printed(100 * res.e_ext21, "1.7")  # Table 1, column 1: e_ext21 = 1.7 %
+    assert printed(100 * res.gci_fine21, "2.2")  # Table 1, column 1: GCI_fine21 = 2.2 %
+    no_nan(res)
 
 
 def test_celik_table1_column2():
     # Celik et al. 2008, J. Fluids Eng. 130:078001, Table 1, column 2
     res = gci([10.6050, 10.7250, 10.7880], cells=[980, 4500, 18000], dim=2)
     assert res.valid
-    assert _printed(res.r21, "2.0") and _printed(res.r32, "2.143")  # Table 1, column 2
-    assert _printed(res.p, "0.75")  # Table 1, column 2: apparent order
-    assert _printed(res.phi_ext21, "10.8801")  # Table 1, column 2: phi_ext21
-    assert _printed(100 * res.e_a21, "0.6")  # Table 1, column 2: e_a21 = 0.6 %
+    assert printed(res.r21, "2.0") and printed(res.r32, "2.143")  # Table 1, column 2
+    assert printed(res.p, "0.75")  # Table 1, column 2: apparent order
+    assert printed(res.phi_ext21, "10.8801")  # Table 1, column 2: phi_ext21
+    assert printed(100 * res.e_a21, "0.6")  # Table 1, column 2: e_a21 = 0.6 %
     # Table 1, column 2 prints e_ext21 = 0.9 %; the reference note says it
     # recomputes to about 0.85 %, which is what the formula gives.
-    assert _printed(100 * res.e_ext21, "0.85")
-    assert _printed(100 * res.gci_fine21, "1.1")  # Table 1, column 2: GCI_fine21 = 1.1 %
+    assert printed(100 * res.e_ext21, "0.85")
+    assert printed(100 * res.gci_fine21, "1.1")  # Table 1, column 2: GCI_fine21 = 1.1 %
 
 
 def test_celik_table1_column3_oscillatory_gets_no_gci():
@@ -62,15 +52,15 @@ def test_celik_table1_column3_oscillatory_gets_no_gci():
     assert res.convergence.kind == "oscillatory"
     # the published formula values, kept apart from the (absent) uncertainty
     f = res.formula
-    assert _printed(f.p, "1.51")  # Table 1, column 3: apparent order
-    assert _printed(f.phi_ext21, "6.0269")  # Table 1, column 3: phi_ext21
-    assert _printed(100 * res.e_a21, "0.7")  # Table 1, column 3: e_a21 = 0.7 %
-    assert _printed(100 * f.e_ext21, "0.4")  # Table 1, column 3: e_ext21 = 0.4 %
-    assert _printed(100 * f.gci_fine21, "0.5")  # Table 1, column 3: GCI_fine21 = 0.5 %
+    assert printed(f.p, "1.51")  # Table 1, column 3: apparent order
+    assert printed(f.phi_ext21, "6.0269")  # Table 1, column 3: phi_ext21
+    assert printed(100 * res.e_a21, "0.7")  # Table 1, column 3: e_a21 = 0.7 %
+    assert printed(100 * f.e_ext21, "0.4")  # Table 1, column 3: e_ext21 = 0.4 %
+    assert printed(100 * f.gci_fine21, "0.5")  # Table 1, column 3: GCI_fine21 = 0.5 %
     for name in ("p", "phi_ext21", "e_ext21", "gci_fine21", "gci_coarse21", "gci_fine32", "u_fine21",
                  "asymptotic_ratio"):
         assert getattr(res, name) is None, name
-    text = _no_nan(res)
+    text = no_nan(res)
     assert "NOT VALID" in text and "oscillatory" in text
     assert any("oscillatory" in w for w in res.warnings)
 
@@ -85,13 +75,13 @@ def test_celik_table1_column3_oscillatory_gets_no_gci():
 def test_nasa_glenn_spatial_convergence_example():
     res = gci([0.961780, 0.968540, 0.970500], h=[4.0, 2.0, 1.0])
     assert res.valid
-    assert _printed(res.p, "1.7862")  # NASA Glenn tutorial: p = 1.78618479
-    assert _printed(res.phi_ext21, "0.971300")  # NASA Glenn tutorial: f_exact = 0.971300304
-    assert _printed(100 * res.gci_fine21, "0.10308")  # NASA Glenn tutorial: GCI12 = 0.103080 %
-    assert _printed(100 * res.gci_fine32, "0.3562")  # NASA Glenn tutorial: GCI23 = 0.356244 %
+    assert printed(res.p, "1.7862")  # NASA Glenn tutorial: p = 1.78618479
+    assert printed(res.phi_ext21, "0.971300")  # NASA Glenn tutorial: f_exact = 0.971300304
+    assert printed(100 * res.gci_fine21, "0.10308")  # NASA Glenn tutorial: GCI12 = 0.103080 %
+    assert printed(100 * res.gci_fine32, "0.3562")  # NASA Glenn tutorial: GCI23 = 0.356244 %
     # NASA Glenn tutorial prints 0.997980 as its asymptotic-range ratio, which is
     # r^p GCI12 / GCI23, the reciprocal of the ratio reported here.
-    assert _printed(1.0 / res.asymptotic_ratio, "0.997980")
+    assert printed(1.0 / res.asymptotic_ratio, "0.997980")
     assert res.safety_factor == 1.25  # NASA Glenn tutorial: Fs = 1.25 for three grids
 
 
@@ -104,7 +94,7 @@ def test_two_grids_use_assumed_order_and_safety_factor_3():
     assert res.gci_fine21 == pytest.approx(3.0 * 0.00196 / 0.9705 / 3.0, rel=1e-12)
     assert res.phi_ext21 == pytest.approx(0.9705 + 0.00196 / 3.0, rel=1e-14)
     assert any("third grid" in w for w in res.warnings)
-    _no_nan(res)
+    no_nan(res)
     with pytest.raises(AnalysisError, match="formal_order"):
         gci([0.968540, 0.970500], h=[2.0, 1.0])
 
@@ -146,7 +136,7 @@ def test_oscillatory_data_never_get_a_valid_gci(R, scale, base, r):
     res = gci(phi, h=[r * r, r, 1.0])
     assert res.status == "oscillatory" and not res.valid
     assert res.gci_fine21 is None and res.phi_ext21 is None and res.p is None
-    _no_nan(res)
+    no_nan(res)
 
 
 @settings(max_examples=60, deadline=None)
@@ -158,7 +148,7 @@ def test_divergent_data_never_get_a_valid_gci(growth, scale, flip):
     res = gci(phi, h=[4.0, 2.0, 1.0])
     assert res.status == "divergent" and not res.valid
     assert res.gci_fine21 is None and res.u_fine21 is None
-    _no_nan(res)
+    no_nan(res)
 
 
 def test_common_practice_low_ratio_warns():
@@ -222,7 +212,7 @@ def test_profile_closed_form_linear_profile():
     assert np.allclose(prof.phi_ext, 1 + 2 * x[2], atol=1e-12)
     # GCI error bar = Fs |eps21| / (r^p - 1) = 1.25 * 0.5 * (0.05^2 - 0.025^2) / 3
     assert np.allclose(prof.error_bar, 1.25 * 0.5 * (0.05 ** 2 - 0.025 ** 2) / 3)
-    _no_nan(prof)
+    no_nan(prof)
 
 
 def test_profile_oscillatory_points_and_outside_points():
@@ -241,7 +231,7 @@ def test_profile_oscillatory_points_and_outside_points():
     assert np.all(np.isnan(prof.error_bar[osc])) and np.all(np.isnan(prof.p_local[osc]))
     avg = gci_profile(x, v, h=hs, order="average")
     assert np.all(np.isfinite(avg.error_bar[osc]))
-    text = _no_nan(prof)
+    text = no_nan(prof)
     assert "oscillatory" in text
 
 

@@ -22,13 +22,8 @@ NEUMANN = ("flux", "one-sided", "one-sided-3pt")
 
 
 def constant_coefficient(case, name="k"):
-    """The operator parameter ``name`` as a float if it is constant, else None."""
-    expr = case.problem.parameters.get(name)
-    if expr is None:
-        return 1.0
-    if getattr(expr, "free_symbols", None):
-        return None
-    return float(expr)
+    """The operator parameter ``name`` as a float if it is constant (1 if absent), else None."""
+    return case.problem.parameter_constant(name, 1.0)
 
 
 @dataclass(frozen=True)

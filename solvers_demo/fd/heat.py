@@ -28,8 +28,7 @@ SCHEMES = {"implicit-euler": (1.0, 1), "crank-nicolson": (0.5, 2)}
 
 
 def _depends_on_time(problem, name):
-    expr = problem.parameters.get(name)
-    return problem.t is not None and expr is not None and problem.t in getattr(expr, "free_symbols", ())
+    return problem.t is not None and str(problem.t) in problem.parameter_symbols(name)
 
 
 @dataclass(frozen=True)
@@ -77,7 +76,7 @@ class FDHeat(DemoSolver):
         pts = np.meshgrid(*[grid.nodes(a) for a in range(grid.dim)], indexing="ij", sparse=True)
         shape = tuple(n + 1 for n in grid.cells)
         u = np.broadcast_to(mms.initial(field, *pts), shape).ravel().copy()
-        has_capacity = "rho_c" in case.problem.parameters and self.mistake != "capacity-missing"
+        has_capacity = "rho_c" in case.problem.names("parameters") and self.mistake != "capacity-missing"
         t = grid.t_start
         old = assemble_diffusion(case, t=t, neumann=self.neumann)
         if not old.dirichlet.any() and not (old.mass == 0).any():

@@ -75,10 +75,9 @@ class FVAdvection(DemoSolver):
     def _solve(self, case):
         mms, problem = case.mms, case.problem
         field = problem.field_names[0]
-        k = problem.parameters.get("k", 0)
-        if getattr(k, "free_symbols", None) or float(k) != 0.0:
+        if problem.parameter_constant("k", 0.0) != 0.0:     # None when k varies
             raise SolverError(f"{self.name}: solves pure advection; problem {problem.name} has diffusion "
-                              f"k = {k}; set k = 0 or use FDAdvectionDiffusion")
+                              f"k = {problem.parameters['k']}; set k = 0 or use FDAdvectionDiffusion")
         mesh = quad_mesh(case.grid, self.grid)
         n = mesh.n_cells
         xc, yc = mesh.centroids
