@@ -6,6 +6,9 @@ the grid (box, cells, time interval and steps) and the case options. Its
 record is one JSON file ``levels/<key>.json`` under the cache folder,
 written to a temporary file and moved into place with :func:`os.replace`,
 so a study killed at any moment leaves either the whole record or none.
+A temporary file left by a writer killed mid-write is removed the next time
+a cache on that folder is opened (see :class:`LevelCache`); one that may
+still belong to a running writer is never touched.
 
 Only successful levels are stored; failed ones are tried again on the next
 run.
@@ -34,6 +37,13 @@ __all__ = ["LevelCache", "solver_identity", "CACHE_FORMAT"]
 
 #: Version of the record layout; part of every key.
 CACHE_FORMAT = 1
+
+# A temporary record whose writer is not running on this machine is removed
+# once it is this old (seconds). The wait covers writers on other machines
+# sharing the folder (their pids mean nothing here); a write takes milliseconds.
+_TMP_GRACE = 60.0
+# A temporary record this old (seconds) is removed whoever wrote it.
+_TMP_MAX_AGE = 3600.0
 
 
 def _source_digest(obj):
@@ -73,8 +83,61 @@ def _grid_data(grid):
             "t_start": grid.t_start, "t_end": grid.t_end, "steps": grid.steps}
 
 
+def _tmp_path(path):
+    """Temporary file for writing record ``path``: ``.<key>.<pid>.<ns>.tmp`` beside it."""
+    return path.with_name(f".{path.stem}.{os.getpid()}.{time.monotonic_ns()}.tmp")
+
+
+def _tmp_writer(name):
+    """The writer's pid in a name made by :func:`_tmp_path`, or None for any other name."""
+    parts = name[1:-len(".tmp")].split(".") if name.startswith(".") and name.endswith(".tmp") else []
+    return int(parts[1]) if len(parts) == 3 and parts[1].isdigit() else None
+
+
+def _running(pid):
+    """False only when no process ``pid`` exists on this machine."""
+    if os.name == "nt":  # os.kill would terminate it; assume it runs (the age rule still applies)
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except OSError:  # exists but belongs to someone else, or cannot be asked
+        return True
+    return True
+
+
+def _remove_stale_temporaries(folder):
+    """Remove the abandoned temporary records in ``folder``; returns how many.
+
+    A temporary file is abandoned when it is at least ``_TMP_MAX_AGE``
+    seconds old, or at least ``_TMP_GRACE`` seconds old and its writer (the
+    pid in its name) is not running on this machine. Files that vanish or
+    cannot be removed meanwhile are left alone.
+    """
+    now = time.time()
+    removed = 0
+    for tmp in folder.glob(".*.tmp"):
+        try:
+            age = now - tmp.stat().st_mtime
+            if age < _TMP_GRACE:
+                continue
+            pid = _tmp_writer(tmp.name)
+            if age >= _TMP_MAX_AGE or (pid is not None and pid != os.getpid() and not _running(pid)):
+                tmp.unlink()
+                removed += 1
+        except OSError:  # renamed into place by its writer, removed by another process, or not ours
+            continue
+    return removed
+
+
 class LevelCache:
     """Finished levels on disk, by content.
+
+    Opening a cache removes temporary records abandoned by writers that were
+    killed mid-write: those whose writing process no longer runs on this
+    machine (after a minute's grace, for writers on other machines sharing
+    the folder) and any older than an hour.
 
     Parameters
     ----------
@@ -86,6 +149,7 @@ class LevelCache:
         self.directory = Path(directory)
         self._levels = self.directory / "levels"
         self._levels.mkdir(parents=True, exist_ok=True)
+        _remove_stale_temporaries(self._levels)
 
     def __repr__(self):
         return f"LevelCache({str(self.directory)!r})"
@@ -132,7 +196,7 @@ class LevelCache:
                        "info": _plain(result.info)},
         }
         path = self.path(key)
-        tmp = path.with_name(f".{path.stem}.{os.getpid()}.{time.monotonic_ns()}.tmp")
+        tmp = _tmp_path(path)
         try:
             with open(tmp, "w", encoding="utf-8") as fh:
                 json.dump(rec, fh, indent=1)

@@ -136,3 +136,71 @@ def test_a_killed_study_resumes_without_redoing_finished_levels(counting, tmp_pa
     assert _calls(counting) == [0, 1, 2, 2, 3]  # the rerun did only levels 2 and 3
     assert result.passed and [lv.level for lv in result.levels] == [0, 1, 2, 3]
     assert len(LevelCache(cache_dir)) == 4
+
+
+# -- temporary records left by a writer killed mid-write -----------------------
+
+KILLED_WRITER = """
+import os, signal, sys
+from types import SimpleNamespace
+sys.path[:0] = [{repo!r}]
+import mmsverify.cache as cache
+os.replace = lambda *a: os.kill(os.getpid(), signal.SIGKILL)  # killed between the write and the rename
+grid = SimpleNamespace(lower=(0.0,), upper=(1.0,), cells=(4,), t_start=None, t_end=None, steps=None)
+result = SimpleNamespace(grid=grid, level=0, h=0.25, status="ok", errors={{}}, seconds=0.0, n_points=5,
+                         scale={{}}, quantities={{}}, info={{}})
+cache.LevelCache({folder!r}).store("0" * 64, result)
+"""
+
+
+def _age(path, seconds):
+    t = time.time() - seconds
+    os.utime(path, (t, t))
+
+
+def _finished_pid():
+    proc = subprocess.Popen([sys.executable, "-c", "pass"])
+    proc.wait()
+    return proc.pid  # no longer running (reused within this test only by a very unlikely coincidence)
+
+
+@pytest.mark.skipif(os.name == "nt", reason="writers' pids are not asked on Windows")
+def test_a_killed_writers_temporary_record_is_removed_on_open(tmp_path):
+    proc = subprocess.run([sys.executable, "-c", KILLED_WRITER.format(repo=str(REPO), folder=str(tmp_path))],
+                          capture_output=True, text=True, timeout=60)
+    assert proc.returncode == -9, proc.stderr
+    left = list((tmp_path / "levels").glob(".*.tmp"))
+    assert len(left) == 1 and left[0].read_text().startswith("{")  # the whole record, never renamed
+    LevelCache(tmp_path)
+    assert left[0].exists()  # too fresh: a writer on another machine sharing the folder could own it
+    _age(left[0], 2 * 60)
+    cache = LevelCache(tmp_path)
+    assert not left[0].exists() and len(cache) == 0
+
+
+@pytest.mark.skipif(os.name == "nt", reason="writers' pids are not asked on Windows")
+def test_temporaries_of_running_writers_are_kept(tmp_path):
+    levels = tmp_path / "levels"
+    levels.mkdir()
+    writer = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(60)"])
+    try:
+        key = "a" * 64
+        running = levels / f".{key}.{writer.pid}.1.tmp"  # another process, still writing
+        mine = levels / f".{key}.{os.getpid()}.2.tmp"  # this process (another thread may be writing)
+        dead = levels / f".{key}.{_finished_pid()}.3.tmp"
+        ancient = levels / f".{key}.{writer.pid}.4.tmp"  # running writer, but no write takes an hour
+        foreign = levels / ".editor-swap.tmp"  # not a name the cache makes: only the age rule applies
+        record = levels / f"{key}.json"
+        for path in (running, mine, dead, ancient, foreign, record):
+            path.write_text("{}")
+            _age(path, 10 * 60)
+        _age(ancient, 2 * 3600)
+        LevelCache(tmp_path)
+        assert running.exists() and mine.exists() and foreign.exists() and record.exists()
+        assert not dead.exists() and not ancient.exists()
+        _age(foreign, 2 * 3600)
+        LevelCache(tmp_path)
+        assert not foreign.exists() and running.exists() and record.exists()
+    finally:
+        writer.kill()
+        writer.wait()
