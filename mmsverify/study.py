@@ -12,6 +12,7 @@ levels support.
 """
 
 from dataclasses import dataclass, field
+import math
 import time
 import traceback
 
@@ -56,7 +57,21 @@ class LevelResult:
 
 @dataclass(frozen=True)
 class StudyResult:
-    """A finished study: levels, orders and verdicts."""
+    """A finished study: levels, orders and verdicts.
+
+    Besides the verdicts, two facts that change how a study should be read
+    are kept as data and told as :attr:`notes`:
+
+    ``missing_quantities``
+        Quantity name to the successful levels whose solution did not
+        report it, for quantities declared under ``[quantities]``.
+    ``order_conflicts``
+        One dict per axis where the solver's stated order replaced a
+        different ``[order]`` value of the problem: ``axis`` (``"space"``
+        or ``"time"``), ``solver`` and ``problem`` (the two orders) and
+        ``used_for`` (``"verdicts"`` when it is the judged order,
+        ``"grids"`` when it only shaped the time steps of the plan).
+    """
 
     problem: str
     solver: str
@@ -68,6 +83,13 @@ class StudyResult:
     problem_hash: str = ""
     source: str = ""
     order_source: str = "problem"
+    missing_quantities: dict = field(default_factory=dict)
+    order_conflicts: tuple = ()
+
+    @property
+    def notes(self):
+        """One-line remarks on how the study was read (not failures); empty when there are none."""
+        return _quantity_notes(self) + _order_notes(self)
 
     @property
     def orders_confirmed(self):
@@ -130,6 +152,9 @@ class StudyResult:
                 "n_points": lv.n_points, "errors": lv.errors, "quantities": lv.quantities, "info": lv.info,
             } for lv in self.levels],
             "order_source": self.order_source,
+            "missing_quantities": {q: list(lv) for q, lv in self.missing_quantities.items()},
+            "order_conflicts": [dict(c) for c in self.order_conflicts],
+            "notes": list(self.notes),
             "quantity_orders": {q: [None if not np.isfinite(p) else float(p) for p in self.quantity_orders(q)]
                                 for q in self.quantities},
             "orders": {f: {n: [None if not np.isfinite(p) else float(p) for p in self.orders(f, n)]
@@ -142,6 +167,74 @@ class StudyResult:
     def __str__(self):
         from .report.text import format_study
         return format_study(self)
+
+
+def _levels_text(levels):
+    levels = list(levels)
+    return f"level{'s' if len(levels) > 1 else ''} {', '.join(str(k) for k in levels)}"
+
+
+def _quantity_notes(result):
+    """Declared quantities the solver left out: one line for those never reported, one per patchy one."""
+    ok = [lv.level for lv in result.levels if lv.ok]
+    never = [q for q, lacking in result.missing_quantities.items() if set(ok) <= set(lacking)]
+    notes = []
+    if never:
+        notes.append(f"declared in the problem file but not reported by the solver: {', '.join(never)} "
+                     f"(a solver reports {'them' if len(never) > 1 else 'it'} in Solution.quantities)")
+    for q, lacking in result.missing_quantities.items():
+        if q not in never:
+            had = [k for k in ok if k not in lacking]
+            notes.append(f"the solver reported quantity {q} on {_levels_text(had)} but not on "
+                         f"{_levels_text(lacking)}; its order uses only the levels that reported it")
+    return tuple(notes)
+
+
+def _order_notes(result):
+    """One line per axis where the solver's stated order replaced a different [order] value."""
+    notes = []
+    for c in result.order_conflicts:
+        which = "order" if c["axis"] == "space" else "time order"
+        use = ("judged against the solver's" if c["used_for"] == "verdicts"
+               else "the time steps were planned with the solver's")
+        notes.append(f"the solver states {which} {c['solver']:g}; the problem file's [order] {c['axis']} = "
+                     f"{c['problem']:g}; {use}")
+    return tuple(notes)
+
+
+def _missing_quantities(problem, results):
+    """Declared quantity to the successful levels that did not report it (only those lacking on some)."""
+    ok = [r for r in results if r.ok]
+    missing = {}
+    for q in problem.names("quantities"):
+        lacking = tuple(r.level for r in ok if q not in r.quantities)
+        if lacking:
+            missing[q] = lacking
+    return missing
+
+
+def _order_conflicts(problem, solver, mode, *, caller, planned, base_steps):
+    """Axes where the solver's stated order replaced a different [order] value, and what it was used for.
+
+    The judged axis counts unless the caller gave the formal order; the
+    other axis only where it shaped the plan (the time steps of a
+    transient study planned in ``combined`` mode, or in ``space`` mode with
+    the frozen steps left to their default).
+    """
+    shaped_plan = planned and problem.transient and (mode == "combined" or (mode == "space" and base_steps is None))
+    conflicts = []
+    for axis, attr, filed in (("space", "formal_order", problem.space_order),
+                              ("time", "time_order", problem.time_order)):
+        stated = _stated(solver, attr)
+        if stated is None or filed is None or (axis == "time" and not problem.transient):
+            continue
+        if math.isclose(stated, float(filed), rel_tol=1e-12):
+            continue
+        judged = (axis == "time") == (mode == "time")
+        use = "verdicts" if judged and not caller else "grids" if shaped_plan else None
+        if use:
+            conflicts.append({"axis": axis, "solver": stated, "problem": float(filed), "used_for": use})
+    return tuple(conflicts)
 
 
 def _verdicts(problem, results, formal, tol, norms=NORMS):
@@ -161,6 +254,15 @@ def _verdicts(problem, results, formal, tol, norms=NORMS):
     return tuple(verdicts)
 
 
+def _stated(solver, name):
+    """The order a solver states as attribute ``name``, as a float, or None."""
+    try:
+        value = getattr(solver, name, None)
+    except Exception:  # a property that cannot answer for this solver
+        return None
+    return float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else None
+
+
 def design_orders(problem, solver):
     """Formal (space, time) orders and where they come from.
 
@@ -168,14 +270,7 @@ def design_orders(problem, solver):
     judged against what it states; otherwise the problem's ``[order]``
     table applies.
     """
-    def stated(name):
-        try:
-            value = getattr(solver, name, None)
-        except Exception:  # a property that cannot answer for this solver
-            return None
-        return float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else None
-
-    space, time_ = stated("formal_order"), stated("time_order")
+    space, time_ = _stated(solver, "formal_order"), _stated(solver, "time_order")
     if space is None and time_ is None:
         return problem.space_order, problem.time_order, "problem"
     return (space if space is not None else problem.space_order,
@@ -299,7 +394,10 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
         Override the tolerance and the formal order. Without them the
         problem's ``[order]`` values apply, unless the solver states its own
         orders (attributes ``formal_order``, ``time_order``; see
-        :func:`design_orders`).
+        :func:`design_orders`). Where a stated order differs from the
+        problem's ``[order]``, the result says so in its ``notes`` (data in
+        ``order_conflicts``); so it does for declared quantities the solver
+        did not report (``missing_quantities``).
     executor : concurrent.futures.Executor or dask.distributed.Client, optional
         Run levels through it (the solver must then be picklable).
     options : dict, optional
@@ -332,6 +430,7 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     solve = resolve_solver(solver)
     mms = derive(problem)
     p_space, p_time, order_source = design_orders(problem, solve)
+    planned = grids is None
     if grids is None:
         grids = plan_grids(problem, levels, base_cells, ratio, mode=mode, base_steps=base_steps,
                            orders=(p_space, p_time))
@@ -359,5 +458,8 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)
     verdicts = _verdicts(problem, results, formal, tol, norms)
+    conflicts = _order_conflicts(problem, solve, mode, caller=formal_order is not None, planned=planned,
+                                 base_steps=base_steps)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
-                       problem.content_hash(), problem.source, order_source)
+                       problem.content_hash(), problem.source, order_source,
+                       _missing_quantities(problem, results), conflicts)

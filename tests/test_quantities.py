@@ -77,3 +77,54 @@ def test_undeclared_quantity_fails_the_level_with_a_reason():
         return Solution(sol.values, sol.points, sol.weights, quantities={"drag": 1.0})
     r = run_study("plate-poisson", solver, levels=2)
     assert all("declare them under [quantities]" in lv.message for lv in r.levels)
+
+
+_NOT_REPORTED = ("declared in the problem file but not reported by the solver: deflection, edge_slope "
+                 "(a solver reports them in Solution.quantities)")
+
+
+def test_declared_quantities_the_solver_never_reports_are_one_note_not_a_failure(tmp_path):
+    # common practice: a functional left out is a gap in the evidence, not a wrong order
+    from mmsverify.report.files import read_json, study_to_data, write_json
+    r = run_study("plate-poisson", "poisson2d", levels=3)
+    assert r.passed and r.quantities == ()
+    assert r.missing_quantities == {"deflection": (0, 1, 2), "edge_slope": (0, 1, 2)}
+    lines = str(r).splitlines()
+    assert [ln for ln in lines if "quantit" in ln] == ["  note: " + _NOT_REPORTED]
+    assert study_to_data(r)["notes"] == [_NOT_REPORTED]
+    assert study_to_data(r)["missing_quantities"] == {"deflection": [0, 1, 2], "edge_slope": [0, 1, 2]}
+    back = read_json(write_json(r, tmp_path / "s.json"))
+    assert back.missing_quantities == r.missing_quantities and back.notes == r.notes
+
+
+def test_quantities_reported_everywhere_give_no_note():
+    r = run_study("plate-poisson", with_quantities, levels=3)
+    assert r.missing_quantities == {} and r.notes == ()
+    assert "note:" not in str(r) and r.to_dict()["notes"] == []
+
+
+def test_a_quantity_missing_on_some_levels_names_them():
+    def patchy(case):
+        sol = with_quantities(case)
+        q = dict(sol.quantities)
+        if case.grid.level in (1, 3):
+            del q["edge_slope"]
+        return Solution(sol.values, sol.points, sol.weights, quantities=q)
+    r = run_study("plate-poisson", patchy, levels=4)
+    assert r.missing_quantities == {"edge_slope": (1, 3)}
+    note = ("the solver reported quantity edge_slope on levels 0, 2 but not on levels 1, 3; its order uses only "
+            "the levels that reported it")
+    assert r.notes == (note,)
+    assert "  note: " + note in str(r).splitlines()
+    assert r.to_dict()["notes"] == [note] and r.to_dict()["missing_quantities"] == {"edge_slope": [1, 3]}
+    verdict = {v.field: v for v in r.verdicts if v.norm == "value"}
+    assert "on levels 0-2;" in verdict["edge_slope"].reason     # judged on 0 and 2, which the note explains
+
+
+def test_a_failed_level_is_not_a_missing_quantity():
+    def fails_fine(case):
+        if case.grid.level == 2:
+            raise RuntimeError("out of memory")
+        return with_quantities(case)
+    r = run_study("plate-poisson", fails_fine, levels=3)
+    assert r.missing_quantities == {} and r.notes == ()

@@ -149,3 +149,55 @@ def test_only_the_chosen_norms_are_judged():
     assert [v.norm for v in r.verdicts] == ["L2"] and "Linf" in r.levels[0].errors["u"]
     with pytest.raises(AnalysisError, match="among L1, L2, Linf"):
         run_study("plate-poisson", "poisson2d", levels=2, norms=("H1",))
+
+
+def _stating(space=None, time=None):
+    """The 5-point solver (or the heat solver) with stated orders attached as plain attributes."""
+    from solvers_demo.fd.poisson import solve
+
+    def solver(case):
+        return solve(case)
+    if space is not None:
+        solver.formal_order = space
+    if time is not None:
+        solver.time_order = time
+    return solver
+
+
+def test_a_stated_order_that_differs_from_the_file_is_noted():
+    # common practice: a scheme is verified against its own design order; the file's differing
+    # [order] (plate-poisson says space = 2) is named so the reader sees the swap
+    import json
+    r = run_study("plate-poisson", _stating(space=1), levels=2)
+    assert r.order_conflicts == ({"axis": "space", "solver": 1.0, "problem": 2.0, "used_for": "verdicts"},)
+    line = "note: the solver states order 1; the problem file's [order] space = 2; judged against the solver's"
+    assert [ln.strip() for ln in str(r).splitlines()].count(line) == 1
+    d = json.loads(json.dumps(r.to_dict()))
+    assert d["order_conflicts"] == [{"axis": "space", "solver": 1.0, "problem": 2.0, "used_for": "verdicts"}]
+    assert line[len("note: "):] in d["notes"]
+
+
+def test_agreeing_or_overridden_orders_give_no_order_note():
+    for r in (run_study("plate-poisson", _stating(space=2), levels=2),       # agrees with [order] space = 2
+              run_study("plate-poisson", "poisson2d", levels=2),             # bundled, states 2
+              run_study("plate-poisson", _stating(space=1), levels=2, formal_order=2)):  # the caller decides
+        assert r.order_conflicts == ()
+        assert "[order]" not in str(r) and not any("[order]" in n for n in r.to_dict()["notes"])
+
+
+def test_a_stated_time_order_is_noted_where_it_was_used():
+    # Crank-Nicolson is second order in time (Crank & Nicolson 1947, Proc. Camb. Phil. Soc. 43:50);
+    # slab-heat's [order] says time = 1. Combined refinement plans the steps with the stated order,
+    # time refinement judges against it; backward Euler (first order) agrees with the file.
+    r = run_study("slab-heat", "fd-heat-cn", levels=2)
+    assert r.order_conflicts == ({"axis": "time", "solver": 2.0, "problem": 1.0, "used_for": "grids"},)
+    assert "note: the solver states time order 2; the problem file's [order] time = 1; the time steps were " \
+           "planned with the solver's" in str(r)
+    r = run_study("slab-heat", "fd-heat-cn", levels=2, mode="time")
+    assert [c["used_for"] for c in r.order_conflicts] == ["verdicts"]
+    assert r.notes == ("the solver states time order 2; the problem file's [order] time = 1; judged against "
+                       "the solver's",)
+    # given steps in space mode: the stated time order shaped nothing, so nothing to say
+    assert run_study("slab-heat", "fd-heat-cn", levels=2, mode="space", base_steps=64).order_conflicts == ()
+    r = run_study("slab-heat", "fd-heat-euler", levels=2, mode="time")
+    assert r.order_conflicts == () and r.notes == ()
