@@ -87,14 +87,23 @@ def test_json_is_strict_and_round_trips_failed_levels(partial, tmp_path):
     assert study_to_data(back) == json.loads(text)
 
 
+def _with_order_conflict(result):
+    """The study as if its solver had stated first order against the file's second."""
+    return dataclasses.replace(result, formal_order=1.0, order_source="solver", order_conflicts=(
+        {"axis": "space", "solver": 1.0, "problem": 2.0, "used_for": "verdicts"},))
+
+
 def test_json_matches_schema_and_schema_is_documented(good, partial):
     import jsonschema  # in the [test] extra
     schema = json.loads((DOCS / "study.schema.json").read_text())
-    for r in (good, partial):
+    for r in (good, partial, _with_order_conflict(good)):
         jsonschema.validate(study_to_data(r), schema)
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.validate(dict(study_to_data(good), order_conflicts=[{"axis": "space"}]), schema)
     doc = (DOCS / "json-schema.md").read_text()
     names = set(schema["properties"]) | set(schema["properties"]["levels"]["items"]["properties"])
     names |= set(schema["properties"]["verdicts"]["items"]["properties"]) | set(CSV_COLUMNS)
+    names |= set(schema["properties"]["order_conflicts"]["items"]["properties"])
     missing = sorted(n for n in names if f"`{n}`" not in doc)
     assert not missing, f"undocumented keys in docs/json-schema.md: {missing}"
 
@@ -279,3 +288,28 @@ def test_report_command_runs_and_redraws_from_json(tmp_path, capsys):
     assert sorted(p.name for p in (again / f"{stem}_figures").iterdir()) == ["cost.png", "error.png", "order.png"]
     assert main(["report", "plate-poisson", "poisson2d", "--formats", "pdf"]) == 2
     assert "unknown format(s) pdf" in capsys.readouterr().err
+
+
+def test_notes_reach_every_format_and_survive_json(good, tmp_path):
+    # plate-poisson declares two quantities that poisson2d does not report: one note, in every format
+    r = _with_order_conflict(good)
+    assert len(r.notes) == 2
+    back = read_json(write_json(r, tmp_path / "n.json"))
+    assert back.order_conflicts == r.order_conflicts and back.notes == r.notes
+    assert format_study(back) == format_study(r)
+    md, page = markdown_text(r), html_text(r, figures=False)
+    for n in r.notes:
+        assert f"  note: {n}" in format_study(r).splitlines()
+        assert f"- Note: {n}" in md.splitlines()
+        assert f"<li>Note: {n.replace(chr(39), '&#x27;')}</li>" in page
+    # notes come with the verdict, ahead of the evidence
+    assert md.index("- Note:") < md.index("## Evidence") and page.index('id="notes"') < page.index('id="evidence"')
+    with pytest.raises(MMSError, match="order_conflicts entry 0: missing key 'used_for'"):
+        study_from_data(dict(study_to_data(r), order_conflicts=[{"axis": "space", "solver": 1, "problem": 2}]))
+
+
+def test_reports_without_notes_have_no_notes_section(tmp_path):
+    r = run_study("slab-heat", "fd-heat-euler", levels=2)
+    assert r.notes == ()
+    assert "note:" not in format_study(r) and "Note:" not in markdown_text(r)
+    assert 'id="notes"' not in html_text(r, figures=False) and study_to_data(r)["notes"] == []

@@ -9,7 +9,7 @@ import numpy as np
 from ..norms import NORMS
 
 __all__ = ["outcome", "headline", "level_rows", "axis_name", "fmt_num", "fmt_order", "study_facts", "CAPTIONS",
-           "TITLES", "extra_cautions", "OUTCOMES"]
+           "TITLES", "extra_cautions", "OUTCOMES", "notes"]
 
 #: Words of the overall outcome, in the order of severity.
 OUTCOMES = ("pass", "fail", "inconclusive")
@@ -50,6 +50,12 @@ def headline(result):
     if not result.verdicts:
         return "No level succeeded for any field, so no order could be measured."
     return "The observed order could not be judged; see the reasons below."
+
+
+def notes(result):
+    """One-line remarks on how the study was read (declared quantities not reported, an order the solver
+    stated against the problem's); not failures. Empty for results that carry none."""
+    return tuple(getattr(result, "notes", ()))
 
 
 def axis_name(result):

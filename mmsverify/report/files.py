@@ -123,10 +123,16 @@ def study_from_data(data, where="study data"):
         if missing:
             raise MMSError(f"{where}, verdict entry {i}: missing {sorted(missing)}")
         verdicts.append(Verdict(**{k: v[k] for k in known}))
+    conflicts = []
+    for i, c in enumerate(data.get("order_conflicts", [])):
+        w = f"{where}, order_conflicts entry {i}"
+        conflicts.append({"axis": str(_need(c, "axis", w)), "solver": float(_need(c, "solver", w)),
+                          "problem": float(_need(c, "problem", w)), "used_for": str(_need(c, "used_for", w))})
+    missing = {str(q): tuple(int(k) for k in lv) for q, lv in data.get("missing_quantities", {}).items()}
     return StudyResult(_need(data, "problem", where), _need(data, "solver", where), _need(data, "mode", where),
                        float(_need(data, "formal_order", where)), float(_need(data, "tolerance", where)),
                        tuple(levels), tuple(verdicts), data.get("problem_hash", ""), data.get("source", ""),
-                       data.get("order_source", "problem"))
+                       data.get("order_source", "problem"), missing, tuple(conflicts))
 
 
 def write_atomic(path, text):

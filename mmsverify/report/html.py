@@ -12,7 +12,7 @@ from pathlib import Path
 
 from ..norms import NORMS
 from ._common import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
-                      outcome, study_facts)
+                      notes, outcome, study_facts)
 from .text import CAUTION
 
 __all__ = ["html_text", "write_html", "data_uri"]
@@ -85,6 +85,9 @@ def html_text(result, pointwise=None, fmt="svg", figures=True):
                        [[v.field, v.norm, v.status, fmt_order(v.observed), f"{v.formal:g}", v.reason]
                         for v in result.verdicts], numeric=(3, 4),
                        row_class=["" if v.ok else "failed" for v in result.verdicts]))
+    if notes(result):
+        body.append('<ul class="notes" id="notes">' + "".join(f"<li>Note: {escape(n)}</li>" for n in notes(result))
+                    + "</ul>")
     body.append('<h2 id="evidence">Evidence</h2>')
     body.append(_table(["Study", ""], study_facts(result)))
     for f in result.fields:

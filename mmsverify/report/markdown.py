@@ -9,7 +9,7 @@ from pathlib import Path
 
 from ..norms import NORMS
 from ._common import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
-                      outcome, study_facts)
+                      notes, outcome, study_facts)
 from .text import CAUTION
 
 __all__ = ["markdown_text", "write_markdown"]
@@ -47,6 +47,8 @@ def markdown_text(result, images=None):
     out += _table(["Field", "Norm", "Outcome", "Observed order", "Formal order", "Reason"],
                   [[v.field, v.norm, v.status, fmt_order(v.observed), f"{v.formal:g}", v.reason]
                    for v in result.verdicts])
+    if notes(result):
+        out += [""] + [f"- Note: {n}" for n in notes(result)]
     out += ["", "## Evidence", ""]
     out += _table(["Study", ""], study_facts(result))
     for f in result.fields:

@@ -3,7 +3,7 @@
 import numpy as np
 
 from ..norms import NORMS
-from ._common import outcome
+from ._common import notes, outcome
 
 __all__ = ["format_study", "CAUTION"]
 
@@ -32,6 +32,7 @@ def format_study(result):
         mark = "ok " if v.ok else "!! "
         label = f"{v.field} {v.norm}"
         lines.append(f"  {mark}{label:<12} {v.status:<12} {v.reason}")
+    lines += [f"  note: {n}" for n in notes(result)]
     lines.append("")
     for f in result.fields:
         head = f"  field {f}"
