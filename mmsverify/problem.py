@@ -140,6 +140,10 @@ class Problem:
     equation_text : dict of str to str
         The equations of a custom operator as written in the file (empty for
         built-in operators), so their top-level terms can be examined.
+    order_given : tuple of str or None
+        The axes (``"space"``, ``"time"``) whose formal order the file's
+        ``[order]`` states; the others hold defaults. None (a problem made in
+        Python) counts every order as given.
     """
 
     name: str
@@ -164,6 +168,7 @@ class Problem:
     quantities: dict = field(default_factory=dict)
     bounds: dict = field(default_factory=dict)
     equation_text: dict = field(default_factory=dict)
+    order_given: tuple = None
 
     # The tables of sympy expressions. A problem read back from the derivation
     # cache holds them pickled and builds them on first use: a study whose
@@ -486,7 +491,7 @@ class _Reader:
                        t_range=box.get("t"), constants=constants, fields=fields, operator=kind,
                        parameters=parameters, equations=equations, fluxes=fluxes, boundaries=boundaries,
                        space_order=space_order, time_order=time_order, tolerance=tolerance, study=study,
-                       source=self.source)
+                       source=self.source, order_given=tuple(a for a in ("space", "time") if a in order))
 
     def check_size(self, section, key, expr, what):
         """Refuse a derived expression whose tree has more than MAX_EQUATION_NODES nodes."""

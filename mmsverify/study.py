@@ -228,6 +228,8 @@ def _order_conflicts(problem, solver, mode, *, caller, planned, base_steps):
         stated = _stated(solver, attr)
         if stated is None or filed is None or (axis == "time" and not problem.transient):
             continue
+        if problem.order_given is not None and axis not in problem.order_given:
+            continue        # the file states no order on this axis: nothing to disagree with
         if math.isclose(stated, float(filed), rel_tol=1e-12):
             continue
         judged = (axis == "time") == (mode == "time")

@@ -201,3 +201,19 @@ def test_a_stated_time_order_is_noted_where_it_was_used():
     assert run_study("slab-heat", "fd-heat-cn", levels=2, mode="space", base_steps=64).order_conflicts == ()
     r = run_study("slab-heat", "fd-heat-euler", levels=2, mode="time")
     assert r.order_conflicts == () and r.notes == ()
+
+
+def test_no_order_note_when_the_file_states_no_order():
+    # a file without [order] holds defaults, not a claim the solver could contradict
+    from mmsverify.problem import load_problem, problem_from_text
+    text = load_problem("plate-poisson").source
+    with open(text, encoding="utf-8") as fh:
+        body = fh.read()
+    start = body.index("[order]")
+    body = body[:start] + body[body.index("[study]"):]
+    p = problem_from_text(body, source="no-order.toml")
+    assert p.order_given == () and p.space_order == 2
+    r = run_study(p, _stating(space=1), levels=2)
+    assert r.order_conflicts == () and r.notes[:1] != ("the solver states order 1",)
+    assert "[order]" not in str(r)
+    assert load_problem("plate-poisson").order_given == ("space",)
