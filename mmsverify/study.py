@@ -431,7 +431,7 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     problem = get_problem(problem)
     solve = resolve_solver(solver)
     mms = derive(problem)
-    p_space, p_time, order_source = design_orders(problem, solve)
+    p_space, p_time, _ = design_orders(problem, solve)
     planned = grids is None
     if grids is None:
         grids = plan_grids(problem, levels, base_cells, ratio, mode=mode, base_steps=base_steps,
@@ -443,6 +443,9 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
             if g.dim != problem.dim:
                 raise GridError(f"level {g.level} is {g.dim}-D but problem {problem.name} is {problem.dim}-D")
     formal = p_time if mode == "time" else p_space
+    # where the judged order comes from: the solver only if it states that axis
+    order_source = "solver" if _stated(solve, "time_order" if mode == "time" else "formal_order") is not None \
+        else "problem"
     if formal_order is not None:
         formal, order_source = formal_order, "caller"
     formal = float(formal)

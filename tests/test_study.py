@@ -217,3 +217,10 @@ def test_no_order_note_when_the_file_states_no_order():
     assert r.order_conflicts == () and r.notes[:1] != ("the solver states order 1",)
     assert "[order]" not in str(r)
     assert load_problem("plate-poisson").order_given == ("space",)
+
+
+def test_order_source_names_where_the_judged_order_came_from():
+    # a solver stating only its time order: the judged space order is the file's
+    r = run_study("plate-poisson", _stating(time=1), levels=2)
+    assert r.order_source == "problem" and "stated by the solver" not in str(r)
+    assert run_study("plate-poisson", _stating(space=2), levels=2).order_source == "solver"
