@@ -9,7 +9,10 @@ worker processes) that, for each level,
 2. runs a command given as an argument list, never through a shell, with
    placeholders ``{case}``, ``{out}``, ``{dir}``, ``{level}``, ``{problem}``
    and ``{hash}`` filled in; the program runs in its own session, and on a
-   time-out its whole process group is killed;
+   time-out its whole process group is killed. Its output (stdout and
+   stderr) goes to ``output.log`` in the level's folder, at most
+   ``max_log_bytes``: the first and last halves, with a line saying how
+   many bytes between them were left out;
 3. reads the solution the program wrote, as CSV with a header line or as
    NumPy ``.npz``/``.npy`` (see :func:`read_solution`), within a size limit.
 
@@ -32,6 +35,7 @@ import math
 import os
 from pathlib import Path
 import re
+import select
 import shutil
 import signal
 import stat
@@ -238,18 +242,85 @@ def _tail(path, chars):
     return text[-chars:]
 
 
-def _run_program(args, cwd, timeout, env, log_path, tail_chars):
+class _BoundedLog:
+    """Writes a program's output to ``fh``, at most about ``limit`` bytes of it.
+
+    The first half of the limit goes to the file as it arrives; the last
+    half is held in memory and written by :meth:`finish` after a line
+    ``... N bytes omitted ...`` when anything in between was dropped.
+    """
+
+    def __init__(self, fh, limit):
+        self._fh, self._keep_tail = fh, limit // 2
+        self._head_left = limit - self._keep_tail
+        self._tail = bytearray()
+        self.omitted = 0
+
+    def write(self, chunk):
+        if self._head_left > 0:
+            head, chunk = chunk[:self._head_left], chunk[self._head_left:]
+            self._fh.write(head)
+            self._fh.flush()  # readable while the program runs
+            self._head_left -= len(head)
+        if chunk:
+            self._tail += chunk
+            extra = len(self._tail) - self._keep_tail
+            if extra > 0:
+                del self._tail[:extra]
+                self.omitted += extra
+
+    def finish(self):
+        if self.omitted:
+            self._fh.write(f"\n... {self.omitted} bytes omitted (the log keeps the first and last "
+                           f"{self._keep_tail} bytes; raise max_log_bytes for more) ...\n".encode())
+        self._fh.write(self._tail)
+        self._tail = bytearray()
+
+
+def _copy_output(proc, log, deadline):
+    """Copy the program's output into ``log`` until it exits; False if ``deadline`` comes first."""
+    fd = proc.stdout.fileno()
+    while True:
+        left = None if deadline is None else deadline - time.monotonic()
+        if left is not None and left <= 0:
+            return proc.poll() is not None
+        ready, _, _ = select.select([fd], [], [], 0.2 if left is None else min(0.2, left))
+        if ready:
+            chunk = os.read(fd, 1 << 16)
+            if not chunk:  # every writer closed its end: only the exit is left to wait for
+                try:
+                    proc.wait(timeout=left)
+                    return True
+                except subprocess.TimeoutExpired:
+                    return False
+            log.write(chunk)
+        if proc.poll() is not None:  # children left holding the pipe are killed with the group
+            return True
+
+
+def _drain(stream, log, idle=0.1, most=1.0):
+    """Read what is left in the pipe once the program's group is gone (writers that escaped it aside)."""
+    fd, end = stream.fileno(), time.monotonic() + most
+    while time.monotonic() < end and select.select([fd], [], [], idle)[0]:
+        chunk = os.read(fd, 1 << 16)
+        if not chunk:
+            return
+        log.write(chunk)
+
+
+def _run_program(args, cwd, timeout, env, log_path, tail_chars, log_limit):
     start = time.perf_counter()
+    deadline = None if timeout is None else time.monotonic() + timeout
     Path(log_path).unlink(missing_ok=True)  # a link planted under this name is removed, not followed
-    with open(log_path, "wb") as log:
-        proc = subprocess.Popen(args, cwd=cwd, env=env, stdin=subprocess.DEVNULL, stdout=log,
+    with open(log_path, "wb") as fh:
+        log = _BoundedLog(fh, log_limit)
+        proc = subprocess.Popen(args, cwd=cwd, env=env, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
                                 stderr=subprocess.STDOUT, start_new_session=True)
         timed_out = False
         try:
-            proc.wait(timeout=timeout)
-        except subprocess.TimeoutExpired:
-            timed_out = True
-            _kill_group(proc)
+            if not _copy_output(proc, log, deadline):
+                timed_out = True
+                _kill_group(proc)
         except BaseException:  # interrupted (Ctrl-C, a level deadline): leave nothing running
             _kill_group(proc, grace=0.1)
             raise
@@ -258,6 +329,11 @@ def _run_program(args, cwd, timeout, env, log_path, tail_chars):
                 os.killpg(proc.pid, signal.SIGKILL)
             except (ProcessLookupError, PermissionError):
                 pass
+            try:
+                _drain(proc.stdout, log)
+            finally:
+                proc.stdout.close()
+                log.finish()
     return _Run(proc.returncode, timed_out, time.perf_counter() - start, _tail(log_path, tail_chars))
 
 
@@ -442,6 +518,10 @@ class ExternalSolver:
         ``volume`` column (for unstructured meshes; one row per cell).
     max_bytes : int
         Largest solution file read.
+    max_log_bytes : int
+        Most of the program's output kept in ``output.log`` (1 MiB by
+        default): the first and last halves, and a line
+        ``... N bytes omitted ...`` between them.
     tail_chars : int
         How much of the program's output a failure message keeps.
     cwd : path, optional
@@ -463,6 +543,7 @@ class ExternalSolver:
     env: dict = field(default_factory=dict)
     spacing: str = "grid"
     max_bytes: int = 1 << 30
+    max_log_bytes: int = 1 << 20
     tail_chars: int = 2000
     cwd: str = None
     label: str = None
@@ -485,6 +566,8 @@ class ExternalSolver:
             raise SolverError(f"unknown case-file format {self.case_format!r}; use 'toml' or 'json'")
         if self.spacing not in ("grid", "volumes"):
             raise SolverError(f"spacing must be 'grid' or 'volumes', got {self.spacing!r}")
+        if isinstance(self.max_log_bytes, bool) or not isinstance(self.max_log_bytes, int) or self.max_log_bytes < 2:
+            raise SolverError(f"max_log_bytes must be a whole number of bytes, at least 2; got {self.max_log_bytes!r}")
         if self.timeout is not None and not self.timeout > 0:
             raise SolverError(f"the timeout must be a positive number of seconds, got {self.timeout!r}")
 
@@ -552,7 +635,8 @@ class ExternalSolver:
         from .runner import LevelTimeout
         try:
             cwd = level_dir if self.cwd == "{dir}" else self.cwd
-            run = _run_program(args, cwd, limit, env, level_dir / "output.log", self.tail_chars)
+            run = _run_program(args, cwd, limit, env, level_dir / "output.log", self.tail_chars,
+                               self.max_log_bytes)
         except FileNotFoundError:
             raise ProgramFailed("crash", f"{where}: cannot start {args[0]!r}: no such program; give its path "
                                          "(e.g. ./solver) or put it on PATH") from None

@@ -267,3 +267,44 @@ def test_c_demo_from_the_command_line_with_workers_and_cache(c_demo, tmp_path, c
     data = json.loads((tmp_path / "study.json").read_text())
     assert all(lv["message"].startswith("reused from the level cache") for lv in data["levels"])
     assert main(["run", "plate-poisson", "poisson2d", "--external", "x {case}"]) == 2
+
+
+# -- the output log on disk -------------------------------------------------
+FLOOD = """
+case = read_case(sys.argv[1])
+for i in range(int(sys.argv[2])):
+    print(f"line {i:07d} " + "." * 40)
+print("LAST LINE", flush=True)
+g = np.linspace(0, 1, case["cells"][0] + 1)
+X, Y = np.meshgrid(g, g, indexing="ij")
+np.savetxt(case["output"], np.column_stack([X.ravel(), Y.ravel(), exact(X, Y).ravel()]), delimiter=",",
+           header="x,y,u", comments="")
+"""
+
+
+def _flood_log(tmp_path, lines, **options):
+    prog = _program(tmp_path, FLOOD, "flood.py")
+    study = tmp_path / f"study-{lines}"
+    solver = ExternalSolver([PY, str(prog), "{case}", str(lines)], workdir=str(study), **options)
+    assert solver(_case(level=0)).values["u"].size == 9 * 9  # the level itself is unaffected
+    printed = b"".join(f"line {i:07d} {'.' * 40}\n".encode() for i in range(lines)) + b"LAST LINE\n"
+    return next(study.rglob("output.log")).read_bytes(), printed
+
+
+def test_output_log_keeps_head_and_tail_of_a_flood(tmp_path):
+    log, printed = _flood_log(tmp_path, 20_000, max_log_bytes=10_000)  # about 1 MB printed
+    head, marker, tail = log.partition(b"\n... ")
+    assert head == printed[:5000] and tail.endswith(printed[-5000:]) and tail.endswith(b"LAST LINE\n")
+    omitted = len(printed) - 10_000
+    assert marker and tail.startswith(f"{omitted} bytes omitted (".encode())
+    assert len(log) < 10_000 + 200
+    with pytest.raises(SolverError, match="max_log_bytes"):
+        ExternalSolver([PY, "x"], max_log_bytes=0)
+
+
+def test_output_log_is_bounded_by_default_and_whole_when_short(tmp_path):
+    log, printed = _flood_log(tmp_path, 60_000)  # about 3 MB printed
+    assert len(printed) > 3 * (1 << 20) // 2 and len(log) < (1 << 20) + 200
+    assert log.startswith(printed[:1000]) and log.endswith(printed[-1000:]) and b" bytes omitted (" in log
+    log, printed = _flood_log(tmp_path, 100)
+    assert log == printed  # under the limit: byte for byte, no marker
