@@ -403,7 +403,10 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     executor : concurrent.futures.Executor or dask.distributed.Client, optional
         Run levels through it (the solver must then be picklable).
     options : dict, optional
-        Passed to the solver in ``case.options``.
+        Passed to the solver in ``case.options``. A solver whose stated
+        orders depend on its options may define ``configured(options)``,
+        returning the solver as those options configure it; the stated
+        orders are then read from that.
     progress : callable, optional
         Called as ``progress(level_result)`` after each level finishes
         (see :mod:`mmsverify.progress`).
@@ -431,7 +434,16 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     problem = get_problem(problem)
     solve = resolve_solver(solver)
     mms = derive(problem)
-    p_space, p_time, _ = design_orders(problem, solve)
+    stating = solve
+    if options and callable(getattr(solve, "configured", None)):
+        try:
+            stating = solve.configured(dict(options))   # the orders of the scheme the options select
+        except MMSError:
+            raise
+        except Exception as exc:
+            raise SolverError(f"{solver_name(solve)}: options {dict(options)} cannot be applied: "
+                              f"{exc}") from None
+    p_space, p_time, _ = design_orders(problem, stating)
     planned = grids is None
     if grids is None:
         grids = plan_grids(problem, levels, base_cells, ratio, mode=mode, base_steps=base_steps,
@@ -444,7 +456,7 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
                 raise GridError(f"level {g.level} is {g.dim}-D but problem {problem.name} is {problem.dim}-D")
     formal = p_time if mode == "time" else p_space
     # where the judged order comes from: the solver only if it states that axis
-    order_source = "solver" if _stated(solve, "time_order" if mode == "time" else "formal_order") is not None \
+    order_source = "solver" if _stated(stating, "time_order" if mode == "time" else "formal_order") is not None \
         else "problem"
     if formal_order is not None:
         formal, order_source = formal_order, "caller"
@@ -463,7 +475,7 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)
     verdicts = _verdicts(problem, results, formal, tol, norms)
-    conflicts = _order_conflicts(problem, solve, mode, caller=formal_order is not None, planned=planned,
+    conflicts = _order_conflicts(problem, stating, mode, caller=formal_order is not None, planned=planned,
                                  base_steps=base_steps)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
                        problem.content_hash(), problem.source, order_source,

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from mmsverify import Grid, GridError, Solution, refinement, run_study
+from mmsverify import Grid, GridError, Solution, SolverError, refinement, run_study
 from mmsverify.grids import check_refinement
 
 
@@ -224,3 +224,14 @@ def test_order_source_names_where_the_judged_order_came_from():
     r = run_study("plate-poisson", _stating(time=1), levels=2)
     assert r.order_source == "problem" and "stated by the solver" not in str(r)
     assert run_study("plate-poisson", _stating(space=2), levels=2).order_source == "solver"
+
+
+def test_stated_orders_follow_the_options_that_configure_the_solver():
+    # the one-sided Neumann difference is first order (LeVeque 2007, section 2.12, from memory);
+    # chosen through options, the study is judged against order 1, not the default scheme's 2
+    from solvers_demo.fd.diffusion import FDDiffusion
+    r = run_study("plate-poisson", FDDiffusion(), levels=3, options={"neumann": "one-sided"})
+    assert r.formal_order == 1 and r.order_source == "solver"
+    assert [c["solver"] for c in r.order_conflicts] == [1.0]
+    with pytest.raises(SolverError, match="neumann='ghost'"):
+        run_study("plate-poisson", FDDiffusion(), levels=2, options={"neumann": "ghost"})
