@@ -20,6 +20,7 @@ from ._fmt import _fmt, _table
 from .errors import AnalysisError
 
 __all__ = [
+    "ROUNDOFF_LEVEL",
     "classify_convergence",
     "ConvergenceClass",
     "asymptotic_check",
@@ -27,6 +28,17 @@ __all__ = [
 ]
 
 _EPS = np.finfo(float).eps
+
+#: Relative size below which level-to-level changes of a quantity count as
+#: round-off: 1e-10, about 4.5e5 float64 machine epsilons (eps = 2.2e-16).
+#: A quantity taken from a discrete PDE solve carries round-off of about
+#: cond(A) eps, and the condition number of a second-order operator grows
+#: like h^-2, about 1e4 to 1e6 for 100 to 1000 points per direction; 1e-10
+#: covers that with a small margin while staying far below any engineering
+#: discretization uncertainty.  # common practice (condition-number bound of round-off)
+#: An iterative solver stopped at a relative tolerance above this raises
+#: the level (``noise`` arguments).
+ROUNDOFF_LEVEL = 1e-10
 
 
 # --------------------------------------------------------------------------
@@ -48,6 +60,11 @@ _ADVICE = {
     "scattered": (
         "The levels follow no single pattern. Look for levels outside the asymptotic range or for noise "
         "(iteration error, round-off) with asymptotic_check(), or fit all levels with eca_hoekstra()."),
+    "round-off": (
+        "The finest levels agree to within round-off (or the solver's tolerance) of the value: the quantity has "
+        "converged as far as the arithmetic can show, and no order or GCI can be measured from noise. Report "
+        "the finest value with the spread of the finest values as its uncertainty; if that spread matters, "
+        "solve more tightly or in higher precision rather than refining further."),
     "insensitive": (
         "The values do not change between the finest levels (to round-off): the quantity is insensitive "
         "to the grid here, or it was written with too few digits. Output more significant digits; if the "
@@ -62,7 +79,8 @@ class ConvergenceClass:
     Attributes
     ----------
     kind : str
-        ``"monotone"``, ``"oscillatory"``, ``"divergent"``, ``"scattered"`` or ``"insensitive"``.
+        ``"monotone"``, ``"oscillatory"``, ``"divergent"``, ``"scattered"``, ``"insensitive"``
+        or (only when a ``noise`` level is given) ``"round-off"``.
     detail : str
         A finer description, e.g. ``"oscillatory divergence"``.
     ratios : tuple
@@ -91,7 +109,7 @@ class ConvergenceClass:
                 + _table(("levels", "R", "R limit", "type"), rows) + f"\nadvice: {self.advice}")
 
 
-def classify_convergence(phi, h=None, tol=None):
+def classify_convergence(phi, h=None, tol=None, *, noise=None):
     """Classify the convergence of three or more levels (coarse to fine).
 
     For each triplet of consecutive levels ``R = (phi3 - phi2)/(phi2 - phi1)``
@@ -111,13 +129,20 @@ def classify_convergence(phi, h=None, tol=None):
         Grid sizes, coarse to fine.
     tol : float, optional
         Absolute tolerance for a zero difference; default ``64 eps max|phi|``.
+    noise : float, optional
+        Relative noise level of the values (round-off, solver tolerance),
+        e.g. :data:`ROUNDOFF_LEVEL`. When given, differences up to
+        ``noise * max|phi|`` of the finest three levels count as zero, and
+        the kind is ``"round-off"`` when the finest two levels agree to
+        that: the last change is noise, so it shows no convergence type.
 
     Returns
     -------
     ConvergenceClass
-        Overall ``kind``: the common type of all triplets; ``"divergent"``
-        when all diverge; ``"insensitive"`` when the finest levels agree to
-        ``tol`` and nothing diverges; ``"scattered"`` for a mixture.
+        Overall ``kind``: ``"round-off"`` as above; the common type of all
+        triplets; ``"divergent"`` when all diverge; ``"insensitive"`` when the
+        finest levels agree to ``tol`` and nothing diverges; ``"scattered"``
+        for a mixture.
 
     Examples
     --------
@@ -144,6 +169,11 @@ def classify_convergence(phi, h=None, tol=None):
         tol = 64 * _EPS * max(float(np.max(np.abs(phi))), np.finfo(float).tiny)
     d = np.diff(phi)
     zero = np.abs(d) <= tol
+    if noise is not None:
+        if not (math.isfinite(noise) and noise >= 0):
+            raise AnalysisError(f"noise must be a non-negative relative level, got {noise!r}")
+        band = noise * float(np.max(np.abs(phi[-3:])))
+        zero[-2:] |= np.abs(d[-2:]) <= band
     ratios, types = [], []
     for k in range(len(d) - 1):
         lim = float(limits[k])
@@ -169,7 +199,12 @@ def classify_convergence(phi, h=None, tol=None):
                 types.append("oscillatory divergence")
     kinds = set(types)
     diverging = {"monotone divergence", "oscillatory divergence"}
-    if np.all(zero):
+    if noise is not None and zero[-1]:
+        both = bool(zero[-2])
+        kind = "round-off"
+        detail = (f"the finest {'three' if both else 'two'} levels agree within {band:.3g} "
+                  f"({noise:.3g} of max |value|)")
+    elif np.all(zero):
         kind, detail = "insensitive", "all values equal to round-off"
     elif kinds <= {"monotone", "converged", "flat"} and types[-1] in ("converged", "flat"):
         kind, detail = "insensitive", "the finest levels agree to round-off"

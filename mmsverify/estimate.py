@@ -20,7 +20,7 @@ import numpy as np
 
 from ._celik import _as_levels, _sizes
 from ._fmt import _fmt, _kv, _pct, _table
-from .convergence import _far_from_formal, asymptotic_check, classify_convergence
+from .convergence import ROUNDOFF_LEVEL, _far_from_formal, asymptotic_check, classify_convergence
 from .errors import AnalysisError
 from .gci import gci
 from .levels import LevelTable, load_levels, load_profile
@@ -76,8 +76,10 @@ class Assessment:
     h, values : tuple of float
         Levels, coarse to fine.
     formal_order : float or None
-    gci : GCIResult
-        Richardson extrapolation and GCI of the finest two or three grids.
+    gci : GCIResult or None
+        Richardson extrapolation and GCI of the finest two or three grids;
+        None when the values converged to round-off and the finest two are
+        exactly equal (no GCI can be formed).
     convergence : ConvergenceClass or None
         Over all levels (None for two levels).
     least_squares : LeastSquaresUncertainty or None
@@ -86,9 +88,11 @@ class Assessment:
         Settling of the orders and floors (four or more levels).
     method : str or None
         Where the reported numbers come from; None when no estimate can be given.
+        For values converged to round-off it starts with ``"converged to round-off"``.
     extrapolated, order, uncertainty, relative_uncertainty : float or None
         Estimated exact value, observed order, absolute uncertainty of the
         finest value and that uncertainty relative to the finest value.
+        Values converged to round-off have no extrapolated value or order.
     acceptable : bool or None
         Relative uncertainty within :data:`ACCEPTANCE_LEVEL`.
     verdict : str
@@ -141,7 +145,38 @@ def _verdict(rel, method, name):
             f"usual {_pct(level, '.2g')} acceptance level: refine further (plan() predicts the grid needed)")
 
 
-def assess(values, h=None, cells=None, dim=None, volume=None, name="quantity", formal_order=None):
+def _roundoff_assessment(name, hs, phi, formal_order, level, conv):
+    """The finest two values agree to round-off: report the finest value and the spread as its band."""
+    n = len(phi)
+    k = min(n, 3)
+    finest = phi[-k:]
+    spread = float(np.ptp(finest))
+    band = level * float(np.max(np.abs(finest)))
+    u = max(spread, band)  # identical values do not claim a zero uncertainty
+    rel = None if phi[-1] == 0 else u / abs(float(phi[-1]))
+    method = f"converged to round-off: spread of the finest {k} values"
+    warnings = [f"the finest two values differ by {abs(phi[-1] - phi[-2]):.3g}, within {band:.3g} ({level:.3g} of "
+                "the value), i.e. at round-off or solver-tolerance level: no order or GCI can be measured from "
+                f"noise; the finest value is reported with the spread of the finest {k} values as its uncertainty"]
+    if phi[-1] == phi[-2]:
+        warnings.append("the two finest values are exactly equal: if they were written with few digits, write "
+                        "more (the spread then rests on the digits, not on the grid)")
+    try:
+        g = gci(phi[-3:], h=hs[-3:], formal_order=formal_order)
+    except AnalysisError:
+        g = None
+    if rel is None:
+        verdict = f"{name!r}: converged to round-off; the finest value is zero, so only the absolute band {u:.3g} is given"
+        acceptable = None
+    else:
+        verdict = (f"{name!r}: converged to round-off; the finest value {phi[-1]:.10g} carries at most "
+                   f"+/- {u:.3g} ({_pct(rel)}) of discretization and round-off error")
+        acceptable = within_acceptance(rel)
+    return Assessment(name, tuple(hs.tolist()), tuple(phi.tolist()), formal_order, g, conv, None, None, method,
+                      None, None, u, rel, acceptable, verdict, tuple(warnings))
+
+
+def assess(values, h=None, cells=None, dim=None, volume=None, name="quantity", formal_order=None, noise=None):
     """Assess the discretization error of one quantity computed on several grids.
 
     Parameters
@@ -162,10 +197,22 @@ def assess(values, h=None, cells=None, dim=None, volume=None, name="quantity", f
     formal_order : float, optional
         Design order of the scheme: compared with the observed order, and
         assumed for two grids.
+    noise : float, optional
+        Relative noise level of the values beyond round-off, e.g. the
+        relative tolerance of an iterative solver. Changes up to
+        ``max(ROUNDOFF_LEVEL, noise) * max|value|`` count as noise
+        (:data:`~mmsverify.convergence.ROUNDOFF_LEVEL` is 1e-10).
 
     Returns
     -------
     Assessment
+
+    Notes
+    -----
+    When the finest two values agree to that noise level the quantity has
+    converged to round-off: no order or GCI is measured from the noise, and
+    the finest value is reported with the spread (max - min) of the finest
+    three values as its uncertainty, the convergence kind ``"round-off"``.
 
     Raises
     ------
@@ -188,8 +235,14 @@ def assess(values, h=None, cells=None, dim=None, volume=None, name="quantity", f
             raise AnalysisError(
                 f"all {len(phi)} values are equal ({phi[0]:g}): the quantity does not change with the grid at "
                 "the digits given; write more significant digits, or report it as grid-insensitive")
-        g = gci(phi[-3:], h=hs[-3:], formal_order=formal_order)
+        if noise is not None and not (math.isfinite(noise) and noise >= 0):
+            raise AnalysisError(f"noise must be a non-negative relative level (e.g. 1e-8), got {noise!r}")
+        level = max(ROUNDOFF_LEVEL, 0.0 if noise is None else float(noise))
         n = len(phi)
+        if abs(phi[-1] - phi[-2]) <= level * float(np.max(np.abs(phi[-3:]))):
+            conv = classify_convergence(phi, h=hs, noise=level) if n >= 3 else None
+            return _roundoff_assessment(name, hs, phi, formal_order, level, conv)
+        g = gci(phi[-3:], h=hs[-3:], formal_order=formal_order)
         conv = classify_convergence(phi, h=hs) if n >= 3 else None
         ls = eca_hoekstra(hs, phi) if n >= 4 else None
         asym = asymptotic_check(hs, phi, formal_order, kind="solution") if n >= 4 else None
@@ -260,7 +313,7 @@ class AssessmentTable:
         return text
 
 
-def assess_table(table, names=None, formal_order=None):
+def assess_table(table, names=None, formal_order=None, noise=None):
     """Assess several quantities at once.
 
     Parameters
@@ -271,6 +324,8 @@ def assess_table(table, names=None, formal_order=None):
         Quantities to assess (default: all, in file order).
     formal_order : float, optional
         Overrides the file's ``formal_order`` setting.
+    noise : float, optional
+        Relative noise level of the values (solver tolerance), as in :func:`assess`.
 
     Returns
     -------
@@ -294,7 +349,7 @@ def assess_table(table, names=None, formal_order=None):
     recs = []
     for nm in chosen:
         try:
-            recs.append(assess(table.values(nm), h=table.h, name=nm, formal_order=fo))
+            recs.append(assess(table.values(nm), h=table.h, name=nm, formal_order=fo, noise=noise))
         except AnalysisError as exc:
             raise AnalysisError(f"{table.path}: {exc}") from None
     return AssessmentTable(table.path, tuple(recs))

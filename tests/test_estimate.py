@@ -97,16 +97,20 @@ def test_assess_four_levels_oscillatory_falls_back_to_least_squares():
     no_nan(a)
 
 
-def test_assess_detects_a_floor_on_fine_levels():
+def test_assess_reports_a_round_off_floor_on_fine_levels():
+    # closed form: v = 1 + 0.5 h^2, exact value 1; the finest level stops changing
     h = np.array([0.4, 0.2, 0.1, 0.05, 0.025])
     v = 1 + 0.5 * h ** 2
-    v[-1] = v[-2]  # the finest level repeats the previous value
-    with pytest.raises(AnalysisError, match="same value"):
-        assess(v, h=h)
-    v[-1] = v[-2] + 1e-15
-    a = assess(v, h=h, formal_order=2)
-    assert a.asymptotic.floor == "round-off"
-    assert any("round-off" in w for w in a.warnings)
+    for step in (0.0, 1e-15):  # repeats the previous value, or differs by round-off
+        v[-1] = v[-2] + step
+        a = assess(v, h=h, formal_order=2)
+        assert a.convergence.kind == "round-off" and a.order is None and a.extrapolated is None
+        assert (a.gci is None) == (step == 0.0)  # no GCI can be formed from equal finest values
+        # the band is the spread of the finest three values and covers the true error
+        assert a.uncertainty == pytest.approx(np.ptp(v[-3:]), rel=1e-12)
+        assert a.uncertainty >= abs(v[-1] - 1.0)
+        assert any("round-off" in w for w in a.warnings)
+        no_nan(a)
 
 
 @pytest.mark.parametrize("kwargs,fragment", [

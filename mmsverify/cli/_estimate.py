@@ -55,14 +55,14 @@ def _estimate(args):
             print(f"\nwrote {args.plot}")
         return EXIT_OK
     if args.file:
-        result = assess_table(load_levels(args.file, dim=args.dim), formal_order=args.formal_order)
+        result = assess_table(load_levels(args.file, dim=args.dim), formal_order=args.formal_order, noise=args.noise)
         records = list(result)
     elif args.values:
         values = _floats(args.values, "values")
         h, cells = _sizes(args, len(values))
         values, h, cells = _coarse_to_fine(values, h, cells)
         result = assess(values, h=h, cells=cells, dim=args.dim, volume=args.volume, name=args.name,
-                        formal_order=args.formal_order)
+                        formal_order=args.formal_order, noise=args.noise)
         records = [result]
     else:
         raise AnalysisError("give a level file, --values with --h or --cells, or --profile with three files")
@@ -70,7 +70,7 @@ def _estimate(args):
     if args.details:
         for r in records:
             print()
-            print(r.gci)
+            print(r.gci if r.gci is not None else f"{r.name}: no GCI table (the finest two values are equal)")
     if args.json:
         Path(args.json).write_text(json.dumps([_record(r) for r in records], indent=2))
         print(f"\nwrote {args.json}")
@@ -97,6 +97,9 @@ def register(sub):
     p.add_argument("--volume", type=float, help="domain volume V (default 1)")
     p.add_argument("--name", default="quantity", help="name of the quantity given with --values")
     p.add_argument("--formal-order", type=float, help="order the scheme is designed for (flags far-off orders)")
+    p.add_argument("--noise", type=float, metavar="REL",
+                   help="relative noise of the values beyond round-off, e.g. an iterative solver's tolerance; "
+                        "changes below max(1e-10, REL) x |value| count as converged to round-off")
     p.add_argument("--profile", nargs="+", metavar="CSV",
                    help="three profile files, coarse, medium, fine (sizes in the same order)")
     p.add_argument("--column", help="quantity column of the profile files")
