@@ -14,7 +14,8 @@ directory:
 * Writes go to a temporary file that is then renamed over the entry, so a
   reader never sees half a file, also with several processes at once.
 * At most ``MAX_ENTRIES`` entries are kept; a write that finds more
-  removes the least recently written ones.
+  removes the least recently written ones, and temporaries over an hour
+  old (left by a writer killed between writing and renaming).
 * An entry that cannot be read (truncated, corrupt, from another version)
   is ignored, removed and rebuilt by the caller. An entry is only loaded
   when the current user owns it and nobody else can write it, since
@@ -28,6 +29,7 @@ from pathlib import Path
 import pickle
 import sys
 import tempfile
+import time
 
 __all__ = ["cache_dir", "fingerprint", "make_key", "load", "store", "clear"]
 
@@ -36,6 +38,8 @@ _OFF = ("", "0", "off", "no", "false", "none")
 _SOURCES = ("problem.py", "operators.py", "expr.py", "derive.py", "_evaluate.py", "_diskcache.py")
 # Entries kept; older ones (by modification time) are removed when a write finds more.
 MAX_ENTRIES = 256
+# Age after which a temporary file is taken to be a killed writer's leftover.
+STALE_SECONDS = 3600
 
 
 def cache_dir():
@@ -134,6 +138,13 @@ def store(kind, key, obj):
 
 
 def _prune(root):
+    try:
+        now = time.time()
+        for tmp in root.glob(".*.tmp"):        # a writer killed before its rename; live ones are seconds old
+            if now - tmp.stat().st_mtime > STALE_SECONDS:
+                tmp.unlink()
+    except OSError:
+        pass
     try:
         entries = list(root.glob("*.pkl"))
         if len(entries) <= MAX_ENTRIES:

@@ -382,6 +382,21 @@ def test_entries_of_other_users_or_writable_by_others_are_ignored(private_cache)
     assert _diskcache.load("problem", key) is None
 
 
+def test_stale_temporaries_are_removed_when_an_entry_is_written(private_cache):
+    # a writer killed between writing and renaming leaves .<kind>-*.tmp; fresh ones may be live writers
+    import os
+    import time
+    private_cache.mkdir(parents=True, exist_ok=True)
+    old, fresh = private_cache / ".problem-old.tmp", private_cache / ".problem-fresh.tmp"
+    for f in (old, fresh):
+        f.write_bytes(b"half a pickle")
+    hour_ago = time.time() - _diskcache.STALE_SECONDS - 60
+    os.utime(old, (hour_ago, hour_ago))
+    assert _diskcache.store("problem", "k" * 40, {"x": 1})
+    assert not old.exists() and fresh.exists()
+    assert _diskcache.load("problem", "k" * 40) == {"x": 1}
+
+
 def test_key_depends_on_every_part():
     assert _diskcache.make_key("problem", "a") != _diskcache.make_key("problem", "b")
     assert _diskcache.make_key("ab", "c") != _diskcache.make_key("a", "bc")
