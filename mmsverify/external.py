@@ -86,7 +86,7 @@ def _case_data(case, output, output_format, params):
     data = {
         "format": CASE_FORMAT_VERSION, "problem": problem.name, "problem_hash": problem.content_hash(),
         "level": grid.level, "dim": grid.dim, "coordinates": [str(c) for c in problem.coords],
-        "fields": list(problem.fields), "cells": [int(n) for n in grid.cells],
+        "fields": list(problem.field_names), "cells": [int(n) for n in grid.cells],
         "lower": [float(v) for v in grid.lower], "upper": [float(v) for v in grid.upper],
         "spacing": [float(v) for v in grid.spacing], "h": float(grid.h),
         "output": str(output), "output_format": output_format,
@@ -94,7 +94,7 @@ def _case_data(case, output, output_format, params):
     if grid.transient:
         data.update(t_start=float(grid.t_start), t_end=float(grid.t_end), steps=int(grid.steps),
                     dt=float(grid.dt))
-    data["boundary"] = {f: [problem.boundaries[(f, s)] for s in SIDES[:2 * grid.dim]] for f in problem.fields}
+    data["boundary"] = {f: [problem.boundaries[(f, s)] for s in SIDES[:2 * grid.dim]] for f in problem.field_names}
     data["param"] = dict(params or {})
     return data
 
@@ -432,10 +432,10 @@ def read_solution(path, problem, fmt=None, *, max_bytes=1 << 30):
     missing = [c for c in coords if c not in cols]
     if missing:
         raise ProgramFailed("bad output", f"{path}: no column for coordinate(s) {missing}; found {sorted(cols)}")
-    fields = [f for f in problem.fields if f in cols]
+    fields = [f for f in problem.field_names if f in cols]
     if not fields:
         raise ProgramFailed("bad output", f"{path}: no column for any field of {problem.name} "
-                                          f"({', '.join(problem.fields)}); found {sorted(cols)}")
+                                          f"({', '.join(problem.field_names)}); found {sorted(cols)}")
     arrays = {}
     for name in coords + fields + (["volume"] if "volume" in cols else []):
         kind = np.asarray(cols[name]).dtype.kind
