@@ -48,7 +48,7 @@ ROUNDOFF_LEVEL = 1e-10
 _ADVICE = {
     "monotone": (
         "Richardson extrapolation and the GCI apply. Check that the observed order is near the formal "
-        "order and that the asymptotic ratio GCI32/(r21^p GCI21) is near 1."),
+        "order, and with four or more levels that the orders have settled (asymptotic_check)."),
     "oscillatory": (
         "No GCI is valid for oscillatory convergence. Refine further until the sign pattern settles, "
         "report the spread of the values as a band, or fit four or more levels with eca_hoekstra()."),
