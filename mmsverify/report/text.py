@@ -1,5 +1,7 @@
 """Plain-text tables of a study for the terminal."""
 
+import textwrap
+
 import numpy as np
 
 from ..norms import NORMS
@@ -15,8 +17,21 @@ def _num(x, fmt="{:.3e}"):
     return "-" if x is None or not np.isfinite(x) else fmt.format(x)
 
 
-def format_study(result):
-    """The study as a text table: verdict first, then levels, errors and orders."""
+WIDTH = 100
+
+
+def _wrapped(text, first="  ", rest="    "):
+    """A long message as lines of at most WIDTH characters (words are never split)."""
+    return textwrap.wrap(text, WIDTH, initial_indent=first, subsequent_indent=rest, break_long_words=False,
+                         break_on_hyphens=False) or [first.rstrip()]
+
+
+def format_study(result, caution=True):
+    """The study as a text table: verdict first, then levels, errors and orders.
+
+    ``caution=False`` leaves out the closing caution (for a caller that
+    prints several studies and the caution once).
+    """
     lines = []
     overall = outcome(result).upper()
     failed = [str(lv.level) for lv in result.failed_levels]
@@ -37,7 +52,8 @@ def format_study(result):
     for f in result.fields:
         head = f"  field {f}"
         lines.append(head)
-        lines.append(f"  level  grid                    {size:<10} " + "".join(f"{n + ' error':<13}{'order':<8}" for n in NORMS))
+        lines.append((f"  level  grid                    {size:<10} " +
+                      "".join(f"{n + ' error':<13}{'order':<8}" for n in NORMS)).rstrip())
         ok = [lv for lv in result.levels if lv.ok and f in lv.errors]
         orders = {n: result.orders(f, n) for n in NORMS}
         for lv in result.levels:
@@ -64,5 +80,6 @@ def format_study(result):
         lines.append("")
     for lv in result.failed_levels:
         lines.append(f"  level {lv.level} failed: {lv.message}")
-    lines.append("  " + CAUTION)
+    if caution:
+        lines += _wrapped(CAUTION, "  ", "  ")
     return "\n".join(lines)
