@@ -48,7 +48,8 @@ def _estimate(args):
             raise AnalysisError("--profile takes three files, coarse, medium and fine")
         pts, vals = zip(*(load_profile(p, column=args.column) for p in args.profile))
         h, cells = _sizes(args, 3)
-        result = gci_profile(list(pts), list(vals), h=h, cells=cells, dim=args.dim, volume=args.volume)
+        result = gci_profile(list(pts), list(vals), h=h, cells=cells, dim=args.dim, volume=args.volume,
+                             interpolation=args.interpolation)
         print(result)
         if args.plot:
             plot_profile(result, args.plot, label=args.column or "value")
@@ -103,6 +104,8 @@ def register(sub):
     p.add_argument("--profile", nargs="+", metavar="CSV",
                    help="three profile files, coarse, medium, fine (sizes in the same order)")
     p.add_argument("--column", help="quantity column of the profile files")
+    p.add_argument("--interpolation", choices=("cubic", "linear"), default="cubic",
+                   help="how coarse profiles reach the fine points (default cubic; linear for profiles with jumps)")
     p.add_argument("--plot", metavar="PNG", help="profile plot with GCI error bars")
     p.add_argument("--details", action="store_true", help="also print the full GCI table of each quantity")
     p.add_argument("--json", metavar="PATH", help="write the estimates as JSON")
