@@ -34,6 +34,10 @@ def _as_levels(h, y, name="e", need=2):
         raise AnalysisError(f"h and {name} must be finite numbers (got h={h.tolist()}, {name}={y.tolist()})")
     if np.any(h <= 0):
         raise AnalysisError(f"grid sizes must be positive, got h={h.tolist()}")
+    if len(h) > 1 and np.all(np.diff(h) > 0):
+        raise AnalysisError(
+            f"grid sizes must strictly decrease from coarse to fine, but they grow from first to last "
+            f"(h={h.tolist()}): the levels are listed fine to coarse; reverse {name} and the sizes together")
     bad = np.nonzero(np.diff(h) >= 0)[0]
     if bad.size:
         k = int(bad[0])

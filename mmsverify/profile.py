@@ -246,7 +246,12 @@ def gci_profile(points, values, h=None, cells=None, dim=None, volume=None, safet
     if len({p.shape[1] for p in pts}) != 1:
         raise AnalysisError("the three grids' points have different numbers of coordinates")
     hs = _sizes(h, cells, dim, volume, 3)
-    hs, _ = _as_levels(hs, [0.0, 0.0, 0.0], "values", need=3)
+    hs, _ = _as_levels(hs, [0.0, 0.0, 0.0], "points, values", need=3)
+    counts = [p.shape[0] for p in pts]
+    if counts[0] > counts[1] > counts[2]:
+        raise AnalysisError(f"the grids have {counts[0]}, {counts[1]} and {counts[2]} points from first to last while "
+                            "the sizes run coarse to fine: the point sets seem listed fine to coarse; pass points, "
+                            "values and sizes all coarse to fine")
     r32, r21 = float(hs[0] / hs[1]), float(hs[1] / hs[2])
     fine = pts[2]
     phi1 = vals[2]

@@ -6,6 +6,11 @@ Three forms:
 * ``mmsverify estimate --values 6.063,5.972,5.863 --cells 18000,8000,4500 --dim 2``;
 * ``mmsverify estimate --profile coarse.csv medium.csv fine.csv --cells ... --dim 2``
   for a line or field sampled on three grids (interpolated to the fine points).
+
+Levels may come fine to coarse as well (Celik et al. 2008 number them so):
+the order is read from the sizes, the levels are reordered, and a note says
+so. Profile files pair with the sizes by position; when their point counts
+contradict the order the sizes give, the command refuses and names the files.
 """
 
 import json
@@ -34,12 +39,50 @@ def _sizes(args, n):
     return h, cells
 
 
-def _coarse_to_fine(values, h, cells):
-    """Accept levels listed fine to coarse too (as Celik et al. 2008 number them)."""
+def _fine_first(h, cells):
+    """True if the sizes run fine to coarse (h increasing, or cell counts decreasing) from first to last."""
     sizes = h if h else [-c for c in cells]
-    if len(sizes) > 1 and sizes[0] < sizes[-1]:
-        values, h, cells = values[::-1], h[::-1] if h else None, cells[::-1] if cells else None
-    return values, h, cells
+    return len(sizes) > 1 and all(a < b for a, b in zip(sizes, sizes[1:]))
+
+
+def _coarse_to_fine(values, h, cells):
+    """Accept levels listed fine to coarse too (as Celik et al. 2008 number them); a note says so."""
+    if not _fine_first(h, cells):
+        return values, h, cells, None
+    note = (f"note: the sizes (--{'h' if h else 'cells'}) run fine to coarse; the values were taken in the same "
+            "order and are listed coarse to fine below")
+    return values[::-1], h[::-1] if h else None, cells[::-1] if cells else None, note
+
+
+def _profile_order(files, pts, vals, h, cells):
+    """Put the three profile files coarse to fine, checking the sizes against the files' point counts.
+
+    The sizes pair with the files by position. Sizes that run fine to coarse
+    reorder both, with a note. Point counts that fall strictly while the
+    sizes say coarse to fine (or rise while they say fine to coarse) mean the
+    files and sizes disagree, which is refused, naming the files.
+    """
+    counts = [len(v) for v in vals]
+    rising = counts[0] < counts[1] < counts[2]
+    falling = counts[0] > counts[1] > counts[2]
+    listing = ", ".join(f"{f} ({n} points)" for f, n in zip(files, counts))
+    size_opt = "--h" if h else "--cells"
+    if _fine_first(h, cells):
+        if rising:
+            raise AnalysisError(
+                f"{size_opt} runs fine to coarse but the profile files grow in points: {listing}. Give the files "
+                f"and {size_opt} in the same order, coarse, medium, fine")
+        note = (f"note: {size_opt} runs fine to coarse, so the files were taken as fine, medium, coarse: "
+                f"{listing}; they are used coarse to fine")
+        rev = slice(None, None, -1)
+        return (list(files)[rev], list(pts)[rev], list(vals)[rev], h[rev] if h else None,
+                cells[rev] if cells else None, note)
+    if falling:
+        raise AnalysisError(
+            f"the profile files shrink in points from first to last ({listing}) while {size_opt} runs coarse to "
+            f"fine: the files seem listed fine to coarse. List them coarse, medium, fine, in the order of "
+            f"{size_opt}")
+    return list(files), list(pts), list(vals), h, cells, None
 
 
 def _estimate(args):
@@ -48,7 +91,10 @@ def _estimate(args):
             raise AnalysisError("--profile takes three files, coarse, medium and fine")
         pts, vals = zip(*(load_profile(p, column=args.column) for p in args.profile))
         h, cells = _sizes(args, 3)
-        result = gci_profile(list(pts), list(vals), h=h, cells=cells, dim=args.dim, volume=args.volume,
+        _, pts, vals, h, cells, note = _profile_order(args.profile, pts, vals, h, cells)
+        if note:
+            print(note)
+        result = gci_profile(pts, vals, h=h, cells=cells, dim=args.dim, volume=args.volume,
                              interpolation=args.interpolation)
         print(result)
         if args.plot:
@@ -56,12 +102,18 @@ def _estimate(args):
             print(f"\nwrote {args.plot}")
         return EXIT_OK
     if args.file:
-        result = assess_table(load_levels(args.file, dim=args.dim), formal_order=args.formal_order, noise=args.noise)
+        table = load_levels(args.file, dim=args.dim)
+        if table.reversed:
+            print(f"note: {args.file} lists the levels fine to coarse (by its {table.size_column} column); "
+                  "they are used and listed coarse to fine")
+        result = assess_table(table, formal_order=args.formal_order, noise=args.noise)
         records = list(result)
     elif args.values:
         values = _floats(args.values, "values")
         h, cells = _sizes(args, len(values))
-        values, h, cells = _coarse_to_fine(values, h, cells)
+        values, h, cells, note = _coarse_to_fine(values, h, cells)
+        if note:
+            print(note)
         result = assess(values, h=h, cells=cells, dim=args.dim, volume=args.volume, name=args.name,
                         formal_order=args.formal_order, noise=args.noise)
         records = [result]
@@ -102,7 +154,8 @@ def register(sub):
                    help="relative noise of the values beyond round-off, e.g. an iterative solver's tolerance; "
                         "changes below max(1e-10, REL) x |value| count as converged to round-off")
     p.add_argument("--profile", nargs="+", metavar="CSV",
-                   help="three profile files, coarse, medium, fine (sizes in the same order)")
+                   help="three profile files, coarse, medium, fine (sizes in the same order; files and sizes "
+                        "both fine to coarse are reordered with a note)")
     p.add_argument("--column", help="quantity column of the profile files")
     p.add_argument("--interpolation", choices=("cubic", "linear"), default="cubic",
                    help="how coarse profiles reach the fine points (default cubic; linear for profiles with jumps)")
