@@ -39,7 +39,6 @@ __all__ = [
 
 #: Smallest refinement ratio Celik et al. (2008) recommend between grids.
 MIN_RATIO = 1.3  # common practice (Celik et al. 2008 recommend r > 1.3)
-_ASYMPTOTIC_BAND = 0.1  # common practice: asymptotic ratio within about 10 % of 1
 
 
 @dataclass(frozen=True)
@@ -49,12 +48,8 @@ class FormulaValues:
     ``GCIResult.valid`` is False these are not an uncertainty. None where a
     formula cannot be evaluated (no order, zero denominator).
 
-    ``asymptotic_ratio`` here is the published form ``GCI_fine32 / (r21^p
-    GCI_fine21)`` with the relative errors ``e_a32 = |eps32/phi2|`` and
-    ``e_a21 = |eps21/phi1|`` (NASA Glenn verification tutorial); it equals
-    ``phi1/phi2`` for exact power-law data, so it strays from 1 whenever the
-    quantity changes by a large factor between levels. ``GCIResult``
-    reports the absolute form instead."""
+    ``asymptotic_ratio`` is the published ratio ``GCI_fine32 / (r21^p
+    GCI_fine21)`` with relative errors (see ``GCIResult.asymptotic_ratio``)."""
 
     p: object = None
     phi_ext21: object = None
@@ -98,17 +93,17 @@ class GCIResult:
     u_fine21 : float or None
         Absolute uncertainty band of the fine value, ``Fs |eps21| / (r21^p - 1)``.
     asymptotic_ratio : float or None
-        Asymptotic-range check ``U32 / (r21^p U21)`` with the absolute bands
-        ``U = Fs |eps| / (r^p - 1)`` of each pair (Roache 1998: GCI_23 =
-        r^p GCI_12 in the asymptotic range); 1 for ``phi = phi0 + C h^p``
-        however much phi changes between levels. With p the apparent order
-        of the same three grids it is 1 by construction (Eq. 3 of Celik et
-        al. 2008 is this identity), so it raises no warning. Whether the grids are in
-        the asymptotic range of the scheme is judged by comparing the
-        observed order with the formal order (:func:`~mmsverify.estimate.assess`)
-        and by :func:`~mmsverify.convergence.asymptotic_check` on four or more
-        levels. The published ratio with relative errors, which differs by
-        about ``phi1/phi2``, is ``formula.asymptotic_ratio``.
+        The ratio ``GCI_fine32 / (r21^p GCI_fine21)`` often reported as an
+        asymptotic-range check (Roache 1998, GCI_23 = r^p GCI_12; from
+        memory), with the relative GCIs of the two pairs. Reported, never
+        judged: with p the apparent order of the same three grids the
+        absolute bands satisfy ``U32 = r21^p U21`` exactly (Eq. 3 of Celik et
+        al. 2008), so this ratio is ``phi1/phi2`` and says only how much the
+        quantity changed between the two finer grids. Whether the grids are
+        in the asymptotic range is judged by the observed against the formal
+        order (:func:`~mmsverify.estimate.assess`) and by
+        :func:`~mmsverify.convergence.asymptotic_check` on four or more
+        levels.
     safety_factor : float
     iterations : int or None
         Fixed-point iterations for ``p`` (-1: found by root bracketing).
@@ -163,7 +158,7 @@ class GCIResult:
         if n == 3:
             rows += [("GCI_coarse21", pc(self.gci_coarse21)), ("phi_ext32", val(self.phi_ext32, ".8g")),
                      ("e_a32", _pct(self.e_a32)), ("GCI_fine32", pc(self.gci_fine32)),
-                     ("U32 / (r21^p U21), absolute bands", val(self.asymptotic_ratio, ".4g"))]
+                     ("GCI_fine32 / (r21^p GCI_fine21) (= phi1/phi2)", val(self.asymptotic_ratio, ".4g"))]
         head = f"Richardson extrapolation and GCI (Celik et al. 2008), {n} grids: {'VALID' if self.valid else 'NOT VALID'}"
         text = head + "\n" + levels + "\n" + _table(("quantity", "value"), rows)
         if self.warnings:
@@ -277,14 +272,12 @@ def gci(values, h=None, cells=None, dim=None, volume=None, formal_order=None, sa
     e_a32 = _rel(phi2 - phi3, phi2)
     conv = classify_convergence(ph, h=hh)
     p, it = _apparent_order(r21, r32, eps21, eps32)
-    formula, ratio = FormulaValues(), None
+    formula = FormulaValues()
     if p is not None and p > 0:
         ext21, e_ext21, g21, gc21 = _richardson(phi1, phi2, r21, p, fs, e_a21)
         ext32, e_ext32, g32, _ = _richardson(phi2, phi3, r32, p, fs, e_a32)
         formula = FormulaValues(p, ext21, ext32, e_ext21, e_ext32, g21, gc21, g32,
                                 None if (g21 is None or g32 is None or g21 == 0) else g32 / (r21 ** p * g21))
-        # Roache (1998), asymptotic check GCI_23 = r^p GCI_12, with absolute bands  # from memory
-        ratio = (abs(eps32) / (r32 ** p - 1)) / (r21 ** p * abs(eps21) / (r21 ** p - 1))
     if conv.kind == "monotone" and formula.p is not None:
         status = "monotone"
     elif conv.kind in ("oscillatory", "divergent"):
@@ -306,4 +299,4 @@ def gci(values, h=None, cells=None, dim=None, volume=None, formal_order=None, sa
     u = fs * abs(eps21) / (r21 ** f.p - 1) if valid else None
     return GCIResult(tuple(hh), tuple(ph), r21, r32, eps21, eps32, e_a21, e_a32, status, valid, f.p, f.phi_ext21,
                      f.phi_ext32, f.e_ext21, f.e_ext32, f.gci_fine21, f.gci_coarse21, f.gci_fine32, u,
-                     ratio if valid else None, fs, it if valid else None, conv, formula, tuple(warnings))
+                     f.asymptotic_ratio, fs, it if valid else None, conv, formula, tuple(warnings))

@@ -15,7 +15,7 @@ from ._celik import _FS3, _as_levels, _sizes
 from ._fmt import _fmt, _kv, _pct
 from .convergence import _far_from_formal, asymptotic_check
 from .errors import AnalysisError
-from .gci import _ASYMPTOTIC_BAND, gci
+from .gci import gci
 from .order import fit_order
 
 __all__ = ["plan", "Plan"]
@@ -187,8 +187,6 @@ def plan(h, values, times, target, *, kind="error", measure="error", cells=None,
         if g.valid:
             order = g.p
             const = abs(v[-1] - g.phi_ext21) / hs[-1] ** order
-            if g.asymptotic_ratio is not None and abs(g.asymptotic_ratio - 1) > _ASYMPTOTIC_BAND:
-                reasons.append(f"asymptotic ratio GCI32/(r21^p GCI21) = {g.asymptotic_ratio:.3g}, not near 1")
         else:
             reasons.append(f"no valid Richardson extrapolation ({g.status}); no error model")
         if measure == "gci" and g.valid:

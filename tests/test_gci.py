@@ -81,9 +81,7 @@ def test_nasa_glenn_spatial_convergence_example():
     assert printed(100 * res.gci_fine32, "0.3562")  # NASA Glenn tutorial: GCI23 = 0.356244 %
     # NASA Glenn tutorial prints 0.997980 as its asymptotic-range ratio, which is
     # r^p GCI12 / GCI23 with relative errors, the reciprocal of the published-form ratio.
-    assert printed(1.0 / res.formula.asymptotic_ratio, "0.997980")
-    # the absolute form agrees with it to the tutorial's 0.2 % (it lacks the factor phi1/phi2)
-    assert printed(1.0 / res.asymptotic_ratio, "1.000")
+    assert printed(1.0 / res.asymptotic_ratio, "0.997980")
     assert res.safety_factor == 1.25  # NASA Glenn tutorial: Fs = 1.25 for three grids
 
 
@@ -114,10 +112,9 @@ def test_power_law_recovers_order_and_limit_to_round_off(hs, p_true):
     assert res.p == pytest.approx(p_true, abs=1e-10)
     assert res.phi_ext21 == pytest.approx(1.7, abs=1e-12)
     assert res.phi_ext32 == pytest.approx(1.7, abs=1e-12)
-    # exact power law: U32 = r21^p U21 with absolute bands (Roache 1998, asymptotic check)  # from memory
-    assert res.asymptotic_ratio == pytest.approx(1.0, rel=1e-9)
-    # the published relative form is off by phi1/phi2
-    assert res.formula.asymptotic_ratio == pytest.approx(f[-1] / f[-2], rel=1e-9)
+    # exact power law: the absolute bands satisfy U32 = r21^p U21 (Celik et al. 2008, Eq. 3), so the
+    # relative-GCI ratio is phi1/phi2
+    assert res.asymptotic_ratio == pytest.approx(f[-1] / f[-2], rel=1e-9)
 
 
 def test_higher_terms_order_tends_to_leading_order():
