@@ -7,6 +7,12 @@ function that adds its sub-parser and sets ``func``. Exit codes:
 * 1: a verdict failed (observed order off the formal order)
 * 2: bad input (problem file, solver, grid sequence, data)
 * 3: inconclusive (levels failed or errors at round-off; nothing to judge)
+
+Only the chosen command's module is imported: ``main`` hands its arguments
+to :func:`build_parser`, which builds the sub-parser of that command alone
+when the first argument names one (after ``--verbose``/``--quiet``), and
+every sub-parser otherwise (``--help``, no command, an unknown command), so
+the top-level help and argparse's list of valid choices stay complete.
 """
 
 import argparse
@@ -21,6 +27,11 @@ EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_INCONCLUSIVE = 0, 1, 2, 3
 
 # Command modules, in the order `--help` lists them.
 _COMMANDS = ("_demo", "_run", "_derive", "_list", "_split", "_export", "_report", "_baseline", "_estimate", "_audit", "_catalogue")
+# Command names (and aliases) whose module is not `_<name>`; a command missing here and
+# from this rule is still found, by building every sub-parser.
+_MODULE_OF = {"mistakes": "_catalogue"}
+# Top-level options that may come before the command name and take no value.
+_PLAIN_OPTIONS = ("--verbose", "--quiet")
 
 
 def comma_choices(text, allowed, what):
@@ -32,7 +43,31 @@ def comma_choices(text, allowed, what):
     return chosen
 
 
-def build_parser():
+def _command_module(name):
+    """The module in ``_COMMANDS`` that registers command ``name``, or None."""
+    module = _MODULE_OF.get(name, f"_{name}")
+    return module if module in _COMMANDS else None
+
+
+def _chosen_module(argv):
+    """The module of the command ``argv`` names, or None when every sub-parser is needed."""
+    for token in argv:
+        if token not in _PLAIN_OPTIONS:  # the first other token is the command, or needs all
+            return _command_module(token) if isinstance(token, str) else None
+    return None
+
+
+def build_parser(argv=None):
+    """The argument parser; with ``argv``, only the sub-parser of the command it names.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        The arguments the parser will read. When the first of them (after
+        ``--verbose``/``--quiet``) is a command, only that command's module
+        is imported and registered; otherwise, and without ``argv``, every
+        command is. The parser must then be used on these arguments only.
+    """
     parser = argparse.ArgumentParser(
         prog="mmsverify",
         description="Prove a PDE solver converges at its design order with manufactured solutions, "
@@ -40,7 +75,8 @@ def build_parser():
         epilog="Exit codes: 0 confirmed, 1 order not confirmed, 2 bad input, 3 inconclusive.")
     parser.add_argument("--version", action="version", version=f"%(prog)s {__import__('mmsverify').__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name in _COMMANDS:
+    chosen = None if argv is None else _chosen_module(argv)
+    for name in (chosen,) if chosen else _COMMANDS:
         importlib.import_module(f"{__name__}.{name}").register(sub)
     from ..progress import add_verbosity_options
     add_verbosity_options(parser)
@@ -51,7 +87,8 @@ def build_parser():
 
 def main(argv=None):
     """Run the command line; returns the exit code."""
-    parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
+    parser = build_parser(argv)
     args = parser.parse_args(argv)
     if not getattr(args, "func", None):
         parser.print_help()
