@@ -170,12 +170,15 @@ def print_plans(result, target):
 
 
 def print_design_warnings(args):
-    """Warn, ahead of the study, where the manufactured solution cannot catch mistakes."""
-    from ..design import design_warnings
+    """Warn, ahead of the study, where the manufactured solution cannot catch mistakes.
+
+    The warnings of a problem seen before come from the derivation cache.
+    """
+    from .._designcache import cached_design_warnings
     from ..problem import get_problem
     order = getattr(args, "formal_order", None)
     kw = {"time_order": order} if getattr(args, "mode", None) == "time" else {"formal_order": order}
-    for w in design_warnings(get_problem(args.problem), **kw):
+    for w in cached_design_warnings(get_problem(args.problem), **kw):
         print(f"warning: {w}", file=sys.stderr)
 
 

@@ -1,0 +1,153 @@
+"""The design warnings `mmsverify run` prints come from the derivation cache when seen before."""
+
+import argparse
+from pathlib import Path
+
+import pytest
+
+import mmsverify.design as design
+from mmsverify import _diskcache
+from mmsverify._designcache import _keys, cached_design_warnings
+from mmsverify.cli._run import print_design_warnings
+from mmsverify.problem import load_problem, problem_from_text
+
+DATA = Path(__file__).parent / "data"
+
+# A smooth 1-D field between 0.5 and 1.5; only [bounds] differs between the variants below.
+_BOUNDED = """name = "bounded"
+[domain]
+x = [0.0, 1.0]
+[fields]
+u = "1 + 0.5*sin(3*x)"
+[operator]
+kind = "diffusion"
+[bounds]
+u = {min = %s}
+[order]
+space = 2
+"""
+
+
+@pytest.fixture
+def cache(tmp_path, monkeypatch):
+    monkeypatch.setenv("MMSVERIFY_CACHE", str(tmp_path / "cache"))
+    return tmp_path / "cache"
+
+
+@pytest.fixture
+def audits(monkeypatch):
+    """Counts the runs of the design checks (design.audit)."""
+    calls = []
+    real = design.audit
+
+    def counted(*a, **k):
+        calls.append(a)
+        return real(*a, **k)
+
+    monkeypatch.setattr(design, "audit", counted)
+    return calls
+
+
+def design_warnings_uncached(problem, **kw):
+    return design.design_warnings(problem, **kw)
+
+
+def _refuse(*a, **k):
+    raise AssertionError("the design checks ran again")
+
+
+def test_second_call_reads_the_cache_and_gives_the_same_warnings(cache, audits, monkeypatch):
+    p = load_problem(DATA / "quadratic-poisson.toml")
+    first = cached_design_warnings(p)
+    assert first == design_warnings_uncached(p) and len(first) == 1
+    # the five-point Laplacian's error (h**2/12)(u_xxxx + u_yyyy) vanishes for a quadratic
+    # LeVeque 2007, Finite Difference Methods for ODEs and PDEs, sec. 3.2 (from memory)
+    assert first[0].startswith("design: every leading truncation-error derivative vanishes")
+    assert len(audits) == 2                                   # the cached call and the reference
+    monkeypatch.setattr(design, "audit", _refuse)
+    assert cached_design_warnings(p) == first
+    assert any(f.name.startswith("design-") for f in cache.iterdir())
+
+
+def test_warm_problem_is_keyed_without_building_its_sympy_tables(cache, audits, monkeypatch):
+    cold = load_problem("plate-poisson")
+    expected = cached_design_warnings(cold)
+    assert len(audits) == 1
+    warm = load_problem("plate-poisson")        # read back from the derivation cache, tables packed
+    assert "_symbolic" in warm.__dict__
+    monkeypatch.setattr(design, "audit", _refuse)
+    assert cached_design_warnings(warm) == expected
+    assert "_symbolic" in warm.__dict__         # the hit built no expression
+
+
+def test_warm_problem_falls_back_to_the_printed_bounds(cache, monkeypatch):
+    cold = load_problem(DATA / "narrow-dip.toml")
+    expected = cached_design_warnings(cold)
+    packed, printed = _keys(cold, None, None)
+    (cache / f"design-{packed}.pkl").unlink()   # as if pickling had given other bytes
+    monkeypatch.setattr(design, "audit", _refuse)
+    warm = load_problem(DATA / "narrow-dip.toml")
+    assert cached_design_warnings(warm) == expected and len(expected) == 1
+    assert (cache / f"design-{packed}.pkl").exists()   # kept under the packed key again
+    assert _diskcache.load("design", printed) == expected
+
+
+def test_changed_bounds_give_fresh_warnings(cache, audits):
+    loose, tight = problem_from_text(_BOUNDED % 0), problem_from_text(_BOUNDED % 1.2)
+    assert loose.content_hash() == tight.content_hash()      # bounds are not part of the content hash
+    assert set(_keys(loose, None, None)).isdisjoint(_keys(tight, None, None))
+    assert cached_design_warnings(loose) == []
+    warnings = cached_design_warnings(tight)
+    assert warnings == design_warnings_uncached(tight)
+    # 1 + 0.5 sin(3x) on [0, 1] has its least value 1 at x = 0 (sin >= 0 on [0, 3])  # common practice
+    assert len(warnings) == 1 and "u reaches 1 at x=0" in warnings[0] and "1.2" in warnings[0]
+    assert cached_design_warnings(loose) == [] and len(audits) == 3
+
+
+def test_changed_fields_and_orders_give_fresh_warnings(cache, audits):
+    p = load_problem(DATA / "quadratic-poisson.toml")
+    assert len(cached_design_warnings(p)) == 1
+    # order 0 would need the second derivatives, which a quadratic has  # common practice
+    assert cached_design_warnings(p, formal_order=0) == design_warnings_uncached(p, formal_order=0) == []
+    smooth = problem_from_text((DATA / "quadratic-poisson.toml").read_text().replace(
+        '"1 + 0.5*x**2 - 0.3*y**2 + 0.2*x*y + 0.1*x"', '"1 + sin(x)*cos(y)"'))
+    assert smooth.content_hash() != p.content_hash()
+    assert cached_design_warnings(smooth) == []
+    assert len(audits) == 4
+
+
+def test_cache_off_runs_the_checks_every_time(monkeypatch, audits):
+    monkeypatch.setenv("MMSVERIFY_CACHE", "off")
+    p = load_problem(DATA / "quadratic-poisson.toml")
+    assert cached_design_warnings(p) == cached_design_warnings(p)
+    assert len(audits) == 2
+
+
+def test_checks_that_could_not_run_are_not_kept(cache, monkeypatch):
+    p = load_problem(DATA / "quadratic-poisson.toml")
+
+    def broken(problem):
+        raise RuntimeError("boom")
+
+    monkeypatch.setattr(design, "model_from_problem", broken)
+    assert cached_design_warnings(p) == ["design checks could not run: RuntimeError: boom"]
+    monkeypatch.undo()
+    assert cached_design_warnings(p)[0].startswith("design: every leading truncation-error derivative")
+
+
+def test_an_entry_of_the_wrong_kind_is_recomputed(cache, audits):
+    p = load_problem(DATA / "quadratic-poisson.toml")
+    for key in _keys(p, None, None):
+        assert _diskcache.store("design", key, {"not": "a list"})
+    assert cached_design_warnings(p) == design_warnings_uncached(p)
+    assert len(audits) == 2
+
+
+def test_run_prints_the_cached_warnings(cache, capsys, monkeypatch):
+    args = argparse.Namespace(problem=str(DATA / "quadratic-poisson.toml"), formal_order=None, mode="combined")
+    print_design_warnings(args)
+    first = capsys.readouterr().err
+    assert first.startswith("warning: design: every leading truncation-error derivative vanishes")
+    monkeypatch.setattr(design, "audit", _refuse)
+    print_design_warnings(args)
+    assert capsys.readouterr().err == first
