@@ -18,15 +18,9 @@ sympy and of the modules that read and derive problems. The problem's name
 is left out: no warning names the problem. Checks that could not run are
 not kept, so a transient failure is not repeated from the cache.
 
-The bounds are sympy expressions, and a problem read back from the
-derivation cache builds its sympy tables only when asked (a warm study
-never needs them). The key therefore takes the bounds from the hash of the
-pickled tables the derivation cache keeps (for a problem just derived:
-the record the cache was given), which contain them; pickling is not
-promised to give the same bytes twice, so on a miss the printed bounds are
-tried too (building the tables, which the checks need anyway) and the
-result is kept under both keys. Only a real change of the problem misses
-both.
+The bounds enter through :meth:`~mmsverify.problem.Problem.bounds_hash`,
+kept with a problem in the derivation cache, so a warm problem is keyed
+without building its sympy tables.
 """
 
 from functools import lru_cache
@@ -59,27 +53,13 @@ def _code_fingerprint():
     return h.hexdigest()
 
 
-def _packed_tables(problem):
-    """The pickled symbolic tables a problem has (or would have) in the derivation cache; None if unknown."""
-    blob = problem.__dict__.get("_symbolic")  # read back from the cache, not built yet (problem.py)
-    if blob is None and hasattr(problem, "_packed"):
-        blob = problem._packed().__dict__.get("_symbolic")  # just derived: the record the cache got
-    return blob if isinstance(blob, bytes) else None
-
-
-def _keys(problem, formal_order, time_order):
-    """Keys to look under, cheapest first: of the packed tables, then of the built bounds."""
+def _key(problem, formal_order, time_order):
     plain = json.dumps({
         "operator": problem.operator, "equation_text": problem.equation_text, "constants": problem.constants,
         "order": [problem.space_order, problem.time_order], "asked": [formal_order, time_order],
     }, sort_keys=True, default=repr)
-    head = ("design-warnings", _code_fingerprint(), problem.content_hash(), plain)
-    blob = _packed_tables(problem)
-    if blob is not None:
-        yield _diskcache.make_key(*head, "packed " + hashlib.sha256(blob).hexdigest())
-    import sympy as sp
-    bounds = {k: [sp.srepr(e), lo, hi] for k, (e, lo, hi) in problem.bounds.items()}  # builds the tables
-    yield _diskcache.make_key(*head, "bounds " + json.dumps(bounds, sort_keys=True))
+    return _diskcache.make_key("design-warnings", _code_fingerprint(), problem.content_hash(),
+                               problem.bounds_hash(), plain)
 
 
 def _valid(entry):
@@ -101,20 +81,18 @@ def cached_design_warnings(problem, formal_order=None, time_order=None):
     list of str
         The same texts :func:`~mmsverify.design.design_warnings` returns.
     """
-    missed = []
-    try:
-        for key in _keys(problem, formal_order, time_order) if _diskcache.cache_dir() else ():
-            hit = _diskcache.load(_KIND, key)
-            if _valid(hit):
-                for k in missed:  # a warm problem's first time: keep it under its packed key too
-                    _diskcache.store(_KIND, k, hit)
-                return hit
-            missed.append(key)
-    except Exception:  # not a Problem, or a part that cannot be printed: keep what keys there are
-        pass
+    key = None
+    if _diskcache.cache_dir() is not None:
+        try:
+            key = _key(problem, formal_order, time_order)
+        except Exception:  # not a Problem, or a part that cannot be printed: check without the cache
+            key = None
+    if key is not None:
+        hit = _diskcache.load(_KIND, key)
+        if _valid(hit):
+            return hit
     from .design import _fast_warnings
     checked, warnings = _fast_warnings(problem, formal_order, time_order)
-    if checked:
-        for key in missed:
-            _diskcache.store(_KIND, key, warnings)
+    if checked and key is not None:
+        _diskcache.store(_KIND, key, warnings)
     return warnings

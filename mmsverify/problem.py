@@ -229,6 +229,7 @@ class Problem:
         """A copy for the derivation cache whose symbolic tables are built on first use."""
         self.content_hash()
         self.parameters_hash()
+        self.bounds_hash()
         self._parameter_table()
         out = copy.copy(self)
         tables = {k: getattr(self, k) for k in Problem._SYMBOLIC}
@@ -288,6 +289,15 @@ class Problem:
             text = repr(sorted((k, sp.srepr(v)) for k, v in self.parameters.items()))
             memo = hashlib.sha256(text.encode()).hexdigest()[:16]
             object.__setattr__(self, "_parameters_hash", memo)
+        return memo
+
+    def bounds_hash(self):
+        """Short hash of the ``[bounds]`` table (not part of the content hash); kept once computed."""
+        memo = self.__dict__.get("_bounds_hash")
+        if memo is None:
+            text = repr(sorted((k, sp.srepr(e), lo, hi) for k, (e, lo, hi) in self.bounds.items()))
+            memo = hashlib.sha256(text.encode()).hexdigest()[:16]
+            object.__setattr__(self, "_bounds_hash", memo)
         return memo
 
     def boundary_kind(self, field_name, side):
