@@ -24,6 +24,7 @@ from mmsverify import Solution, SolverError
 
 from ..base import DemoSolver, node_weights
 from ._assembly import SIDES, assemble_diffusion
+from ._quantities import node_quantities
 from .linear import solve_nodes
 
 __all__ = ["FDAdvectionDiffusion", "CONVECTION"]
@@ -114,4 +115,6 @@ class FDAdvectionDiffusion(DemoSolver):
         u = solve_nodes(system, "direct", where=self.name)
         axes = tuple(grid.nodes(a).reshape([-1 if b == a else 1 for b in range(grid.dim)])
                      for a in range(grid.dim))
-        return Solution(values={field: u.reshape(system.shape)}, points=axes, weights=node_weights(grid))
+        values = {field: u.reshape(system.shape)}
+        return Solution(values=values, points=axes, weights=node_weights(grid),
+                        quantities=node_quantities(case, values))

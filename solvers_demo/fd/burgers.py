@@ -19,6 +19,7 @@ import scipy.sparse.linalg as spla
 from mmsverify import Solution, SolverError
 
 from ..base import DemoSolver, node_weights
+from ._quantities import node_quantities
 
 __all__ = ["FDBurgers"]
 
@@ -116,7 +117,8 @@ class FDBurgers(DemoSolver):
                 u, lambda v: self._convection(v, h) + self._viscous(v, h, nu) - f,
                 lambda v: self._jacobian(v, h, nu, 1.0, 1.0, 0.0), self.name)
             return Solution(values={field: u}, points=(x,), weights=node_weights(grid),
-                            info={"newton_iterations": it})
+                            info={"newton_iterations": it},
+                            quantities=node_quantities(case, {field: u}, coefficient="nu"))
         theta = _SCHEMES[self.scheme][0]
         dt = grid.dt
         u = mms.initial(field, x)
@@ -145,4 +147,5 @@ class FDBurgers(DemoSolver):
             f_old, t = f_new, t_new
         return Solution(values={field: u}, points=(x,), weights=node_weights(grid), time=grid.t_end,
                         info={"newton_iterations": int(np.sum(iterations)),
-                              "newton_per_step": float(np.mean(iterations))})
+                              "newton_per_step": float(np.mean(iterations))},
+                        quantities=node_quantities(case, {field: u}, t=grid.t_end, coefficient="nu"))

@@ -4,7 +4,8 @@ The conservative stencil takes ``k`` at face midpoints, so it is second
 order for a smooth variable coefficient as well as for Poisson's equation
 (LeVeque 2007, Finite Difference Methods for ODEs and PDEs, section 2.15).
 Works in 1, 2 and 3 dimensions; the unknowns are the nodes, reported with
-their trapezoid volumes.
+their trapezoid volumes, and with the problem's declared ``[quantities]``
+(:mod:`._quantities`; every FD demo solver reports them the same way).
 """
 
 from dataclasses import dataclass
@@ -14,6 +15,7 @@ from mmsverify import Solution, SolverError
 
 from ..base import DemoSolver, node_weights
 from ._assembly import MISTAKE_EFFECTS, assemble_diffusion
+from ._quantities import node_quantities
 from .linear import METHODS, solve_nodes
 
 __all__ = ["FDDiffusion", "NEUMANN", "constant_coefficient"]
@@ -65,6 +67,6 @@ class FDDiffusion(DemoSolver):
         grid = case.grid
         pts = tuple(grid.nodes(a).reshape([-1 if b == a else 1 for b in range(grid.dim)])
                     for a in range(grid.dim))
-        field = case.problem.field_names[0]
-        return Solution(values={field: u.reshape(system.shape)}, points=pts, weights=node_weights(grid),
-                        info={"unknowns": int((~system.dirichlet).sum())})
+        values = {case.problem.field_names[0]: u.reshape(system.shape)}
+        return Solution(values=values, points=pts, weights=node_weights(grid),
+                        info={"unknowns": int((~system.dirichlet).sum())}, quantities=node_quantities(case, values))

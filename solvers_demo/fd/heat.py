@@ -20,6 +20,7 @@ from mmsverify import Solution, SolverError
 
 from ..base import DemoSolver, node_weights
 from ._assembly import assemble_diffusion
+from ._quantities import node_quantities
 from .diffusion import NEUMANN
 
 __all__ = ["FDHeat", "SCHEMES"]
@@ -115,5 +116,6 @@ class FDHeat(DemoSolver):
             u, old, t = u_new, new, t_new
         axes = tuple(grid.nodes(a).reshape([-1 if b == a else 1 for b in range(grid.dim)])
                      for a in range(grid.dim))
-        return Solution(values={field: u.reshape(shape)}, points=axes, weights=node_weights(grid),
-                        time=grid.t_end, info={"steps": steps})
+        values = {field: u.reshape(shape)}
+        return Solution(values=values, points=axes, weights=node_weights(grid), time=grid.t_end,
+                        info={"steps": steps}, quantities=node_quantities(case, values, t=grid.t_end))
