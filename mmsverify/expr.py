@@ -198,7 +198,21 @@ def parse_expression(text: str, names: Mapping[str, sympy.Basic], *,
 _ARMED = []
 
 
+# Seconds between repeated alarms once a limit is due, should code under the limit swallow the first.
+_REPEAT = 0.05
+
+
 def _raise_timeout(signum, frame):
+    # Raise only when the innermost limit is due: an alarm handled late, after its limit was left,
+    # does nothing, and one that comes early waits for the rest. A due limit keeps ringing every
+    # _REPEAT s, so an exception swallowed on the way (an `except BaseException` somewhere, a
+    # callback whose errors are only printed) cannot let the work run on unbounded.
+    if not _ARMED:
+        return
+    if time.monotonic() < _ARMED[-1]:
+        _arm(_ARMED[-1])
+        return
+    signal.setitimer(signal.ITIMER_REAL, _REPEAT)
     raise _Timeout
 
 
@@ -239,14 +253,14 @@ def _time_limit(seconds):
         _arm(deadline)
         yield
     finally:
-        try:
-            signal.setitimer(signal.ITIMER_REAL, 0)
-        finally:
-            _ARMED.pop()
-            if nested:
-                _arm(_ARMED[-1])
-            else:
-                signal.signal(signal.SIGALRM, old)
+        # First, without a call (a pending alarm is handled at calls): leave the limit, so an alarm
+        # handled from here on finds it gone and cannot cut this clean-up short.
+        del _ARMED[-1]
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        if nested:
+            _arm(_ARMED[-1])
+        else:
+            signal.signal(signal.SIGALRM, old)
 
 
 def _parse(ctx, text, body):

@@ -47,6 +47,7 @@ __all__ = ["run_levels", "run_studies", "LevelTimeout", "remaining_time", "as_ex
 
 _DEADLINE = contextvars.ContextVar("mmsverify_level_deadline", default=None)
 _ALARM_GRACE = 1.0  # seconds; lets an external program's own time-out (and kill) report first
+_ALARM_REPEAT = 0.5  # seconds between further alarms of a level whose time is up
 _WAIT_SLACK = 60.0   # seconds added to the overall wait when limits cannot be enforced in workers
 _MAX_MESSAGE = 10_000  # characters of a failed level's message that are kept (start and end)
 
@@ -68,14 +69,18 @@ def _time_limit(seconds, where):
         return
     token = _DEADLINE.set(time.monotonic() + seconds)
     alarm = hasattr(signal, "setitimer") and threading.current_thread() is threading.main_thread()
+    active = [True]
     if alarm:
         def _expired(signum, frame):
-            raise LevelTimeout(f"{where}: no result within {seconds:g} s; the level was stopped")
+            if active[0]:       # an alarm handled after the level ended does nothing
+                signal.setitimer(signal.ITIMER_REAL, _ALARM_REPEAT)  # again, should the solver swallow this
+                raise LevelTimeout(f"{where}: no result within {seconds:g} s; the level was stopped")
         previous = signal.signal(signal.SIGALRM, _expired)
         signal.setitimer(signal.ITIMER_REAL, seconds + _ALARM_GRACE)
     try:
         yield
     finally:
+        active[0] = False       # first and without a call: a pending alarm cannot cut the clean-up short
         if alarm:
             signal.setitimer(signal.ITIMER_REAL, 0)
             signal.signal(signal.SIGALRM, previous)

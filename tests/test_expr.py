@@ -404,3 +404,38 @@ def test_grammar_expressions_match_sympy_reference_parser(text):
             parse(text)
         return
     assert parse(text) == reference, text
+
+
+def test_a_swallowed_time_limit_rings_again_and_cleans_up():
+    # common practice: a limit must hold even if code under it swallows the first interruption
+    import signal
+    import time
+    from mmsverify.expr import _Timeout, _raise_timeout, _time_limit
+    caught = []
+    start = time.monotonic()
+    with pytest.raises(_Timeout):
+        with _time_limit(0.05):
+            try:
+                while True:
+                    pass
+            except _Timeout:
+                caught.append(time.monotonic() - start)
+            while True:
+                pass
+    assert len(caught) == 1 and time.monotonic() - start < 1.0
+    assert signal.getsignal(signal.SIGALRM) == signal.SIG_DFL and signal.getitimer(signal.ITIMER_REAL)[0] == 0
+    assert _raise_timeout(signal.SIGALRM, None) is None      # an alarm handled after the limit: nothing
+
+
+def test_nested_limits_restore_the_outer_one():
+    import signal
+    import time
+    from mmsverify.expr import _Timeout, _time_limit
+    start = time.monotonic()
+    with pytest.raises(_Timeout):
+        with _time_limit(0.2):
+            with _time_limit(5.0):        # ends no later than the outer one
+                while True:
+                    pass
+    assert 0.15 < time.monotonic() - start < 1.0
+    assert signal.getsignal(signal.SIGALRM) == signal.SIG_DFL and signal.getitimer(signal.ITIMER_REAL)[0] == 0

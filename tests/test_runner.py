@@ -28,6 +28,12 @@ class Faulty:
             time.sleep(30)
         if fault == "exit":
             os._exit(7)
+        if fault == "swallow":            # a solver whose own `except Exception` eats the first time-out
+            try:
+                time.sleep(30)
+            except Exception:
+                pass
+            time.sleep(30)
         sol = fd_solve(case)
         if fault == "nan":
             u = sol.values["u"].copy()
@@ -143,3 +149,14 @@ def test_process_pool_workers_share_the_cores(monkeypatch):
     monkeypatch.setenv("OPENBLAS_NUM_THREADS", "7")  # a count the user chose is kept
     with process_pool(2) as pool:
         assert {env for env, _ in pool.map(_thread_counts, range(2))} == {"7"}
+
+
+def test_a_solver_that_swallows_the_time_out_is_stopped_again():
+    # common practice: a broad `except Exception` in user code must not let a level run unbounded
+    start = time.monotonic()
+    result = run_study(PROBLEM, Faulty(level1="swallow"), levels=2, timeout=1)
+    assert time.monotonic() - start < 10
+    (failed,) = result.failed_levels
+    assert failed.level == 1 and "no result within 1 s" in failed.message
+    import signal
+    assert signal.getsignal(signal.SIGALRM) == signal.SIG_DFL and signal.getitimer(signal.ITIMER_REAL)[0] == 0
