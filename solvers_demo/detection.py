@@ -85,8 +85,15 @@ def run_entry(entry):
     result = verify(recorder, entry.problem, **entry.study)
     verdicts = [v for v in result.verdicts if v.norm in entry.norms]
     flagged = not verdicts or any(not v.ok for v in verdicts)
-    orders = {v.norm: v.observed for v in result.verdicts}
-    statuses = {v.norm: v.status for v in result.verdicts}
+    # per norm, the field verdict furthest from the formal order (quantities, norm "value", are not columns)
+    worst = {}
+    for v in result.verdicts:
+        if v.norm in _NORMS:
+            miss = float("inf") if v.observed is None else abs(v.observed - v.formal)
+            if v.norm not in worst or miss > worst[v.norm][0]:
+                worst[v.norm] = (miss, v)
+    orders = {n: v.observed for n, (_, v) in worst.items()}
+    statuses = {n: v.status for n, (_, v) in worst.items()}
     failed = result.failed_levels
     message = f"{len(failed)} level(s) failed: {failed[0].message.splitlines()[0]}" if failed else ""
     info = recorder.infos[-1] if recorder.infos else {}

@@ -62,7 +62,7 @@ def test_file_round_trip_and_portable_problem_path(good, tmp_path):
     proj = tmp_path / "proj"
     (proj / "ci").mkdir(parents=True)
     shutil.copy(PROBLEM_DIR / "plate-poisson.toml", proj / "plate.toml")
-    save_baseline(run_study(proj / "plate.toml", "poisson2d", levels=2), proj / "ci" / "b.json")
+    save_baseline(run_study(proj / "plate.toml", "poisson2d", levels=3), proj / "ci" / "b.json")
     assert json.loads((proj / "ci" / "b.json").read_text())["problem"]["source"] == "../plate.toml"
     moved = shutil.copytree(proj, tmp_path / "elsewhere")
     assert check_baseline(moved / "ci" / "b.json").passed
@@ -127,12 +127,12 @@ def test_failed_level_fails_the_check(good):
 
 
 def test_changed_problem_is_refused(good, tmp_path):
-    base = baseline_from_study(run_study(PROBLEM_DIR / "plate-poisson.toml", "poisson2d", levels=2))
+    base = baseline_from_study(run_study(PROBLEM_DIR / "plate-poisson.toml", "poisson2d", levels=3))
     edited = tmp_path / "plate.toml"
     edited.write_text((PROBLEM_DIR / "plate-poisson.toml").read_text().replace("a = 0.7", "a = 0.75"))
     with pytest.raises(ProblemError, match="changed since the baseline was saved"):
         check_baseline(base, problem=edited)
-    other = run_study(edited, "poisson2d", levels=2)
+    other = run_study(edited, "poisson2d", levels=3)
     assert compare(base, other).findings[0].kind == "problem"
 
 

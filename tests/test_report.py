@@ -38,10 +38,12 @@ def bad():
 
 
 def _crash_on_fine(case):
-    """The correct solver, except that it crashes on grids finer than 16 cells."""
+    """The correct solver, except that it crashes on grids finer than 16 cells (fields only reported:
+    on 8 and 16 cells the edge flux is not yet in its asymptotic range)."""
     if case.grid.cells[0] > 16:
         raise MemoryError("pretend the <finest> grid does not fit")
-    return poisson.solve(case)
+    sol = poisson.solve(case)
+    return dataclasses.replace(sol, quantities={})
 
 
 @pytest.fixture(scope="module")
@@ -278,7 +280,7 @@ def test_report_command_runs_and_redraws_from_json(tmp_path, capsys):
     from mmsverify.cli import main
     out = tmp_path / "rep"
     assert main(["report", "plate-poisson", "poisson2d-neumann1", "--levels", "3", "-o", str(out), "--quiet"]) == 1
-    assert capsys.readouterr().out.startswith("FAIL: 3 of 3 checks miss the formal order 2")
+    assert capsys.readouterr().out.startswith("FAIL: 5 of 5 checks miss the formal order 2")  # u and 2 quantities
     stem = "plate-poisson_poisson2d-neumann1"
     assert sorted(p.name for p in out.iterdir()) == sorted([f"{stem}.{s}" for s in ("csv", "html", "json", "md")]
                                                            + [f"{stem}_figures"])
@@ -291,8 +293,8 @@ def test_report_command_runs_and_redraws_from_json(tmp_path, capsys):
 
 
 def test_notes_reach_every_format_and_survive_json(good, tmp_path):
-    # plate-poisson declares two quantities that poisson2d does not report: one note, in every format
-    r = _with_order_conflict(good)
+    # plate-poisson declares two quantities that a fields-only solver does not report: one note, in every format
+    r = _with_order_conflict(run_study("plate-poisson", _crash_on_fine, levels=2))
     assert len(r.notes) == 2
     back = read_json(write_json(r, tmp_path / "n.json"))
     assert back.order_conflicts == r.order_conflicts and back.notes == r.notes
