@@ -25,6 +25,9 @@ solver's module and its libraries pyamg and scipy.fft) are timed apart and
 left out of the total: they are the same for any command (see
 ``bench/first_contact.py``).
 
+Children run with Python's default bytecode cache (``PYTHONDONTWRITEBYTECODE``
+removed from their environment), as a user's Python runs.
+
 Run: ``python bench/harness_overhead.py [--base 128] [--levels 4] [--repeats 2]``;
 ``--tiny`` is a smoke run (base 8, 3 levels).
 """
@@ -161,6 +164,9 @@ def _run_child(cache, args, workdir):
     cmd = ["run", args.problem, args.solver, "--levels", str(args.levels), "--base-cells", str(args.base),
            "--cache", os.path.join(workdir, "levels"), "--json", os.path.join(workdir, "study.json")]
     env = {**os.environ, "MMSVERIFY_CACHE": cache}
+    # Python's default: compiled modules are cached (this machine's environment turns that off, which
+    # makes every module imported during the run compile its source again; a user's Python does not)
+    env.pop("PYTHONDONTWRITEBYTECODE", None)
     res = subprocess.run([sys.executable, __file__, "--child", *cmd], capture_output=True, text=True, env=env,
                          cwd=ROOT, timeout=3600)
     if res.returncode:
