@@ -43,10 +43,11 @@ def format_study(result, caution=True):
     lines.append(f"  formal order {result.formal_order:g} ({result.mode} refinement{stated}), "
                  f"tolerance {result.tolerance:g}")
     size = "dt" if result.mode == "time" else "h"
+    width = max([12] + [len(f"{v.field} {v.norm}") for v in result.verdicts])
     for v in result.verdicts:
         mark = "ok " if v.ok else "!! "
         label = f"{v.field} {v.norm}"
-        lines.append(f"  {mark}{label:<12} {v.status:<12} {v.reason}")
+        lines.append(f"  {mark}{label:<{width}} {v.status:<12} {v.reason}")
     lines += [f"  note: {n}" for n in notes(result)]
     lines.append("")
     for f in result.fields:
