@@ -275,8 +275,12 @@ def _implied_bounds(operator, fields, parameters, taken):
         if name in taken:
             continue
         expr = fields.get(name, parameters.get(name))
-        if expr is not None:
-            out.append(Bound(name, expr, lo, None, strict=strict, implied=True))
+        if expr is None:
+            continue
+        expr = sp.sympify(expr)
+        if expr.is_number and expr.is_real and (expr > lo if strict else expr >= lo):
+            continue            # a constant that meets the limit (k = 1 of Poisson): nothing to search
+        out.append(Bound(name, expr, lo, None, strict=strict, implied=True))
     return out
 
 
