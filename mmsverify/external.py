@@ -356,6 +356,8 @@ def _read_csv(path):
         raise ProgramFailed("bad output", f"{path}: the first line must name the columns, e.g. 'x,y,volume,u'; "
                                           f"got {lines[head][:80]!r}")
     body = "\n".join(lines[head + 1:])
+    if not any(ln.strip() and not ln.lstrip().startswith("#") for ln in lines[head + 1:]):  # loadtxt would warn
+        raise ProgramFailed("bad output", f"{path} has a header but no rows")
     try:
         data = np.loadtxt(io.StringIO(body), delimiter=",", ndmin=2, comments="#", dtype=float)
     except ValueError as exc:
