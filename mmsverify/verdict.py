@@ -22,8 +22,10 @@ class Verdict:
     """Outcome for one field and norm.
 
     ``status`` is ``"confirmed"`` (within tolerance of the formal order),
-    ``"below"``, ``"above"`` or ``"inconclusive"`` (too few levels, or
-    errors at round-off so no order can be seen).
+    ``"below"``, ``"above"`` or ``"inconclusive"`` (too few levels, errors
+    at round-off so no order can be seen, or observed orders still closing
+    on the formal order by more than the tolerance from one pair of levels
+    to the next).
     """
 
     field: str
@@ -101,5 +103,13 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None):
             status = "inconclusive"
         reason += ". " + check.message[:1].upper() + check.message[1:]
     elif len(p) >= 2 and np.isfinite(p[-2]) and abs(p[-1] - p[-2]) > tolerance:
-        reason += f" (orders still moving: {', '.join(_fmt(q) for q in p)}; add a finer level)"
+        toward = (status == "below" and p[-1] > p[-2]) or (status == "above" and p[-1] < p[-2])
+        if toward:
+            # still closing on the formal order by more than the tolerance per level: the grids are not
+            # yet in the asymptotic range, which says nothing either way about the scheme
+            status = "inconclusive"
+            reason += (f" (orders still moving toward the formal order: {', '.join(_fmt(q) for q in p)}; "
+                       "the grids are not yet in the asymptotic range; add a finer level)")
+        else:
+            reason += f" (orders still moving: {', '.join(_fmt(q) for q in p)}; add a finer level)"
     return Verdict(field, norm, formal, last, tolerance, status, reason)

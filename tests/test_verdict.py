@@ -36,3 +36,26 @@ def test_exact_reproduction_is_inconclusive():
 
 def test_single_level_is_inconclusive():
     assert judge("u", "L2", [0.1], [1e-3], 2, 0.1).status == "inconclusive"
+
+
+def _errors_with_orders(orders, h0=0.1, e0=1e-2):
+    h, e = [h0], [e0]
+    for p in orders:
+        h.append(h[-1] / 2)
+        e.append(e[-1] / 2 ** p)
+    return h, e
+
+
+def test_orders_still_closing_on_the_formal_order_are_inconclusive_not_below():
+    # common practice: observed orders that rise toward the design order by more than the tolerance
+    # per level mean the grids are not yet in the asymptotic range (add a level), not a wrong scheme
+    h, e = _errors_with_orders([1.19, 1.70, 1.87])
+    v = judge("T", "L2", h, e, 2, 0.1)
+    assert v.status == "inconclusive" and not v.ok and "not yet in the asymptotic range" in v.reason
+    assert abs(v.observed - 1.87) < 1e-9
+    # falling away from it (a first-order boundary taking over) stays below
+    h, e = _errors_with_orders([1.21, 0.95, 0.90])
+    assert judge("u", "L2", h, e, 2, 0.1).status == "below"
+    # rising, but by less than the tolerance per level: settled short of the formal order
+    h, e = _errors_with_orders([0.90, 0.95, 0.98])
+    assert judge("u", "L2", h, e, 2, 0.1).status == "below"
