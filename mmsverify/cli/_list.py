@@ -7,12 +7,16 @@ from ..solvers import BUNDLED_SOLVERS
 
 def _list(args):
     print(f"Problems (in {PROBLEM_DIR}):")
+    rows = []
     for name in bundled_problems():
         try:
             p = load_problem(PROBLEM_DIR / f"{name}.toml")
-            print(f"  {name:<28} {p.dim}-D {p.operator:<20} {p.description}")
+            rows.append((name, f"{p.dim}-D {p.operator}", p.description))
         except Exception as exc:  # list the rest even when one file is broken
-            print(f"  {name:<28} (cannot be read: {exc})")
+            rows.append((name, "", f"(cannot be read: {exc})"))
+    kind = max(len(r[1]) for r in rows) if rows else 0
+    for name, what, text in rows:
+        print(f"  {name:<28} {what:<{kind}}  {text}")
     print("\nSolvers:")
     for name, target in BUNDLED_SOLVERS.items():
         print(f"  {name:<28} {target}")
