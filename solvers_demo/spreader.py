@@ -115,7 +115,7 @@ def main(levels=LEVELS, csv=None):
     from mmsverify.estimate import assess
 
     rows = run(levels)
-    print(__doc__.split("\n\n")[1].replace("\n", " "))
+    print(__doc__.split("\n\n")[1].replace("\n", " ").replace("``", ""))
     print()
     print(f"{'cells':>8} {'chip centre T (C)':>18} {'mean chip T (C)':>16} {'right rail (W)':>15} {'solve (s)':>10}")
     for r in rows:
