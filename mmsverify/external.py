@@ -606,7 +606,16 @@ class ExternalSolver:
 
     def __call__(self, case):
         grid, problem = case.grid, case.problem
-        where = f"problem {problem.name}, level {grid.level} ({grid.describe()}), program {self.command[0]}"
+        location = f"problem {problem.name}, level {grid.level} ({grid.describe()})"
+        where = f"{location}, program {self.command[0]}"
+        try:
+            return self._call(case, where)
+        except SolverError as exc:
+            exc.location = location  # a study replaces it with its own, which names the solver too
+            raise
+
+    def _call(self, case, where):
+        grid, problem = case.grid, case.problem
         if self.workdir:
             folder = (Path(self.workdir) / f"{_safe(problem.name)}-{problem.content_hash()[:10]}" /
                       f"{_safe(self.name)}-{hashlib.sha256(self.identity().encode()).hexdigest()[:8]}")

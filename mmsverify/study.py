@@ -110,6 +110,10 @@ class StudyResult:
     def failed_levels(self):
         return tuple(lv for lv in self.levels if not lv.ok)
 
+    def level_where(self, level):
+        """The location that opens the message of a failed level (problem, solver, level and grid)."""
+        return _level_where(self.problem, self.solver, level.grid)
+
     def orders(self, field_name, norm):
         """Observed order per consecutive pair of successful levels."""
         ok = [lv for lv in self.levels if lv.ok and field_name in lv.errors]
@@ -167,6 +171,10 @@ class StudyResult:
     def __str__(self):
         from .report.text import format_study
         return format_study(self)
+
+
+def _level_where(problem_name, solver_name, grid):
+    return f"problem {problem_name}, solver {solver_name}, level {grid.level} ({grid.describe()})"
 
 
 def _levels_text(levels):
@@ -369,7 +377,11 @@ def run_level(solver, case, where):
         return LevelResult(grid.level, grid, h, "ok", errors, seconds, int(values[next(iter(values))].size), scale,
                            quantities=quantities, info=dict(sol.info) if isinstance(sol.info, dict) else {})
     except SolverError as exc:
-        text = str(exc) if str(exc).startswith(where) else f"{where}: {exc}"
+        text, own = str(exc), getattr(exc, "location", "")
+        if own and text.startswith(own + ", "):  # the solver named problem and level itself: say it once
+            text = f"{where}, {text[len(own) + 2:]}"
+        elif not text.startswith(where):
+            text = f"{where}: {text}"
         return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start, message=text)
     except Exception as exc:  # the solver under test crashed: record it, keep going
         tail = "".join(traceback.format_exception(type(exc), exc, exc.__traceback__)[-3:]).strip()
@@ -470,7 +482,7 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     opts = dict(options or {}, mode=mode)
     cases = [Case(g, mms, opts) for g in grids]
     name = solver_name(solver)
-    wheres = [f"problem {problem.name}, solver {name}, level {c.grid.level} ({c.grid.describe()})" for c in cases]
+    wheres = [_level_where(problem.name, name, c.grid) for c in cases]
     from .runner import run_levels
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)

@@ -74,3 +74,45 @@ def test_run_plans_the_grid_for_a_target_error(capsys):
     c = float(out.split("error model")[1].split()[0])
     h = float(out.split("h needed")[1].split()[0])
     assert abs(c * h ** 2 / 1e-6 - 1) < 0.02
+
+
+def test_a_study_in_which_no_level_ran_exits_2_with_the_reason_once(capsys):
+    # README "Exit codes": 2 bad input; a solver refusing the problem on every level is a set-up error  # common practice
+    assert main(["run", "slab-heat", "poisson2d", "--levels", "3"]) == 2
+    out = capsys.readouterr().out
+    assert "(every level failed; nothing to judge)" in out.splitlines()[0]
+    assert "judged on the others" not in out
+    assert out.count("is a steady solver") == 1
+    assert "every level failed: problem slab-heat, solver poisson2d: FDDiffusion is a steady solver" in out
+
+
+def test_a_missing_external_program_exits_2_and_names_the_level_once(capsys):
+    assert main(["run", "plate-poisson", "--external", "./nosuch-program {case}", "--levels", "3"]) == 2
+    out = capsys.readouterr().out
+    assert out.count("cannot start") == 1 and out.count("problem plate-poisson,") == 1
+    assert "solver external:nosuch-program, program ./nosuch-program: cannot start" in out
+
+
+def test_an_external_level_message_names_problem_and_level_once(tmp_path):
+    from mmsverify import run_study
+    from mmsverify.external import ExternalSolver
+    result = run_study("plate-poisson", ExternalSolver([str(tmp_path / "absent"), "{case}"]), levels=3)
+    for lv in result.levels:
+        where = f"level {lv.level} ({lv.grid.describe()})"
+        assert lv.message.count(where) == 1 and lv.message.count("problem plate-poisson") == 1
+        assert lv.message.startswith(f"problem plate-poisson, solver {result.solver}, {where}, program ")
+
+
+def test_a_study_with_some_levels_run_still_exits_1(tmp_path, monkeypatch, capsys):
+    (tmp_path / "flaky_solver.py").write_text(
+        "from mmsverify import SolverError\n"
+        "from mmsverify.solvers import resolve_solver\n"
+        "def solve(case):\n"
+        "    if case.grid.level == 1:\n"
+        "        raise SolverError('out of memory on this level')\n"
+        "    return resolve_solver('poisson2d')(case)\n")
+    monkeypatch.syspath_prepend(str(tmp_path))
+    assert main(["run", "plate-poisson", "flaky_solver:solve", "--levels", "4"]) == 1
+    out = capsys.readouterr().out
+    assert "(level 1 failed; the orders are judged on the others)" in out.splitlines()[0]
+    assert "  level 1 failed: problem plate-poisson, solver flaky_solver:solve, level 1" in out

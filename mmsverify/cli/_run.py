@@ -7,7 +7,7 @@ from pathlib import Path
 from ..errors import SolverError
 from ..external import OUTPUT_FORMATS, ExternalSolver
 from ..study import MODES, run_study
-from . import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_OK
+from . import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_INPUT, EXIT_OK
 
 
 def add_study_options(p):
@@ -54,7 +54,10 @@ def add_execution_options(p):
 
 
 def exit_code(result):
+    """0 confirmed, 1 an order missed, 3 inconclusive; 2 when no level ran (a set-up the solver refuses)."""
     from ..report._common import outcome
+    if result.levels and not any(lv.ok for lv in result.levels):
+        return EXIT_INPUT
     return {"pass": EXIT_OK, "fail": EXIT_FAIL}.get(outcome(result), EXIT_INCONCLUSIVE)
 
 

@@ -35,8 +35,14 @@ def format_study(result, caution=True):
     lines = []
     overall = outcome(result).upper()
     failed = [str(lv.level) for lv in result.failed_levels]
-    note = (f"  (level{'s' if len(failed) > 1 else ''} {', '.join(failed)} failed; the orders are judged on the "
-            "others)") if failed else ""
+    none_ran = bool(result.levels) and len(failed) == len(result.levels)
+    if none_ran:
+        note = "  (every level failed; nothing to judge)"
+    elif failed:
+        note = (f"  (level{'s' if len(failed) > 1 else ''} {', '.join(failed)} failed; the orders are judged on "
+                "the others)")
+    else:
+        note = ""
     lines.append(f"{overall}  {result.problem}  solved by  {result.solver}{note}")
     stated = {"solver": ", stated by the solver", "caller": ", given by the caller"}.get(
         getattr(result, "order_source", "problem"), "")
@@ -79,8 +85,19 @@ def format_study(result, caution=True):
             lines.append(f"  {lv.level:<6} {lv.grid.describe():<23} {lv.h:<10.4g} {d['value']:<15.8g} "
                          f"{d['exact']:<15.8g} {_num(d['error']):<12} {_num(p, '{:.2f}')}")
         lines.append("")
-    for lv in result.failed_levels:
-        lines.append(f"  level {lv.level} failed: {lv.message}")
+    lines += _failures(result)
     if caution:
         lines += _wrapped(CAUTION, "  ", "  ")
     return "\n".join(lines)
+
+
+def _failures(result):
+    """Lines telling why levels failed: one per level, or one in all when every level failed alike."""
+    failed = result.failed_levels
+    where = getattr(result, "level_where", None)
+    if where and len(failed) > 1 and len(failed) == len(result.levels):
+        rests = {lv.message[len(where(lv)):] if lv.message.startswith(where(lv)) else None for lv in failed}
+        rest = rests.pop()
+        if rest is not None and not rests:  # the same message but for the level's own location
+            return [f"  every level failed: problem {result.problem}, solver {result.solver}{rest}"]
+    return [f"  level {lv.level} failed: {lv.message}" for lv in failed]
