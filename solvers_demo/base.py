@@ -93,20 +93,20 @@ class DemoSolver:
     def __call__(self, case):
         solver = self.configured(case.options)
         problem = case.problem
-        owner = solver.name
+        owner = type(solver).__name__  # messages: the scheme's name, not a Python repr of its options
         if problem.operator not in solver.operators:
             raise SolverError(f"{owner} solves operator(s) {', '.join(solver.operators)}; problem "
                               f"{problem.name} uses {problem.operator!r}; pick a solver for that operator")
         if case.grid.dim not in solver.dims:
-            raise SolverError(f"{owner} works in {solver.dims} dimension(s); problem {problem.name} is "
-                              f"{case.grid.dim}-D")
+            raise SolverError(f"{owner} works in {', '.join(map(str, solver.dims))} dimension(s); problem "
+                              f"{problem.name} is {case.grid.dim}-D")
         if problem.transient and not solver.unsteady:
             raise SolverError(f"{owner} is a steady solver; problem {problem.name} is transient")
         if not problem.transient and not solver.steady:
             raise SolverError(f"{owner} is a time-stepping solver; problem {problem.name} is steady")
         start = time.perf_counter()
         sol = solver._solve(case)
-        info = dict(sol.info, solver=owner, formal_order=solver.formal_order,
+        info = dict(sol.info, solver=solver.name, formal_order=solver.formal_order,
                     seconds=time.perf_counter() - start)
         if solver.mistake:
             info["mistake"] = solver.mistake

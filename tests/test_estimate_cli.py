@@ -80,3 +80,14 @@ def test_heat_spreader_demo_is_second_order_and_conserves_heat():
     # common practice (energy balance): with insulated long edges the heat reaching the right
     # rail is POWER * x_chip / LX for a source symmetric about x_chip
     assert rows[-1]["right_rail_W"] == pytest.approx(POWER * CHIP[0] / LX, rel=1e-6)
+
+
+def test_cli_messages_name_the_flags_not_python_keywords(capsys):
+    # cell counts without --dim: h = (V/N)^(1/dim) needs the dimension, Celik et al. 2008, Eq. (1)
+    assert main(["estimate", "--values", "6.063,5.972,5.863", "--cells", "18000,8000,4500"]) == 2
+    err = capsys.readouterr().err
+    assert "--dim 1, 2 or 3" in err and "pass dim=" not in err
+    # two grids: no observed order, an assumed one is needed, Roache 1998 (GCI with p assumed)  # from memory
+    assert main(["estimate", "--values", "5.972,6.063", "--cells", "8000,18000", "--dim", "2"]) == 2
+    err = capsys.readouterr().err
+    assert "--formal-order" in err and "pass formal_order" not in err

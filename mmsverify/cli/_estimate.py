@@ -22,6 +22,26 @@ from ..gci import gci_profile, plot_profile
 from . import EXIT_FAIL, EXIT_OK
 
 
+# Messages of the Python functions name their keywords; on the command line the flags do that job.
+_CLI_WORDS = (
+    ("choose one with column=", "choose one with --column (column= in Python)"),
+    ("pass formal_order (the scheme's design order)",
+     "give the formal order with --formal-order (the scheme's design order; formal_order= in Python)"),
+    ("pass dim=1, 2 or 3", "give --dim 1, 2 or 3 (dim= in Python)"),
+    ("fit four or more levels with eca_hoekstra()",
+     "give four or more levels, which are then fitted by least squares (eca_hoekstra() in Python)"),
+    ("fit all levels with eca_hoekstra()",
+     "give four or more levels, which are then fitted by least squares (eca_hoekstra() in Python)"),
+)
+
+
+def _cli_words(text):
+    """``text`` with the Python keywords it tells the reader to pass replaced by this command's flags."""
+    for python, flag in _CLI_WORDS:
+        text = text.replace(python, flag)
+    return text
+
+
 def _floats(text, what):
     try:
         return [float(v) for v in text.split(",") if v.strip()]
@@ -86,6 +106,13 @@ def _profile_order(files, pts, vals, h, cells):
 
 
 def _estimate(args):
+    try:
+        return _estimate_in_cli_words(args)
+    except AnalysisError as exc:
+        raise AnalysisError(_cli_words(str(exc))) from None
+
+
+def _estimate_in_cli_words(args):
     if args.profile:
         if len(args.profile) != 3:
             raise AnalysisError("--profile takes three files, coarse, medium and fine")
@@ -96,7 +123,7 @@ def _estimate(args):
             print(note)
         result = gci_profile(pts, vals, h=h, cells=cells, dim=args.dim, volume=args.volume,
                              interpolation=args.interpolation)
-        print(result)
+        print(_cli_words(str(result)))
         if args.plot:
             plot_profile(result, args.plot, label=args.column or "value")
             print(f"\nwrote {args.plot}")
@@ -119,11 +146,11 @@ def _estimate(args):
         records = [result]
     else:
         raise AnalysisError("give a level file, --values with --h or --cells, or --profile with three files")
-    print(result)
+    print(_cli_words(str(result)))
     if args.details:
         for r in records:
             print()
-            print(r.gci if r.gci is not None else f"{r.name}: no GCI table (the finest two values are equal)")
+            print(_cli_words(str(r.gci)) if r.gci is not None else f"{r.name}: no GCI table (the finest two values are equal)")
     if args.json:
         Path(args.json).write_text(json.dumps([_record(r) for r in records], indent=2))
         print(f"\nwrote {args.json}")
@@ -135,7 +162,7 @@ def _record(r):
     return {"name": r.name, "values": list(r.values), "extrapolated": r.extrapolated, "order": r.order,
             "uncertainty": r.uncertainty, "relative_uncertainty": r.relative_uncertainty,
             "convergence": r.convergence.kind if r.convergence else None, "method": r.method,
-            "acceptable": r.acceptable, "verdict": r.verdict, "warnings": list(r.warnings)}
+            "acceptable": r.acceptable, "verdict": r.verdict, "warnings": [_cli_words(w) for w in r.warnings]}
 
 
 def register(sub):
