@@ -5,7 +5,7 @@ function that adds its sub-parser and sets ``func``. Exit codes:
 
 * 0: every verdict confirmed (or the command succeeded)
 * 1: a verdict failed (observed order off the formal order)
-* 2: bad input (problem file, solver, grid sequence, data)
+* 2: bad input (problem file, solver, grid sequence, data), or a study in which no level ran
 * 3: inconclusive (levels failed or errors at round-off; nothing to judge)
 
 Only the chosen command's module is imported: ``main`` hands its arguments
@@ -72,7 +72,7 @@ def build_parser(argv=None):
         prog="mmsverify",
         description="Prove a PDE solver converges at its design order with manufactured solutions, "
                     "and estimate the discretization error left in a real simulation.",
-        epilog="Exit codes: 0 confirmed, 1 order not confirmed, 2 bad input, 3 inconclusive.")
+        epilog="Exit codes: 0 confirmed, 1 order not confirmed, 2 bad input or no level ran, 3 inconclusive.")
     parser.add_argument("--version", action="version", version=f"%(prog)s {__import__('mmsverify').__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     chosen = None if argv is None else _chosen_module(argv)
