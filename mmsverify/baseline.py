@@ -11,6 +11,10 @@ implementation of the same problem) and :func:`compare` applies two rules:
 2. **error level**: on each level, each error is at most ``error_factor``
    times the baseline's.
 
+Quantities the recorded solver reported (functionals declared under
+``[quantities]``) are held to both rules too, through the error of their
+value; a baseline saved before quantities were recorded checks fields only.
+
 A level that fails, a missing field or a grid that differs also fails the
 check. :class:`BaselineCheck` says which rule failed, where, by how much
 and what to do; its ``passed`` drives the exit code of
@@ -18,7 +22,7 @@ and what to do; its ``passed`` drives the exit code of
 ``docs/json-schema.md``.
 """
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field as _field
 import datetime
 import json
 import logging
@@ -66,12 +70,17 @@ class Baseline:
         ``errors[field][norm]``: list with one error per level (None where
         the level failed).
     observed : dict
-        ``observed[field][norm]``: observed order of the baseline study.
+        ``observed[field][norm]``: observed order of the baseline study
+        (``observed[quantity]["value"]`` for a reported quantity).
     solver : str
         The solver the baseline was recorded with (information only).
     saved : str
         ISO 8601 time of saving.
     mmsverify_version : str
+    quantities : dict
+        ``quantities[name]``: list with the error of a reported quantity's
+        value per level (None where the level failed or did not report it);
+        empty for baselines saved before quantities were recorded.
     """
 
     problem: str
@@ -87,6 +96,7 @@ class Baseline:
     solver: str
     saved: str = ""
     mmsverify_version: str = ""
+    quantities: dict = _field(default_factory=dict)
 
     def to_data(self, folder=None):
         """Plain JSON-ready data (see ``docs/json-schema.md``).
@@ -103,7 +113,7 @@ class Baseline:
                 "rules": {"order_tolerance": self.tolerance, "error_factor": self.error_factor},
                 "grids": [{"level": g.level, "lower": list(g.lower), "upper": list(g.upper), "cells": list(g.cells),
                            "t_start": g.t_start, "t_end": g.t_end, "steps": g.steps} for g in self.grids],
-                "errors": self.errors, "observed": self.observed}
+                "errors": self.errors, "observed": self.observed, "quantity_errors": self.quantities}
 
     @classmethod
     def from_data(cls, data, where="baseline", folder=None):
@@ -124,10 +134,13 @@ class Baseline:
             source = p["source"]
             if source and folder is not None and not Path(source).is_absolute():
                 source = str(Path(folder) / source)
+            quantities = {str(q): list(e) for q, e in data.get("quantity_errors", {}).items()}
+            if any(len(e) != len(grids) for e in quantities.values()):
+                raise ValueError(f"quantity_errors must hold one entry per grid level ({len(grids)})")
             return cls(p["name"], p["hash"], source, data["mode"], float(data["formal_order"]),
                        float(rules["order_tolerance"]), float(rules["error_factor"]), grids, data["errors"],
                        data["observed"], data["recorded_with"], data.get("saved", ""),
-                       data.get("mmsverify_version", ""))
+                       data.get("mmsverify_version", ""), quantities)
         except (KeyError, TypeError, ValueError) as exc:
             raise MMSError(f"{where}: damaged baseline ({type(exc).__name__}: {exc}); save it again") from None
 
@@ -136,9 +149,11 @@ class Baseline:
                  + (f" on {self.saved}" if self.saved else ""),
                  f"  rules: observed order >= {self.formal_order:g} - {self.tolerance:g}; errors <= "
                  f"{self.error_factor:g} x recorded",
-                 f"  {'level':<6} {'grid':<22}" + "".join(f"{f + ' ' + n:>12}" for f in self.errors for n in NORMS)]
+                 f"  {'level':<6} {'grid':<22}" + "".join(f"{f + ' ' + n:>12}" for f in self.errors for n in NORMS)
+                 + "".join(f" {q + ' error':>15}" for q in self.quantities)]
         for i, g in enumerate(self.grids):
             cells = "".join(f"{_num(self.errors[f][n][i]):>12}" for f in self.errors for n in NORMS)
+            cells += "".join(f" {_num(e[i]):>15}" for e in self.quantities.values())
             lines.append(f"  {g.level:<6} {g.describe():<22}{cells}")
         return "\n".join(lines)
 
@@ -189,13 +204,16 @@ def baseline_from_study(result, error_factor=DEFAULT_ERROR_FACTOR, tolerance=Non
                        "should record a verified state. Fix the solver, or record it anyway with --allow-failing")
     errors = {f: {n: [lv.errors[f][n] if lv.ok and f in lv.errors else None for lv in result.levels]
                   for n in NORMS} for f in result.fields}
+    quantities = {q: [lv.quantities[q]["error"] if lv.ok and q in lv.quantities else None for lv in result.levels]
+                  for q in result.quantities}
     observed = {}
     for v in result.verdicts:
         observed.setdefault(v.field, {})[v.norm] = v.observed
     saved = datetime.datetime.now(datetime.timezone.utc).replace(microsecond=0).isoformat()
     return Baseline(result.problem, result.problem_hash, result.source, result.mode, result.formal_order,
                     float(result.tolerance if tolerance is None else tolerance), float(error_factor),
-                    tuple(lv.grid for lv in result.levels), errors, observed, result.solver, saved, __version__)
+                    tuple(lv.grid for lv in result.levels), errors, observed, result.solver, saved, __version__,
+                    quantities)
 
 
 def save_baseline(result, path, **kwargs):
@@ -216,7 +234,10 @@ def load_baseline(path):
 
 @dataclass(frozen=True)
 class Finding:
-    """One broken rule: ``kind`` is order, error, level, field, grid or problem."""
+    """One broken rule: ``kind`` is order, error, level, field, quantity, grid or problem.
+
+    For a quantity, ``field`` is its name and ``norm`` is ``"value"``.
+    """
 
     kind: str
     field: str
@@ -233,7 +254,8 @@ class BaselineCheck:
     """Outcome of comparing a run with a baseline.
 
     ``comparisons`` holds ``(field, norm, level, baseline error, current
-    error)`` for every level both runs solved; ``findings`` the broken
+    error)`` for every level both runs solved (a quantity as ``(name,
+    "value", ...)``); ``findings`` the broken
     rules; ``passed`` is True when there are none.
     """
 
@@ -265,16 +287,18 @@ class BaselineCheck:
         for f in self.findings:
             lines.append(f"  !! {f.kind:<7} {f.message}")
         if self.passed:
-            lines.append(f"  ok  {len(self.norms) * len(b.errors)} order checks and {len(self.comparisons)} error "
+            lines.append(f"  ok  {len(self.norms) * len(b.errors) + len(b.quantities)} order checks and "
+                         f"{len(self.comparisons)} error "
                          "comparisons within the rules")
         lines += [f"  note: {n}" for n in self.notes]
         if self.comparisons:
             lines.append("")
-            lines.append(f"  {'field':<6} {'norm':<5} {'level':<6} {'baseline':>11} {'current':>11} {'ratio':>8}")
+            w = max([6] + [len(c[0]) for c in self.comparisons])
+            lines.append(f"  {'field':<{w}} {'norm':<5} {'level':<6} {'baseline':>11} {'current':>11} {'ratio':>8}")
             for f, n, lv, e0, e1 in self.comparisons:
                 ratio = e1 / e0 if e0 > 0 else float("inf")
                 mark = "  !!" if ratio > self.error_factor else ""
-                lines.append(f"  {f:<6} {n:<5} {lv:<6} {e0:>11.3e} {e1:>11.3e} {ratio:>8.2f}{mark}")
+                lines.append(f"  {f:<{w}} {n:<5} {lv:<6} {e0:>11.3e} {e1:>11.3e} {ratio:>8.2f}{mark}")
         if not self.passed:
             lines.append("")
             lines.append("  If the change is intended (a new scheme, a new problem, other grids), record a new "
@@ -316,47 +340,66 @@ def compare(baseline, result, error_factor=None, tolerance=None, norms=None):
                                 "check_baseline (or `mmsverify baseline check`), which uses the baseline's grids"))
         return BaselineCheck(baseline, result, factor, tol, norms, tuple(findings), ())
     verdicts = {(v.field, v.norm): v for v in result.verdicts}
-    floor = baseline.formal_order - tol
+    rules = (baseline.formal_order, tol, factor)
     best = 0.0
     for f, per_norm in baseline.errors.items():
         if f not in result.fields:
             findings.append(Finding("field", f, "", -1, f"field {f} is missing from the run; the baseline has it"))
             continue
         for n in norms:
-            v = verdicts.get((f, n))
-            was = baseline.observed.get(f, {}).get(n)
-            was_text = f"; the baseline observed {was:.2f}" if was is not None else ""
-            if v is None or v.observed is None:
-                why = v.reason if v is not None else "no verdict"
-                findings.append(Finding("order", f, n, -1, f"{f} {n}: no observed order ({why})"))
-            elif v.observed < floor:
-                findings.append(Finding("order", f, n, -1,
-                                        f"{f} {n}: observed order {v.observed:.2f} is below {floor:g} (formal "
-                                        f"{baseline.formal_order:g} - tolerance {tol:g}){was_text}"))
-            for lv, e0 in zip(result.levels, per_norm[n]):
-                if e0 is None:
-                    continue
-                if not lv.ok or f not in lv.errors:
-                    continue  # reported once per level below
-                e1 = lv.errors[f][n]
-                comparisons.append((f, n, lv.level, e0, e1))
-                if e0 > 0:
-                    best = max(best, e0 / e1 if e1 > 0 else float("inf"))
-                if e1 > factor * e0:
-                    findings.append(Finding("error", f, n, lv.level,
-                                            f"{f} {n} on level {lv.level} ({lv.grid.describe()}): error {e1:.3e} is "
-                                            f"{e1 / e0:.1f} x the baseline's {e0:.3e}, more than the allowed "
-                                            f"{factor:g} x"))
+            current = [lv.errors[f][n] if lv.ok and f in lv.errors else None for lv in result.levels]
+            best = max(best, _check_series(baseline, result, f, n, per_norm[n], current, verdicts.get((f, n)),
+                                           rules, findings, comparisons))
+    for q, recorded in baseline.quantities.items():
+        if q not in result.quantities:
+            findings.append(Finding("quantity", q, "value", -1,
+                                    f"quantity {q} is missing from the run; the baseline has it (a solver reports "
+                                    "it in Solution.quantities)"))
+            continue
+        current = [lv.quantities[q]["error"] if lv.ok and q in lv.quantities else None for lv in result.levels]
+        best = max(best, _check_series(baseline, result, q, "value", recorded, current, verdicts.get((q, "value")),
+                                       rules, findings, comparisons))
     for lv, recorded_ok in zip(result.levels, zip(*[baseline.errors[f][NORMS[0]] for f in baseline.errors])):
         if not lv.ok and any(e is not None for e in recorded_ok):
             first = lv.message.splitlines()[0] if lv.message else "failed"
             findings.append(Finding("level", "", "", lv.level, f"level {lv.level} ({lv.grid.describe()}) failed, "
                                     f"the baseline solved it: {first}"))
-    rank = ("problem", "grid", "field", "level", "order", "error")
+    rank = ("problem", "grid", "field", "quantity", "level", "order", "error")
     findings.sort(key=lambda f: rank.index(f.kind))
     if not findings and best > factor:
         notes.append(f"errors fell by up to {best:.1f} x; save a new baseline to hold the solver to its new level")
     return BaselineCheck(baseline, result, factor, tol, norms, tuple(findings), tuple(comparisons), tuple(notes))
+
+
+def _check_series(baseline, result, f, n, recorded, current, verdict, rules, findings, comparisons):
+    """Apply the order and error rules to one field and norm (or one quantity, norm ``"value"``).
+
+    Appends to ``findings`` and ``comparisons``; returns the largest factor
+    by which an error fell (0 when none was compared).
+    """
+    formal, tol, factor = rules
+    floor = formal - tol
+    was = baseline.observed.get(f, {}).get(n)
+    was_text = f"; the baseline observed {was:.2f}" if was is not None else ""
+    if verdict is None or verdict.observed is None:
+        why = verdict.reason if verdict is not None else "no verdict"
+        findings.append(Finding("order", f, n, -1, f"{f} {n}: no observed order ({why})"))
+    elif verdict.observed < floor:
+        findings.append(Finding("order", f, n, -1,
+                                f"{f} {n}: observed order {verdict.observed:.2f} is below {floor:g} (formal "
+                                f"{formal:g} - tolerance {tol:g}){was_text}"))
+    best = 0.0
+    for lv, e0, e1 in zip(result.levels, recorded, current):
+        if e0 is None or e1 is None:
+            continue  # a failed level is reported once per level; an unreported quantity by its order
+        comparisons.append((f, n, lv.level, e0, e1))
+        if e0 > 0:
+            best = max(best, e0 / e1 if e1 > 0 else float("inf"))
+        if e1 > factor * e0:
+            findings.append(Finding("error", f, n, lv.level,
+                                    f"{f} {n} on level {lv.level} ({lv.grid.describe()}): error {e1:.3e} is "
+                                    f"{e1 / e0:.1f} x the baseline's {e0:.3e}, more than the allowed {factor:g} x"))
+    return best
 
 
 def check_baseline(baseline, solver=None, *, problem=None, error_factor=None, tolerance=None, norms=None,

@@ -89,7 +89,8 @@ def test_order_rule_is_formal_minus_tolerance(good):
     base = baseline_from_study(good)
     low = dataclasses.replace(good, verdicts=tuple(dataclasses.replace(v, observed=1.85) for v in good.verdicts))
     check = compare(base, low)
-    assert [f.kind for f in check.findings] == ["order"] * 3
+    assert [f.kind for f in check.findings] == ["order"] * 5  # u in 3 norms, then the 2 reported quantities
+    assert [(f.field, f.norm) for f in check.findings[3:]] == [("deflection", "value"), ("edge_slope", "value")]
     assert "observed order 1.85 is below 1.9" in check.findings[0].message
     assert compare(base, low, tolerance=0.2).passed
     assert compare(base, low, norms=["L2"]).findings[0].norm == "L2"
@@ -98,12 +99,13 @@ def test_order_rule_is_formal_minus_tolerance(good):
 
 
 def _interior_only(case):
-    """Another implementation's output: the same scheme reported on interior nodes only."""
+    """Another implementation's output: the same scheme reported on interior nodes only (with its quantities,
+    which the baseline of plate-poisson holds too)."""
     sol = poisson.solve(case)
     inner = (slice(1, -1), slice(1, -1))
     return Solution(values={"u": sol.values["u"][inner]},
                     points=tuple(np.broadcast_to(p, sol.values["u"].shape)[inner] for p in sol.points),
-                    weights=np.asarray(sol.weights)[inner])
+                    weights=np.asarray(sol.weights)[inner], quantities=sol.quantities)
 
 
 def test_baseline_is_solver_agnostic(good):
@@ -167,3 +169,60 @@ def test_every_key_of_the_file_is_documented(good):
     section = doc[doc.index("## Baseline"):]
     missing = [k for k in baseline_from_study(good).to_data() if f"`{k}`" not in section]
     assert not missing, f"baseline keys not documented in docs/json-schema.md: {missing}"
+
+
+def _quantity_errors_scaled(result, name, factor):
+    """The same study with one quantity's error (and value's distance from exact) multiplied by ``factor``."""
+    def scaled(d):
+        return dict(d, value=d["exact"] + factor * (d["value"] - d["exact"]), error=factor * d["error"])
+    levels = tuple(dataclasses.replace(lv, quantities={q: scaled(d) if q == name else d
+                                                       for q, d in lv.quantities.items()}) for lv in result.levels)
+    return dataclasses.replace(result, levels=levels)
+
+
+def test_reported_quantities_are_recorded_and_checked(good, tmp_path):
+    base = save_baseline(good, tmp_path / "q.json")
+    back = load_baseline(tmp_path / "q.json")
+    assert back.quantities == base.quantities
+    assert back.quantities["deflection"] == [lv.quantities["deflection"]["error"] for lv in good.levels]
+    check = compare(back, good)
+    # the 3 norms of u and the 2 quantities: 5 order checks, (3 + 2) x 3 levels error comparisons
+    assert check.passed and "5 order checks and 15 error comparisons" in str(check)
+    assert {c[0] for c in check.comparisons} == {"u", "deflection", "edge_slope"}
+    # error rule with the baseline's factor (2): a quantity 3 x worse on every level is caught, 1.9 x is not
+    worse = compare(back, _quantity_errors_scaled(good, "edge_slope", 3.0))
+    assert [(f.kind, f.field, f.norm) for f in worse.findings] == [("error", "edge_slope", "value")] * 3
+    assert "edge_slope value on level 0" in worse.findings[0].message and "allowed 2 x" in worse.findings[0].message
+    assert compare(back, _quantity_errors_scaled(good, "edge_slope", 1.9)).passed
+
+
+def test_quantity_order_and_absence_are_findings(good):
+    base = baseline_from_study(good)
+    # common practice: a functional of a second-order solution is held to the same order rule as the fields
+    slow = dataclasses.replace(good, verdicts=tuple(dataclasses.replace(v, observed=1.5) if v.norm == "value" else v
+                                                    for v in good.verdicts))
+    check = compare(base, slow)
+    assert [(f.kind, f.field) for f in check.findings] == [("order", "deflection"), ("order", "edge_slope")]
+    was = base.observed["deflection"]["value"]
+    assert f"observed order 1.50 is below 1.9" in check.findings[0].message
+    assert f"the baseline observed {was:.2f}" in check.findings[0].message
+    # a solver that stops reporting the quantities fails the check, naming them
+    fields_only = check_baseline(base, lambda case: dataclasses.replace(poisson.solve(case), quantities={}))
+    assert [(f.kind, f.field) for f in fields_only.findings] == [("quantity", "deflection"), ("quantity", "edge_slope")]
+    assert "quantity deflection is missing from the run" in str(fields_only)
+
+
+def test_baseline_without_quantities_still_checks(good, tmp_path):
+    path = tmp_path / "old.json"
+    save_baseline(good, path)
+    data = json.loads(path.read_text())
+    del data["quantity_errors"]  # as written before quantities were recorded
+    path.write_text(json.dumps(data))
+    old = load_baseline(path)
+    assert old.quantities == {}
+    check = compare(old, _quantity_errors_scaled(good, "deflection", 10.0))
+    assert check.passed and "3 order checks and 9 error comparisons" in str(check)
+    data["quantity_errors"] = {"deflection": [1e-3]}  # one entry for three levels
+    path.write_text(json.dumps(data))
+    with pytest.raises(MMSError, match=r"old\.json: damaged baseline.*one entry per grid level"):
+        load_baseline(path)
