@@ -51,7 +51,8 @@ _ADVICE = {
         "order, and with four or more levels that the orders have settled (asymptotic_check)."),
     "oscillatory": (
         "No GCI is valid for oscillatory convergence. Refine further until the sign pattern settles, "
-        "report the spread of the values as a band, or fit four or more levels with eca_hoekstra()."),
+        "report the spread of the values as a band, or estimate from four or more levels by least squares "
+        "(Eca and Hoekstra 2014)."),
     "divergent": (
         "The differences grow as the grid is refined: the grids are outside the asymptotic range or "
         "something is wrong (iterations not converged, inconsistent boundary data, a coding mistake). "
@@ -59,7 +60,8 @@ _ADVICE = {
         "can be given."),
     "scattered": (
         "The levels follow no single pattern. Look for levels outside the asymptotic range or for noise "
-        "(iteration error, round-off) with asymptotic_check(), or fit all levels with eca_hoekstra()."),
+        "(iteration error, round-off) in the observed orders of successive pairs, or estimate from all levels by "
+        "least squares (Eca and Hoekstra 2014)."),
     "round-off": (
         "The finest levels agree to within round-off (or the solver's tolerance) of the value: the quantity has "
         "converged as far as the arithmetic can show, and no order or GCI can be measured from noise. Report "

@@ -139,10 +139,11 @@ def _verdict(rel, method, name):
         return f"no valid discretization-error estimate for {name!r}; see the warnings"
     level = ACCEPTANCE_LEVEL
     if within_acceptance(rel):
-        return (f"{name!r}: the discretization uncertainty is {_pct(rel)} of the finest value ({method}), within "
-                f"the usual {_pct(level, '.2g')} acceptance level")
-    return (f"{name!r}: the discretization uncertainty is {_pct(rel)} of the finest value ({method}), above the "
-            f"usual {_pct(level, '.2g')} acceptance level: refine further (plan() predicts the grid needed)")
+        return (f"{name!r}: the discretization uncertainty is {_pct(rel)} of the finest value ({method}), below "
+                f"{_pct(level, '.2g')} (a common default; the limit that matters is your application's)")
+    return (f"{name!r}: the discretization uncertainty is {_pct(rel)} of the finest value ({method}), above "
+            f"{_pct(level, '.2g')} (a common default; the limit that matters is your application's): refine "
+            "further (the planner, plan() in Python, predicts the grid needed)")
 
 
 def _roundoff_assessment(name, hs, phi, formal_order, level, conv):

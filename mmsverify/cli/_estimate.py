@@ -28,10 +28,6 @@ _CLI_WORDS = (
     ("pass formal_order (the scheme's design order)",
      "give the formal order with --formal-order (the scheme's design order; formal_order= in Python)"),
     ("pass dim=1, 2 or 3", "give --dim 1, 2 or 3 (dim= in Python)"),
-    ("fit four or more levels with eca_hoekstra()",
-     "give four or more levels, which are then fitted by least squares (eca_hoekstra() in Python)"),
-    ("fit all levels with eca_hoekstra()",
-     "give four or more levels, which are then fitted by least squares (eca_hoekstra() in Python)"),
 )
 
 
