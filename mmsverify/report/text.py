@@ -49,6 +49,7 @@ def format_study(result, caution=True):
     lines.append(f"  formal order {result.formal_order:g} ({result.mode} refinement{stated}), "
                  f"tolerance {result.tolerance:g}")
     size = "dt" if result.mode == "time" else "h"
+    gw = max([23] + [len(lv.grid.describe()) for lv in result.levels])
     width = max([12] + [len(f"{v.field} {v.norm}") for v in result.verdicts])
     for v in result.verdicts:
         mark = "ok " if v.ok else "!! "
@@ -59,12 +60,12 @@ def format_study(result, caution=True):
     for f in result.fields:
         head = f"  field {f}"
         lines.append(head)
-        lines.append((f"  level  grid                    {size:<10} " +
+        lines.append((f"  level  {'grid':<{gw}} {size:<10} " +
                       "".join(f"{n + ' error':<13}{'order':<8}" for n in NORMS)).rstrip())
         ok = [lv for lv in result.levels if lv.ok and f in lv.errors]
         orders = {n: result.orders(f, n) for n in NORMS}
         for lv in result.levels:
-            row = f"  {lv.level:<6} {lv.grid.describe():<23} {lv.h:<10.4g} "
+            row = f"  {lv.level:<6} {lv.grid.describe():<{gw}} {lv.h:<10.6g} "
             if not lv.ok:
                 row += "failed: " + lv.message.splitlines()[0]
             elif f in lv.errors:
@@ -76,13 +77,13 @@ def format_study(result, caution=True):
         lines.append("")
     for q in result.quantities:
         lines.append(f"  quantity {q}")
-        lines.append(f"  level  grid                    {size:<10} value           exact           error        order")
+        lines.append(f"  level  {'grid':<{gw}} {size:<10} value           exact           error        order")
         ok = [lv for lv in result.levels if lv.ok and q in lv.quantities]
         orders = result.quantity_orders(q)
         for i, lv in enumerate(ok):
             d = lv.quantities[q]
             p = orders[i - 1] if i > 0 else None
-            lines.append(f"  {lv.level:<6} {lv.grid.describe():<23} {lv.h:<10.4g} {d['value']:<15.8g} "
+            lines.append(f"  {lv.level:<6} {lv.grid.describe():<{gw}} {lv.h:<10.6g} {d['value']:<15.8g} "
                          f"{d['exact']:<15.8g} {_num(d['error']):<12} {_num(p, '{:.2f}')}")
         lines.append("")
     lines += _failures(result)
