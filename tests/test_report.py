@@ -124,7 +124,8 @@ def test_reading_other_json_says_what_to_do(tmp_path, good):
 
 def test_csv_holds_every_error_and_order(good, tmp_path):
     rows = list(csv.DictReader(io.StringIO(write_csv(good, tmp_path / "s.csv").read_text())))
-    assert len(rows) == len(good.levels) * len(NORMS)
+    # one row per level and norm of u, then one per level of each of the 2 reported quantities
+    assert len(rows) == len(good.levels) * (len(NORMS) + 2)
     assert tuple(rows[0]) == CSV_COLUMNS
     for n in NORMS:
         mine = [r for r in rows if r["norm"] == n]
@@ -315,3 +316,81 @@ def test_reports_without_notes_have_no_notes_section(tmp_path):
     assert r.notes == ()
     assert "note:" not in format_study(r) and "Note:" not in markdown_text(r)
     assert 'id="notes"' not in html_text(r, figures=False) and study_to_data(r)["notes"] == []
+
+
+# -- reported quantities -------------------------------------------------------
+
+def test_csv_holds_every_quantity_value_exact_error_and_order(good):
+    rows = list(csv.DictReader(io.StringIO(csv_text(good))))
+    assert {r["value"] for r in rows if r["norm"] in NORMS} == {""}
+    verdicts = {v.field: v for v in good.verdicts if v.norm == "value"}
+    for q in ("deflection", "edge_slope"):
+        mine = [r for r in rows if r["field"] == q]
+        assert {r["norm"] for r in mine} == {"value"} and [int(r["level"]) for r in mine] == [0, 1, 2]
+        for key in ("value", "exact", "error"):
+            assert [float(r[key]) for r in mine] == [lv.quantities[q][key] for lv in good.levels]
+        assert mine[0]["order"] == "" and [float(r["order"]) for r in mine[1:]] == list(good.quantity_orders(q))
+        assert {r["verdict"] for r in mine} == {verdicts[q].status}
+        assert {float(r["observed_order"]) for r in mine} == {verdicts[q].observed}
+
+
+def _without_quantity_on(result, name, level):
+    """The study as if the solver had left quantity ``name`` out on one level."""
+    levels = tuple(dataclasses.replace(lv, quantities={q: d for q, d in lv.quantities.items()
+                                                       if not (q == name and lv.level == level)})
+                   for lv in result.levels)
+    return dataclasses.replace(result, levels=levels)
+
+
+def test_markdown_and_html_have_a_table_per_quantity(good):
+    md, page = markdown_text(good), html_text(good, figures=False)
+    for q in ("deflection", "edge_slope"):
+        section = md[md.index(f"### Quantity {q}"):]
+        lines = section.splitlines()
+        assert lines[2] == "| Level | Grid | h | Value | Exact | Error | Order | Run time (s) |"
+        orders = good.quantity_orders(q)
+        for i, lv in enumerate(good.levels):
+            d = lv.quantities[q]
+            cells = [c.strip() for c in lines[4 + i].strip("|").split("|")]
+            assert float(cells[3]) == pytest.approx(d["value"], rel=1e-7)
+            assert float(cells[4]) == pytest.approx(d["exact"], rel=1e-7)
+            assert float(cells[5]) == pytest.approx(d["error"], rel=1e-3)
+            assert cells[6] == ("-" if i == 0 else f"{orders[i - 1]:.2f}")
+        assert f"<h3>Quantity {q}</h3>" in page
+        table = page[page.index(f"<h3>Quantity {q}</h3>"):].split("</table>")[0]
+        assert table.count("<tr>") == 1 + len(good.levels)
+        assert f"<td class=num>{good.levels[-1].quantities[q]['value']:.8g}</td>" in table
+        assert f"<td class=num>{orders[-1]:.2f}</td>" in table
+    # quantities come after the fields' evidence and before the cautions
+    assert md.index("### Field u") < md.index("### Quantity deflection") < md.index("## Cautions")
+    # a level whose solver left the quantity out says so instead of showing numbers
+    gap = _without_quantity_on(good, "edge_slope", 1)
+    row = markdown_text(gap).split("### Quantity edge_slope")[1].splitlines()[5]
+    assert row.startswith("| 1 | 16x16 cells |") and "not reported" in row
+    assert "<td class=num>not reported</td>" in html_text(gap, figures=False)
+
+
+def test_fields_only_study_has_no_quantity_tables(partial):
+    assert partial.quantities == ()
+    assert "### Quantity" not in markdown_text(partial) and "Quantity" not in html_text(partial, figures=False)
+    assert {r["norm"] for r in csv.DictReader(io.StringIO(csv_text(partial)))} <= set(NORMS) | {""}
+
+
+def test_report_from_json_writes_beside_it_by_default(good, tmp_path, monkeypatch, capsys):
+    from mmsverify.cli import main
+    saved = tmp_path / "runs" / "study.json"
+    write_json(good, saved)
+    elsewhere = tmp_path / "cwd"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)
+    assert main(["report", "--from", str(saved), "--formats", "csv,md", "--quiet"]) == 0
+    stem = "plate-poisson_poisson2d"
+    assert sorted(p.name for p in saved.parent.iterdir()) == sorted(
+        ["study.json", f"{stem}.csv", f"{stem}.md", f"{stem}_figures"])
+    assert list(elsewhere.iterdir()) == []
+    # -o still chooses the folder, and a study that is run (not read) still defaults to ./mmsverify-report
+    assert main(["report", "--from", str(saved), "-o", "out", "--formats", "csv", "--quiet"]) == 0
+    assert (elsewhere / "out" / f"{stem}.csv").is_file()
+    assert main(["report", "plate-poisson", "poisson2d", "--levels", "3", "--formats", "csv", "--quiet"]) == 0
+    assert (elsewhere / "mmsverify-report" / f"{stem}.csv").is_file()
+    capsys.readouterr()

@@ -1,6 +1,7 @@
 """``mmsverify report``: a study as Markdown, HTML, JSON and CSV files with figures."""
 
 import sys
+from pathlib import Path
 
 from ..errors import MMSError
 from ..progress import QUIET, progress_for, verbosity
@@ -41,7 +42,8 @@ def _report(args):
             pointwise = finest_error(result, solver=args.solver or None, problem=args.problem or None)
         except MMSError as exc:  # the reports are still worth writing without the map
             print(f"mmsverify report: no error map: {exc}", file=sys.stderr)
-    written = write_reports(result, args.output, formats, pointwise, stem=args.name)
+    output = args.output or (Path(args.source).parent if args.source else _DEFAULT_OUTPUT)
+    written = write_reports(result, output, formats, pointwise, stem=args.name)
     if verbosity(args) == QUIET:
         print(f"{outcome(result).upper()}: {headline(result)}")
     else:
@@ -51,6 +53,10 @@ def _report(args):
         for path in written.values():
             print(f"wrote {path}")
     return exit_code(result)
+
+
+#: Folder for the files of a study run by the command (a study read with --from is written beside its JSON).
+_DEFAULT_OUTPUT = "mmsverify-report"
 
 
 def register(sub):
@@ -64,8 +70,9 @@ def register(sub):
     add_study_options(p)
     p.add_argument("--from", dest="source", metavar="STUDY_JSON",
                    help="draw the reports from a study JSON written by this command instead of running")
-    p.add_argument("-o", "--output", default="mmsverify-report", metavar="DIR",
-                   help="folder for the files (default ./mmsverify-report)")
+    p.add_argument("-o", "--output", metavar="DIR",
+                   help=f"folder for the files (default ./{_DEFAULT_OUTPUT}; with --from, the folder of the "
+                        "study JSON, so the reports land beside it)")
     p.add_argument("--formats", default=",".join(FORMATS),
                    help=f"comma-separated subset of {','.join(FORMATS)} (default all)")
     p.add_argument("--name", help="file name stem (default <problem>_<solver>)")

@@ -23,6 +23,7 @@ from ..norms import NORMS
 from ..study import LevelResult, StudyResult
 from ..verdict import Verdict
 from ._common import level_rows, outcome
+from ._quantities import quantity_rows
 from .text import CAUTION
 
 __all__ = ["FORMAT", "FORMAT_VERSION", "CSV_COLUMNS", "study_to_data", "study_from_data", "write_json",
@@ -31,10 +32,11 @@ __all__ = ["FORMAT", "FORMAT_VERSION", "CSV_COLUMNS", "study_to_data", "study_fr
 FORMAT = "mmsverify.study"
 FORMAT_VERSION = 1
 
-#: Columns of the CSV file, one row per level, field and norm.
+#: Columns of the CSV file, one row per level, field and norm, then one per level and reported quantity
+#: (``field`` its name, ``norm`` ``"value"``; ``value`` and ``exact`` are empty on field rows).
 CSV_COLUMNS = ("problem", "solver", "mode", "level", "cells", "steps", "h", "dt", "status", "seconds",
                "n_points", "field", "norm", "error", "order", "scale", "formal_order", "tolerance",
-               "verdict", "observed_order", "message")
+               "verdict", "observed_order", "message", "value", "exact")
 
 
 def _clean(x):
@@ -166,6 +168,11 @@ def read_json(path):
     return study_from_data(load_json_file(path), str(path))
 
 
+def _level_cells(base, lv):
+    return dict(base, level=lv.level, cells="x".join(map(str, lv.grid.cells)), steps=lv.grid.steps, h=lv.h,
+                dt=lv.grid.dt, status=lv.status, seconds=lv.seconds, n_points=lv.n_points)
+
+
 def _csv_rows(result):
     verdicts = {(v.field, v.norm): v for v in result.verdicts}
     base = {"problem": result.problem, "solver": result.solver, "mode": result.mode,
@@ -174,17 +181,24 @@ def _csv_rows(result):
     for f in fields:
         rows = level_rows(result, f) if f else [{"level": lv.level} for lv in result.levels]
         for row, lv in zip(rows, result.levels):
-            common = dict(base, level=lv.level, cells="x".join(map(str, lv.grid.cells)), steps=lv.grid.steps,
-                          h=lv.h, dt=lv.grid.dt, status=lv.status, seconds=lv.seconds, n_points=lv.n_points,
-                          field=f, scale=lv.scale.get(f), message=lv.message.splitlines()[0] if lv.message else "")
+            common = dict(_level_cells(base, lv), field=f, scale=lv.scale.get(f),
+                          message=lv.message.splitlines()[0] if lv.message else "")
             for n in NORMS if lv.ok else ("",):
                 v = verdicts.get((f, n))
                 yield dict(common, norm=n, error=row.get(f"error_{n}"), order=row.get(f"order_{n}"),
                            verdict=v.status if v else "", observed_order=v.observed if v else None)
+    for q in result.quantities:
+        v = verdicts.get((q, "value"))
+        for row, lv in zip(quantity_rows(result, q), result.levels):
+            if row["reported"]:  # a failed level has its rows under the fields already
+                yield dict(_level_cells(base, lv), field=q, norm="value", error=row["error"], order=row["order"],
+                           value=row["value"], exact=row["exact"], verdict=v.status if v else "",
+                           observed_order=v.observed if v else None, message="")
 
 
 def csv_text(result):
-    """The study as CSV text: one row per level, field and norm (failed levels: one row per field)."""
+    """The study as CSV text: one row per level, field and norm (failed levels: one row per field), then one
+    per level and reported quantity (see ``docs/json-schema.md``)."""
     buf = io.StringIO()
     w = csv.DictWriter(buf, fieldnames=CSV_COLUMNS, lineterminator="\n")
     w.writeheader()

@@ -10,6 +10,7 @@ from pathlib import Path
 from ..norms import NORMS
 from ._common import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
                       notes, outcome, study_facts)
+from ._quantities import quantity_rows
 from .text import CAUTION
 
 __all__ = ["markdown_text", "write_markdown"]
@@ -63,6 +64,20 @@ def markdown_text(result, images=None):
                 row += [c for n in NORMS for c in (fmt_num(r[f"error_{n}"]), fmt_order(r[f"order_{n}"]))]
             rows.append(row + [f"{r['seconds']:.3g}"])
         out += _table(header, rows)
+    for q in result.quantities:
+        out += ["", f"### Quantity {q}", ""]
+        rows = []
+        for r in quantity_rows(result, q):
+            row = [r["level"], r["grid"], f"{r['h']:.4g}"]
+            if r["status"] != "ok":
+                row += [f"failed: {r['message']}", "", "", ""]
+            elif not r["reported"]:
+                row += ["not reported", "", "", ""]
+            else:
+                row += [fmt_num(r["value"], ".8g"), fmt_num(r["exact"], ".8g"), fmt_num(r["error"]),
+                        fmt_order(r["order"])]
+            rows.append(row + [f"{r['seconds']:.3g}"])
+        out += _table(["Level", "Grid", size, "Value", "Exact", "Error", "Order", "Run time (s)"], rows)
     if images:
         out += ["", "### Figures"]
         for name, target in images.items():

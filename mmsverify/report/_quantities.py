@@ -1,0 +1,45 @@
+"""Rows of a reported quantity's evidence table, shared by the Markdown, HTML and CSV writers.
+
+Mirrors :func:`mmsverify.report._common.level_rows` for the functionals a
+solver reports under ``Solution.quantities`` (declared under
+``[quantities]``): one value, its exact value and the error per level.
+"""
+
+import numpy as np
+
+__all__ = ["quantity_rows"]
+
+
+def quantity_rows(result, name):
+    """Rows of the evidence table of one reported quantity.
+
+    Parameters
+    ----------
+    result : StudyResult
+    name : str
+        A name in ``result.quantities``.
+
+    Returns
+    -------
+    list of dict
+        One per level with keys ``level``, ``grid``, ``h``, ``seconds``,
+        ``status``, ``message``, ``reported`` (False where a successful
+        level's solver left the quantity out), ``value``, ``exact``,
+        ``error`` and ``order`` (observed order between this level and the
+        previous level that reported the quantity). Numbers are None where
+        there is none.
+    """
+    ok = [lv for lv in result.levels if lv.ok and name in lv.quantities]
+    orders = result.quantity_orders(name)
+    rows = []
+    for lv in result.levels:
+        row = {"level": lv.level, "grid": lv.grid.describe(), "h": lv.h, "seconds": lv.seconds,
+               "status": lv.status, "message": lv.message, "reported": lv in ok,
+               "value": None, "exact": None, "error": None, "order": None}
+        if lv in ok:
+            i = ok.index(lv)
+            row.update({k: float(lv.quantities[name][k]) for k in ("value", "exact", "error")})
+            p = orders[i - 1] if i else None
+            row["order"] = float(p) if p is not None and np.isfinite(p) else None
+        rows.append(row)
+    return rows
