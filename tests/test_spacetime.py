@@ -5,7 +5,7 @@ import pytest
 import scipy.sparse as sps
 import scipy.sparse.linalg as spla
 
-from mmsverify import GridError, Solution, load_problem
+from mmsverify import GridError, Solution
 from mmsverify.spacetime import run_space_time
 
 
@@ -76,3 +76,56 @@ def test_the_frozen_resolution_is_refined_until_its_error_is_negligible():
     # temporal error would drown in the frozen spatial error; the split study refines the grid itself
     from mmsverify.cli import main
     assert main(["split", "slab-heat", "fd-heat-cn"]) == 0
+
+
+def test_a_refinement_past_the_budget_is_not_run_and_the_result_says_so():
+    # Crank-Nicolson is O(dt**2) (LeVeque 2007, sec. 9.6): at the default frozen 256 cells its temporal
+    # errors drown in the frozen spatial error, so the split study wants to freeze finer; with no budget
+    # it must keep 256 cells and tell what to run instead
+    refined = run_space_time("slab-heat", "fd-heat-cn", levels=3)
+    assert refined.time.levels[-1].grid.cells[0] > 256 and refined.notes == ()
+    r = run_space_time("slab-heat", "fd-heat-cn", levels=3, refine_budget=0)
+    assert {lv.grid.cells[0] for lv in r.time.levels} == {128}   # 8 * 2**(3 + 1), never refined
+    assert [lv.grid for lv in r.space.levels] == [lv.grid for lv in refined.space.levels]  # untouched
+    assert len(r.notes) == 1
+    note = r.notes[0]
+    assert note.startswith("the temporal study's frozen 128 cells per direction")
+    assert "past the refinement budget of 0 s" in note and "polluted" in note
+    command = note.splitlines()[-1]
+    assert command.startswith("mmsverify split slab-heat fd-heat-cn --levels 3 --fine-cells ")
+    suggested = int(command.split("--fine-cells ")[1])
+    factor = suggested // 128
+    assert suggested % 128 == 0 and factor > 1 and factor & (factor - 1) == 0   # frozen cells times 2**k
+    assert "note: the temporal study's frozen 128 cells" in str(r)
+    assert f"\n    {command}\n" in str(r)                     # the command is not broken across lines
+
+
+def test_the_suggested_command_freezes_fine_enough():
+    # common practice: the advice of the note, followed, gives a study without the note
+    r = run_space_time("slab-heat", "fd-heat-cn", levels=3, refine_budget=0)
+    suggested = int(r.notes[0].splitlines()[-1].split("--fine-cells ")[1])
+    followed = run_space_time("slab-heat", "fd-heat-cn", levels=3, fine_cells=suggested, refine_budget=0)
+    assert followed.notes == () and followed.time.passed, str(followed)
+
+
+def test_split_command_budget_option_and_progress_of_every_study(capsys):
+    from mmsverify.cli import main
+    assert main(["split", "slab-heat", "fd-heat-cn", "--refine-budget", "0", "--verbose"]) == 1
+    out, err = capsys.readouterr()
+    assert "note: the temporal study's frozen 256 cells" in out and "--refine-budget" in out
+    assert "--fine-cells" in out
+    assert err.count("time study, cells fixed at 256: ") == 4 and "combined study: 4/4 levels run" in err
+    assert "past the refinement budget" in err                 # said as it happens, with --verbose
+    # with the default budget the reruns at finer frozen cells show their levels too
+    assert main(["split", "slab-heat", "fd-heat-cn", "--verbose"]) == 0
+    out, err = capsys.readouterr()
+    assert "note: the temporal study" not in out
+    assert "freezing the time study's cells finer: 256 -> " in err
+    reruns = [line for line in err.splitlines() if line.startswith("slab-heat / fd-heat-cn, time study, cells fixed at")
+              and "cells fixed at 256:" not in line]
+    assert reruns and len(reruns) % 4 == 0                     # every level of every rerun is shown
+
+
+def test_a_negative_budget_is_refused():
+    with pytest.raises(GridError, match="refinement budget"):
+        run_space_time("slab-heat", theta_heat(1.0), refine_budget=-1)

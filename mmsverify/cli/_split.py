@@ -5,9 +5,22 @@ from . import EXIT_FAIL, EXIT_OK
 
 
 def _split(args):
-    r = run_space_time(args.problem, args.solver, levels=args.levels or 4, base_cells=args.base_cells,
+    from ..progress import progress_for
+    levels = args.levels or 4
+    shown = []
+
+    def study_progress(label):  # one progress line per level of each study, the reruns included
+        if shown:
+            getattr(shown[-1], "close", lambda: None)()
+        shown.append(progress_for(args, levels, f"{args.problem} / {args.solver}, {label}"))
+        return shown[-1]
+
+    r = run_space_time(args.problem, args.solver, levels=levels, base_cells=args.base_cells,
                        base_steps=args.base_steps, ratio=args.ratio or 2.0, fine_cells=args.fine_cells,
-                       fine_steps=args.fine_steps, tolerance=args.tolerance)
+                       fine_steps=args.fine_steps, tolerance=args.tolerance, refine_budget=args.refine_budget,
+                       study_progress=study_progress)
+    if shown:
+        getattr(shown[-1], "close", lambda: None)()  # end a live progress line before the tables
     print(r)
     return EXIT_OK if r.passed else EXIT_FAIL
 
@@ -25,5 +38,8 @@ def register(sub):
     p.add_argument("--ratio", type=float, help="refinement ratio (default 2)")
     p.add_argument("--fine-cells", type=int, help="frozen cells of the temporal study")
     p.add_argument("--fine-steps", type=int, help="frozen steps of the spatial study")
+    p.add_argument("--refine-budget", type=float, metavar="SECONDS",
+                   help="solver seconds the automatic refinement of the frozen cells and steps may spend "
+                        "(default 120); past it the report says what to run instead")
     p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order")
     p.set_defaults(func=_split)
