@@ -7,7 +7,9 @@ solver reports under ``Solution.quantities`` (declared under
 
 import numpy as np
 
-__all__ = ["quantity_rows"]
+from ._common import fmt_num, fmt_order
+
+__all__ = ["quantity_rows", "quantity_table"]
 
 
 def quantity_rows(result, name):
@@ -43,3 +45,25 @@ def quantity_rows(result, name):
             row["order"] = float(p) if p is not None and np.isfinite(p) else None
         rows.append(row)
     return rows
+
+
+def quantity_table(result, name, size, first_line=False):
+    """Header, text cells and row status of one quantity's evidence table (Markdown and HTML).
+
+    ``size`` heads the grid-size column (``"h"`` or ``"dt"``); ``first_line``
+    keeps only the first line of a failed level's message.
+    """
+    rows, ok = [], []
+    for r in quantity_rows(result, name):
+        row = [r["level"], r["grid"], f"{r['h']:.4g}"]
+        if r["status"] != "ok":
+            message = (r["message"].splitlines() or [""])[0] if first_line else r["message"]
+            row += [f"failed: {message}", "", "", ""]
+        elif not r["reported"]:
+            row += ["not reported", "", "", ""]
+        else:
+            row += [fmt_num(r["value"], ".8g"), fmt_num(r["exact"], ".8g"), fmt_num(r["error"]),
+                    fmt_order(r["order"])]
+        rows.append(row + [f"{r['seconds']:.3g}"])
+        ok.append(r["status"] == "ok")
+    return ["Level", "Grid", size, "Value", "Exact", "Error", "Order", "Run time (s)"], rows, ok

@@ -13,7 +13,7 @@ from pathlib import Path
 from ..norms import NORMS
 from ._common import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
                       notes, outcome, study_facts)
-from ._quantities import quantity_rows
+from ._quantities import quantity_table
 from .text import CAUTION
 
 __all__ = ["html_text", "write_html", "data_uri"]
@@ -106,20 +106,9 @@ def html_text(result, pointwise=None, fmt="svg", figures=True):
         body.append(_table(header, rows, numeric=tuple(range(2, 4 + 2 * len(NORMS))), row_class=classes))
     for q in result.quantities:
         body.append(f"<h3>Quantity {escape(q)}</h3>")
-        rows, classes = [], []
-        for r in quantity_rows(result, q):
-            row = [r["level"], r["grid"], f"{r['h']:.4g}"]
-            if r["status"] != "ok":
-                row += ["failed: " + (r["message"].splitlines() or [""])[0], "", "", ""]
-            elif not r["reported"]:
-                row += ["not reported", "", "", ""]
-            else:
-                row += [fmt_num(r["value"], ".8g"), fmt_num(r["exact"], ".8g"), fmt_num(r["error"]),
-                        fmt_order(r["order"])]
-            rows.append(row + [f"{r['seconds']:.3g}"])
-            classes.append("" if r["status"] == "ok" else "failed")
-        body.append(_table(["Level", "Grid", size, "Value", "Exact", "Error", "Order", "Run time (s)"], rows,
-                           numeric=tuple(range(2, 8)), row_class=classes))
+        header, rows, ok = quantity_table(result, q, size, first_line=True)
+        body.append(_table(header, rows, numeric=tuple(range(2, 8)),
+                           row_class=["" if good else "failed" for good in ok]))
     if figures:
         from .plots import figure_bytes, study_figures
         for name, fig in study_figures(result, pointwise).items():

@@ -10,7 +10,7 @@ from pathlib import Path
 from ..norms import NORMS
 from ._common import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
                       notes, outcome, study_facts)
-from ._quantities import quantity_rows
+from ._quantities import quantity_table
 from .text import CAUTION
 
 __all__ = ["markdown_text", "write_markdown"]
@@ -66,18 +66,8 @@ def markdown_text(result, images=None):
         out += _table(header, rows)
     for q in result.quantities:
         out += ["", f"### Quantity {q}", ""]
-        rows = []
-        for r in quantity_rows(result, q):
-            row = [r["level"], r["grid"], f"{r['h']:.4g}"]
-            if r["status"] != "ok":
-                row += [f"failed: {r['message']}", "", "", ""]
-            elif not r["reported"]:
-                row += ["not reported", "", "", ""]
-            else:
-                row += [fmt_num(r["value"], ".8g"), fmt_num(r["exact"], ".8g"), fmt_num(r["error"]),
-                        fmt_order(r["order"])]
-            rows.append(row + [f"{r['seconds']:.3g}"])
-        out += _table(["Level", "Grid", size, "Value", "Exact", "Error", "Order", "Run time (s)"], rows)
+        header, rows, _ = quantity_table(result, q, size)
+        out += _table(header, rows)
     if images:
         out += ["", "### Figures"]
         for name, target in images.items():
