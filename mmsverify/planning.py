@@ -96,7 +96,7 @@ def _loglog(x, y):
 
 
 def plan(h, values, times, target, *, kind="error", measure="error", cells=None, dim=None, volume=None,
-         formal_order=None, safety_factor=_FS3):
+         formal_order=None, safety_factor=_FS3, time_unit="time units"):
     """Predict the grid size and run time needed to reach a target error.
 
     Parameters
@@ -109,6 +109,8 @@ def plan(h, values, times, target, *, kind="error", measure="error", cells=None,
         values of a quantity (``kind="solution"``).
     times : array_like
         Measured run time of each level (seconds, or any unit).
+    time_unit : str, optional
+        How the advice names the unit of ``times`` (default ``"time units"``).
     target : float
         Target absolute error (``measure="error"``) or relative GCI as a
         fraction (``measure="gci"``, only with ``kind="solution"``).
@@ -240,7 +242,7 @@ def plan(h, values, times, target, *, kind="error", measure="error", cells=None,
                   "would suffice")
     else:
         advice = (f"run a level with h = {h_need:.4g}" + (f" (about {cells_need:.3g} cells)" if cells_need else "")
-                  + f", expected to take about {time_need:.3g} time units")
+                  + f", expected to take about {time_need:.3g} {time_unit}")
         if not reliable:
             advice = "rough guess only: " + advice + "; the data are too weak for a firm prediction (see reasons)"
     return Plan(float(target), measure, order, const, h_need, cells_need, time_need, b, model, refine, met, reliable,

@@ -165,7 +165,7 @@ def print_plans(result, target):
         try:
             p = plan([lv.h for lv in ok], [lv.errors[f]["L2"] for lv in ok], [lv.seconds for lv in ok], target,
                      cells=[lv.grid.n_cells for lv in ok], dim=ok[-1].grid.dim if ok else None,
-                     formal_order=result.formal_order)
+                     formal_order=result.formal_order, time_unit="s of solver time")
         except AnalysisError as exc:
             print(f"  no plan: {exc}")
             continue
