@@ -139,40 +139,39 @@ def run_space_time(problem, solver, *, levels=4, base_cells=None, base_steps=Non
     # Each study's frozen error, estimated from the other study's finest error and formal order, must sit
     # well below the errors it measures; when it does not, freeze finer and run that study again, as long
     # as the estimated cost of the rerun keeps the refinement within the budget.
+    frozen, studies, fixed = {"h": fine_cells, "dt": fine_steps}, {"h": time_study, "dt": space_study}, \
+        {"h": user_cells, "dt": user_steps}
     spent, refused = 0.0, {}
+
+    def refine(axis):
+        """Freeze this axis finer and rerun its study if its frozen error needs it and the budget allows."""
+        nonlocal spent
+        other = studies["dt" if axis == "h" else "h"]
+        order, what = (p_space, ("time study's cells", "cells of the time study")) if axis == "h" else \
+            (p_time, ("space study's steps", "steps of the space study"))
+        more = 1.0 if fixed[axis] or axis in refused else _refine_frozen(studies[axis], other, order, axis)
+        if more <= 1:
+            return False
+        old = frozen[axis]
+        new = int(round(old * more))
+        cost = _cost(studies[axis]) * (new / old) ** (problem.dim if axis == "h" else 1)
+        if spent + cost > budget:
+            refused[axis] = cost
+            _log.info("frozen %s stay at %d: refining to %d would take about %s, past the refinement budget of %s",
+                      what[1], old, new, _duration(cost), _duration(budget))
+            return False
+        _log.info("freezing the %s finer: %d -> %d (about %s)", what[0], old, new, _duration(cost))
+        frozen[axis] = new
+        studies[axis] = study("time", new, base_steps) if axis == "h" else study("space", base_cells, new)
+        spent += _cost(studies[axis])
+        return True
+
     for _ in range(_ROUNDS):
-        more_cells = 1.0 if user_cells or "h" in refused else _refine_frozen(time_study, space_study, p_space, "h")
-        if more_cells > 1:
-            new = int(round(fine_cells * more_cells))
-            cost = _cost(time_study) * (new / fine_cells) ** problem.dim
-            if spent + cost > budget:
-                refused["h"] = cost
-                more_cells = 1.0
-                _log.info("frozen cells of the time study stay at %d: refining to %d would take about %s, "
-                          "past the refinement budget of %s", fine_cells, new, _duration(cost), _duration(budget))
-            else:
-                _log.info("freezing the time study's cells finer: %d -> %d (about %s)", fine_cells, new,
-                          _duration(cost))
-                fine_cells = new
-                time_study = study("time", fine_cells, base_steps)
-                spent += _cost(time_study)
-        more_steps = 1.0 if user_steps or "dt" in refused else _refine_frozen(space_study, time_study, p_time, "dt")
-        if more_steps > 1:
-            new = int(round(fine_steps * more_steps))
-            cost = _cost(space_study) * new / fine_steps
-            if spent + cost > budget:
-                refused["dt"] = cost
-                more_steps = 1.0
-                _log.info("frozen steps of the space study stay at %d: refining to %d would take about %s, "
-                          "past the refinement budget of %s", fine_steps, new, _duration(cost), _duration(budget))
-            else:
-                _log.info("freezing the space study's steps finer: %d -> %d (about %s)", fine_steps, new,
-                          _duration(cost))
-                fine_steps = new
-                space_study = study("space", base_cells, fine_steps)
-                spent += _cost(space_study)
-        if more_cells == 1 and more_steps == 1:
+        refined = [refine(axis) for axis in ("h", "dt")]    # both axes, in this order, every round
+        if not any(refined):
             break
+    fine_cells, fine_steps = frozen["h"], frozen["dt"]
+    time_study, space_study = studies["h"], studies["dt"]
     combined = study("combined", base_cells, base_steps)
     plan.update(fine_cells=fine_cells if user_cells else None, fine_steps=fine_steps if user_steps else None)
     notes = []
