@@ -146,12 +146,12 @@ class Manufactured:
     def exact(self, name, *coords, t=None):
         """Exact value of a field."""
         self._check_field(name)
-        return self._eval(f"exact_{name}", lambda: self.problem.fields[name], coords, t)
+        return self._eval(f"exact_{name}", lambda: self.problem.code_table("fields")[name], coords, t)
 
     def source(self, name, *coords, t=None):
         """Manufactured source term of an equation (named after its field)."""
         self._check_field(name, "equations", "equation")
-        return self._eval(f"source_{name}", lambda: self.problem.equations[name], coords, t)
+        return self._eval(f"source_{name}", lambda: self.problem.code_table("equations")[name], coords, t)
 
     def initial(self, name, *coords):
         """Initial value of a field at the start of the time interval."""
@@ -169,20 +169,28 @@ class Manufactured:
         self._side(side)
         return self.exact(name, *coords, t=t)
 
-    def normal_derivative_expr(self, name, side):
+    def normal_derivative_expr(self, name, side, table="fields"):
+        """Outward normal derivative of a field on a side, as a sympy expression.
+
+        ``table="code"`` gives it in the form evaluator code is generated from
+        (symengine for a problem read by the fast engine; see :meth:`Problem.code_table`).
+        """
         axis, sign = self._side(side)
         self._check_field(name)
+        if table == "code":
+            return sign * self.problem.code_table("fields")[name].diff(self.problem.code_symbols()[0][axis])
         return sign * sp.diff(self.problem.fields[name], self.problem.coords[axis])
 
     def normal_derivative(self, name, side, *coords, t=None):
         """Outward normal derivative ``grad(u) . n`` of a field on a side."""
         self._side(side)
         self._check_field(name)
-        return self._eval(f"dudn_{name}_{side}", lambda: self.normal_derivative_expr(name, side), coords, t)
+        return self._eval(f"dudn_{name}_{side}", lambda: self.normal_derivative_expr(name, side, "code"), coords, t)
 
-    def normal_flux_expr(self, name, side):
+    def normal_flux_expr(self, name, side, table="fluxes"):
+        """Outward normal flux of a field on a side (``table="code"``: as for :meth:`normal_derivative_expr`)."""
         axis, sign = self._side(side)
-        flux = self.problem.fluxes.get(name)
+        flux = (self.problem.code_table("fluxes") if table == "code" else self.problem.fluxes).get(name)
         if flux is None:
             raise ProblemError(f"{self.problem.name}: operator {self.problem.operator} defines no flux for "
                                f"{name!r}; use normal_derivative instead")
@@ -193,12 +201,12 @@ class Manufactured:
         self._side(side)
         if name not in self.problem.names("fluxes"):
             self.normal_flux_expr(name, side)   # raises: no flux for this field
-        return self._eval(f"flux_{name}_{side}", lambda: self.normal_flux_expr(name, side), coords, t)
+        return self._eval(f"flux_{name}_{side}", lambda: self.normal_flux_expr(name, side, "code"), coords, t)
 
     def parameter(self, name, *coords, t=None):
         """An operator parameter (coefficient) evaluated with the exact fields."""
         self._check_field(name, "parameters", "parameter")
-        return self._eval(f"parameter_{name}", lambda: self.problem.parameters[name], coords, t)
+        return self._eval(f"parameter_{name}", lambda: self.problem.code_table("parameters")[name], coords, t)
 
     def exact_quantity(self, name, t=None):
         """Exact value of a functional declared under ``[quantities]``.
@@ -211,7 +219,7 @@ class Manufactured:
         p = self.problem
         self._check_field(name, "quantities", "quantity")
         kind, where, _ = p.quantity_info(name)
-        expr = lambda: p.quantities[name][1]  # noqa: E731  (built only when no code is cached)
+        expr = lambda: p.code_table("quantities")[name][1]  # noqa: E731  (built only when no code is cached)
         if p.t is not None and t is None:
             t = p.t_range[1]
         if kind == "point":

@@ -107,12 +107,28 @@ class Operator:
         return split(q, X, t, par)
 
 
+def _d(expr, *spec):
+    """Derivative through the expression's own method: sympy and symengine expressions alike."""
+    return expr.diff(*spec) if hasattr(expr, "diff") else sp.diff(expr, *spec)
+
+
+def _sum(terms):
+    """Sum of a list of sympy or symengine expressions (sympy: one flattening ``Add``)."""
+    terms = list(terms)
+    if not any(type(term).__module__.startswith("symengine") for term in terms):
+        return sp.Add(*terms)
+    out = 0
+    for term in terms:
+        out = term + out
+    return out
+
+
 def _grad(u, X):
-    return [sp.diff(u, xi) for xi in X]
+    return [_d(u, xi) for xi in X]
 
 
 def _div(vec, X):
-    return sp.Add(*[sp.diff(c, xi) for c, xi in zip(vec, X)])
+    return _sum([_d(c, xi) for c, xi in zip(vec, X)])
 
 
 def _scalar(q):
@@ -124,7 +140,7 @@ def _diffusion(q, X, t, par):
     name, u = _scalar(q)
     r = -_div([par["k"] * g for g in _grad(u, X)], X)
     if t is not None:
-        r += par["rho_c"] * sp.diff(u, t)
+        r += par["rho_c"] * _d(u, t)
     return {name: r}
 
 
@@ -136,24 +152,24 @@ def _diffusive_flux(q, X, par):
 def _advection_diffusion(q, X, t, par):
     name, u = _scalar(q)
     a = [par[c] for c in ("ax", "ay", "az")[: len(X)]]
-    r = sp.Add(*[ai * g for ai, g in zip(a, _grad(u, X))]) - _div([par["k"] * g for g in _grad(u, X)], X)
+    r = _sum([ai * g for ai, g in zip(a, _grad(u, X))]) - _div([par["k"] * g for g in _grad(u, X)], X)
     if t is not None:
-        r += sp.diff(u, t)
+        r += _d(u, t)
     return {name: r}
 
 
 def _burgers(q, X, t, par):
     name, u = _scalar(q)
     (x,) = X
-    r = u * sp.diff(u, x) - par["nu"] * sp.diff(u, x, 2)
+    r = u * _d(u, x) - par["nu"] * _d(u, x, 2)
     if t is not None:
-        r += sp.diff(u, t)
+        r += _d(u, t)
     return {name: r}
 
 
 def _burgers_flux(q, X, par):
     name, u = _scalar(q)
-    return {name: [par["nu"] * sp.diff(u, X[0])]}
+    return {name: [par["nu"] * _d(u, X[0])]}
 
 
 def _navier_stokes(q, X, t, par):
@@ -162,12 +178,12 @@ def _navier_stokes(q, X, t, par):
     rho, nu = par["rho"], par["nu"]
     res = {}
     for name, c, xi in (("u", u, x), ("v", v, y)):
-        r = u * sp.diff(c, x) + v * sp.diff(c, y) + sp.diff(p, xi) / rho \
-            - nu * (sp.diff(c, x, 2) + sp.diff(c, y, 2))
+        r = u * _d(c, x) + v * _d(c, y) + _d(p, xi) / rho \
+            - nu * (_d(c, x, 2) + _d(c, y, 2))
         if t is not None:
-            r += sp.diff(c, t)
+            r += _d(c, t)
         res[name] = r
-    res["p"] = sp.diff(u, x) + sp.diff(v, y)
+    res["p"] = _d(u, x) + _d(v, y)
     return res
 
 

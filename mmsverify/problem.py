@@ -71,7 +71,7 @@ import tomllib
 
 import sympy as sp
 
-from . import _diskcache
+from . import _diskcache, _fast
 from .errors import ProblemError, MMSError
 from .expr import _Timeout, _time_limit, parse_expression
 from .operators import OPERATORS, get_operator, derivative_functions
@@ -176,16 +176,49 @@ class Problem:
     # (with sympy's deferred imports) is most of the time of a warm start.
     _SYMBOLIC = ("fields", "parameters", "equations", "fluxes", "quantities", "bounds")
 
+    #
+    # A problem read by the fast engine (mmsverify._fast) holds symengine tables for code
+    # generation instead, and builds its sympy tables from the file text when first asked.
+
     def __getattr__(self, name):
         # Called only when normal lookup fails: a symbolic table not yet built.
         if name not in Problem._SYMBOLIC:
             raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
         blob = self.__dict__.get("_symbolic")
         if blob is not None:
-            for key, value in pickle.loads(blob).items():
-                object.__setattr__(self, key, value)
-            self.__dict__.pop("_symbolic", None)
+            tables = pickle.loads(blob)
+        elif "_text" in self.__dict__:
+            tables = _sympy_tables(self.__dict__["_text"], self.source)
+        else:
+            raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
+        for key, value in tables.items():
+            object.__setattr__(self, key, value)
+        self.__dict__.pop("_symbolic", None)
         return object.__getattribute__(self, name)
+
+    def _fast_tables(self):
+        """The symengine tables of a problem read by the fast engine, else None."""
+        d = self.__dict__
+        if "_fast" not in d and "_fast_blob" in d:
+            object.__setattr__(self, "_fast", pickle.loads(d["_fast_blob"]))
+        return d.get("_fast")
+
+    def _tables(self):
+        """The tables code and hashes are made from: symengine ones when the fast engine read it."""
+        fast = self._fast_tables()
+        return fast if fast is not None else {k: getattr(self, k) for k in Problem._SYMBOLIC}
+
+    def code_table(self, table):
+        """One table as evaluator code is generated from it (symengine or sympy expressions)."""
+        fast = self._fast_tables()
+        return fast[table] if fast is not None else getattr(self, table)
+
+    def code_symbols(self):
+        """Space coordinates and time (None when steady) as symbols of the :meth:`code_table` expressions."""
+        if self._fast_tables() is None:
+            return self.coords, self.t
+        from symengine import Symbol
+        return tuple(Symbol(str(c)) for c in self.coords), (Symbol("t") if self.t is not None else None)
 
     def names(self, table):
         """Keys of one symbolic table (``"fields"``, ``"equations"``, ...), without building it."""
@@ -204,8 +237,8 @@ class Problem:
         memo = self.__dict__.get("_parameter_info")
         if memo is None:
             memo = {}
-            for key, expr in self.parameters.items():
-                expr = sp.sympify(expr)
+            for key, expr in self._tables()["parameters"].items():
+                expr = expr if _fast.is_fast(expr) else sp.sympify(expr)
                 free = tuple(sorted(str(s) for s in expr.free_symbols))
                 memo[key] = (None if free else float(expr), free)
             object.__setattr__(self, "_parameter_info", memo)
@@ -232,12 +265,29 @@ class Problem:
         self.bounds_hash()
         self._parameter_table()
         out = copy.copy(self)
-        tables = {k: getattr(self, k) for k in Problem._SYMBOLIC}
+        tables = self._tables()
         for k in Problem._SYMBOLIC:
             out.__dict__.pop(k, None)
         out.__dict__["_names"] = {k: tuple(v) for k, v in tables.items()}
         out.__dict__["_quantity_info"] = {k: (q[0], q[2], q[3]) for k, q in tables["quantities"].items()}
-        out.__dict__["_symbolic"] = pickle.dumps(tables, protocol=pickle.HIGHEST_PROTOCOL)
+        blob = pickle.dumps(tables, protocol=pickle.HIGHEST_PROTOCOL)
+        if self._fast_tables() is not None:
+            out.__dict__.pop("_fast", None)
+            out.__dict__["_fast_blob"] = blob
+        else:
+            out.__dict__["_symbolic"] = blob
+        return out
+
+    def _fast_form(self, text):
+        """This problem (read by the fast engine) as kept: symengine tables aside, sympy ones on demand."""
+        out = copy.copy(self)
+        tables = {k: self.__dict__[k] for k in Problem._SYMBOLIC}
+        for k in Problem._SYMBOLIC:
+            out.__dict__.pop(k)
+        out.__dict__["_fast"] = tables
+        out.__dict__["_text"] = text
+        out.__dict__["_names"] = {k: tuple(v) for k, v in tables.items()}
+        out.__dict__["_quantity_info"] = {k: (q[0], q[2], q[3]) for k, q in tables["quantities"].items()}
         return out
 
     def renamed(self, name, source):
@@ -268,15 +318,16 @@ class Problem:
         memo = self.__dict__.get("_content_hash")
         if memo is not None:
             return memo
+        tab, srepr = self._tables(), _fast.srepr
         blob = json.dumps({
             "coords": [str(c) for c in self.coords], "t": str(self.t),
             "box": [self.lower, self.upper, self.t_range],
-            "fields": {k: sp.srepr(v) for k, v in self.fields.items()},
-            "equations": {k: sp.srepr(v) for k, v in self.equations.items()},
-            "fluxes": {k: [sp.srepr(c) for c in v] for k, v in self.fluxes.items()},
+            "fields": {k: srepr(v) for k, v in tab["fields"].items()},
+            "equations": {k: srepr(v) for k, v in tab["equations"].items()},
+            "fluxes": {k: [srepr(c) for c in v] for k, v in tab["fluxes"].items()},
             "boundaries": sorted(f"{f}:{s}:{k}" for (f, s), k in self.boundaries.items()),
-            "quantities": {k: [q[0], sp.srepr(q[1]), str(q[2])] for k, q in self.quantities.items()},
-            "parameters": {k: sp.srepr(v) for k, v in self.parameters.items()},
+            "quantities": {k: [q[0], srepr(q[1]), str(q[2])] for k, q in tab["quantities"].items()},
+            "parameters": {k: srepr(v) for k, v in tab["parameters"].items()},
         }, sort_keys=True)
         memo = hashlib.sha256(blob.encode()).hexdigest()
         object.__setattr__(self, "_content_hash", memo)
@@ -286,7 +337,7 @@ class Problem:
         """Short hash of the operator parameters (keys generated programs of them); kept once computed."""
         memo = self.__dict__.get("_parameters_hash")
         if memo is None:
-            text = repr(sorted((k, sp.srepr(v)) for k, v in self.parameters.items()))
+            text = repr(sorted((k, _fast.srepr(v)) for k, v in self._tables()["parameters"].items()))
             memo = hashlib.sha256(text.encode()).hexdigest()[:16]
             object.__setattr__(self, "_parameters_hash", memo)
         return memo
@@ -295,7 +346,7 @@ class Problem:
         """Short hash of the ``[bounds]`` table (not part of the content hash); kept once computed."""
         memo = self.__dict__.get("_bounds_hash")
         if memo is None:
-            text = repr(sorted((k, sp.srepr(e), lo, hi) for k, (e, lo, hi) in self.bounds.items()))
+            text = repr(sorted((k, _fast.srepr(e), lo, hi) for k, (e, lo, hi) in self._tables()["bounds"].items()))
             memo = hashlib.sha256(text.encode()).hexdigest()[:16]
             object.__setattr__(self, "_bounds_hash", memo)
         return memo
@@ -320,8 +371,8 @@ def _line_of(text, section, key):
 class _Reader:
     """Turns a parsed TOML dict into a :class:`Problem`, naming the place of every error."""
 
-    def __init__(self, data, text, source):
-        self.data, self.text, self.source = data, text, source
+    def __init__(self, data, text, source, engine=_fast.SYMPY):
+        self.data, self.text, self.source, self.engine = data, text, source, engine
         self.stage = None  # (section, key) being read, named when the time budget runs out
 
     def where(self, section, key=None):
@@ -360,9 +411,9 @@ class _Reader:
             self.fail(section, key, f"expected an expression in quotes or a number, got {value!r:.60}")
         if isinstance(value, (int, float)):
             self.number(section, key, value)
-            return sp.nsimplify(value) if isinstance(value, int) else sp.Float(value)
+            return self.engine.number(value)
         try:
-            return parse_expression(value, names, functions=functions, where=self.where(section, key))
+            return self.engine.parse(value, names, functions=functions, where=self.where(section, key))
         except MMSError:
             raise
         except Exception as exc:  # sympy may fail on a legal but meaningless expression
@@ -401,8 +452,9 @@ class _Reader:
             if not hi > lo:
                 self.fail("domain", a, f"upper bound {hi} must exceed lower bound {lo}")
             box[a] = (lo, hi)
-        coords = tuple(sp.Symbol(a, real=True) for a in axes)
-        t = sp.Symbol("t", real=True) if "t" in box else None
+        # symbols of the engine's expressions; the Problem holds sympy symbols of the same names
+        coords = tuple(self.engine.symbol(a) for a in axes)
+        t = self.engine.symbol("t") if "t" in box else None
 
         names = {str(c): c for c in coords}
         if t is not None:
@@ -412,7 +464,7 @@ class _Reader:
             if not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", k) or k in names or k in ("pi", "E"):
                 self.fail("constants", k, "a constant needs a new identifier (not x, y, z, t, pi, E)")
             constants[k] = self.number("constants", k, v)
-        const_syms = {k: sp.Float(v) if int(v) != v else sp.Integer(int(v)) for k, v in constants.items()}
+        const_syms = {k: self.engine.number(v if int(v) != v else int(v)) for k, v in constants.items()}
         names.update(const_syms)
 
         fields_tab = self.table("fields", required=True)
@@ -436,6 +488,8 @@ class _Reader:
             self.fail("operator", "kind", f"expected an operator name in quotes, got {kind!r:.60}")
         with_fields = {**names, **fields}
         equations, fluxes, parameters = {}, {}, {}
+        if self.engine is not _fast.SYMPY and kind not in _fast.FAST_OPERATORS:
+            raise _fast.Unsupported(kind)
         if kind == "custom":
             eqs = op_tab.pop("equations", None)
             if not isinstance(eqs, dict) or not eqs:
@@ -495,6 +549,9 @@ class _Reader:
         quantities = self._quantities(with_fields, fields, fluxes, coords, box, axes)
         bounds = self._bounds({**with_fields, **parameters}, fields, parameters)
         equation_text = {k: str(v) for k, v in eqs.items()} if kind == "custom" else {}
+        if self.engine is not _fast.SYMPY:
+            coords = tuple(sp.Symbol(str(c), real=True) for c in coords)
+            t = sp.Symbol("t", real=True) if t is not None else None
         return Problem(bounds=bounds, equation_text=equation_text, quantities=quantities, name=name,
                        description=description, coords=coords, t=t,
                        lower=tuple(box[a][0] for a in axes), upper=tuple(box[a][1] for a in axes),
@@ -505,11 +562,10 @@ class _Reader:
 
     def check_size(self, section, key, expr, what):
         """Refuse a derived expression whose tree has more than MAX_EQUATION_NODES nodes."""
-        for n, _ in enumerate(sp.preorder_traversal(expr)):
-            if n >= MAX_EQUATION_NODES:
-                self.fail(section, key, f"{what} has more than {MAX_EQUATION_NODES} terms and factors after "
-                                        "differentiation; use fewer or simpler terms in the fields (each factor "
-                                        "of a product multiplies the size of every derivative)")
+        if self.engine.nodes(expr, MAX_EQUATION_NODES) > MAX_EQUATION_NODES:
+            self.fail(section, key, f"{what} has more than {MAX_EQUATION_NODES} terms and factors after "
+                                    "differentiation; use fewer or simpler terms in the fields (each factor "
+                                    "of a product multiplies the size of every derivative)")
 
     def _study(self, dim):
         """The [study] table: levels, base_cells, ratio and base_steps, checked."""
@@ -581,8 +637,9 @@ class _Reader:
                 if side not in sides:
                     self.fail("quantities", name, f"flux needs side = one of {', '.join(sides)}")
                 axis, sign = SPACE.index(side[0]), (1 if side.endswith("max") else -1)
-                vec = fluxes.get(f) or [sp.diff(fields[f], c) for c in coords]
-                out[name] = ("flux", (sign * vec[axis]).subs(coords[axis], box[side[0]][side.endswith("max")]), side, f)
+                vec = fluxes.get(f) or [fields[f].diff(c) for c in coords]
+                out[name] = ("flux", self.engine.at(sign * vec[axis], coords[axis], box[side[0]][side.endswith("max")]),
+                             side, f)
             else:
                 at = spec.get("at")
                 if not (isinstance(at, list) and len(at) == len(coords)):
@@ -644,9 +701,11 @@ def problem_from_text(text, source="<text>"):
                 if (name, source) != (cached.name, cached.source):
                     cached = cached.renamed(name, source)
                 return cached
-            reader = _Reader(data, text, source)
-            problem = reader.read()
-            reader.stage = ("operator", "kind")  # the hash prints every derived term
+            problem = _read_fast(data, text, source)
+            if problem is None:
+                reader = _Reader(data, text, source)
+                problem = reader.read()
+                reader.stage = ("operator", "kind")  # the hash prints every derived term
             problem.content_hash()
     except _Timeout:
         section, entry = (reader.stage if reader is not None and reader.stage else (None, None))
@@ -665,6 +724,29 @@ def problem_from_text(text, source="<text>"):
         raise ProblemError(f"{source}: an expression is nested too deeply to differentiate") from None
     _diskcache.store("problem", key, problem._packed())
     return problem
+
+
+def _read_fast(data, text, source):
+    """The problem read by the fast engine (see :mod:`mmsverify._fast`), or None where it steps aside."""
+    engine = _fast.fast_engine()
+    if engine is None:
+        return None
+    try:
+        problem = _Reader(data, text, source, engine).read()
+    except (Exception, RecursionError):  # anything at all: the sympy reader decides and explains
+        return None
+    return problem._fast_form(text)
+
+
+def _sympy_tables(text, source):
+    """The sympy tables of a problem read by the fast engine: its text read again with sympy."""
+    try:
+        with _time_limit(MAX_LOAD_SECONDS):
+            problem = _Reader(tomllib.loads(text), text, source).read()
+    except _Timeout:
+        raise ProblemError(f"{source}: building the sympy form of the problem took longer than "
+                           f"{MAX_LOAD_SECONDS:g} s") from None
+    return {k: getattr(problem, k) for k in Problem._SYMBOLIC}
 
 
 def load_problem(path):

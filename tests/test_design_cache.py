@@ -74,17 +74,17 @@ def test_warm_problem_is_keyed_without_building_its_sympy_tables(cache, audits, 
     expected = cached_design_warnings(cold)
     assert len(audits) == 1
     warm = load_problem("plate-poisson")        # read back from the derivation cache, tables packed
-    assert "_symbolic" in warm.__dict__
+    assert "_fast_blob" in warm.__dict__ and "fields" not in warm.__dict__
     monkeypatch.setattr(design, "audit", _refuse)
     assert cached_design_warnings(warm) == expected
-    assert "_symbolic" in warm.__dict__         # the hit built no expression
+    assert "_fast_blob" in warm.__dict__ and "fields" not in warm.__dict__   # the hit built no expression
 
 
 def test_bounds_hash_is_kept_with_the_cached_problem(cache):
     cold = load_problem(DATA / "narrow-dip.toml")
     warm = load_problem(DATA / "narrow-dip.toml")
-    assert "_symbolic" in warm.__dict__ and warm.bounds_hash() == cold.bounds_hash()
-    assert "_symbolic" in warm.__dict__ and _key(warm, None, None) == _key(cold, None, None)
+    assert "_fast_blob" in warm.__dict__ and warm.bounds_hash() == cold.bounds_hash()
+    assert "fields" not in warm.__dict__ and _key(warm, None, None) == _key(cold, None, None)
 
 
 def test_changed_bounds_give_fresh_warnings(cache, audits):
