@@ -28,6 +28,13 @@ __all__ = ["Manufactured", "derive", "compile_expression"]
 _AXIS = {"x": 0, "y": 1, "z": 2}
 
 
+@lru_cache(maxsize=4)
+def _gauss_legendre(n):
+    nodes, weights = np.polynomial.legendre.leggauss(n)
+    nodes.flags.writeable = weights.flags.writeable = False
+    return nodes, weights
+
+
 @lru_cache(maxsize=512)
 def _compiled(expr, args):
     return Evaluator(build_program(expr, args))
@@ -105,6 +112,7 @@ class Manufactured:
         args = problem.coords + ((problem.t,) if problem.t is not None else ())
         self._args = args
         self._ident = None
+        self._quantities = {}   # (name, t) -> exact value: every level of a study asks again
 
     def __getstate__(self):
         return {"problem": self.problem}
@@ -218,10 +226,17 @@ class Manufactured:
         """
         p = self.problem
         self._check_field(name, "quantities", "quantity")
-        kind, where, _ = p.quantity_info(name)
-        expr = lambda: p.code_table("quantities")[name][1]  # noqa: E731  (built only when no code is cached)
         if p.t is not None and t is None:
             t = p.t_range[1]
+        key = (name, None if t is None else float(t))
+        if key not in self._quantities:
+            self._quantities[key] = self._exact_quantity(name, t)
+        return self._quantities[key]
+
+    def _exact_quantity(self, name, t):
+        p = self.problem
+        kind, where, _ = p.quantity_info(name)
+        expr = lambda: p.code_table("quantities")[name][1]  # noqa: E731  (built only when no code is cached)
         if kind == "point":
             return float(self._eval(f"quantity_{name}", expr, where, t))
         axes = list(range(p.dim))
@@ -230,7 +245,7 @@ class Manufactured:
             axis = _AXIS[where[0]]
             fixed[axis] = p.upper[axis] if where.endswith("max") else p.lower[axis]
             axes.remove(axis)
-        nodes, weights = np.polynomial.legendre.leggauss(64)
+        nodes, weights = _gauss_legendre(64)
         coords, w = [None] * p.dim, 1.0
         for k, a in enumerate(axes):
             lo, hi = p.lower[a], p.upper[a]
