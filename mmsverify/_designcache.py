@@ -31,7 +31,7 @@ from pathlib import Path
 
 from . import _diskcache
 
-__all__ = ["cached_design_warnings"]
+__all__ = ["cached_design_warnings", "cached_only"]
 
 _KIND = "design"
 _CODE = ("design.py", "_designmodel.py", "_designcache.py")
@@ -81,18 +81,28 @@ def cached_design_warnings(problem, formal_order=None, time_order=None):
     list of str
         The same texts :func:`~mmsverify.design.design_warnings` returns.
     """
-    key = None
-    if _diskcache.cache_dir() is not None:
-        try:
-            key = _key(problem, formal_order, time_order)
-        except Exception:  # not a Problem, or a part that cannot be printed: check without the cache
-            key = None
-    if key is not None:
-        hit = _diskcache.load(_KIND, key)
-        if _valid(hit):
-            return hit
+    key, hit = _lookup(problem, formal_order, time_order)
+    if hit is not None:
+        return hit
     from .design import _fast_warnings
     checked, warnings = _fast_warnings(problem, formal_order, time_order)
     if checked and key is not None:
         _diskcache.store(_KIND, key, warnings)
     return warnings
+
+
+def cached_only(problem, formal_order=None, time_order=None):
+    """The warnings of :func:`cached_design_warnings` when the cache has them, else None (nothing is checked)."""
+    return _lookup(problem, formal_order, time_order)[1]
+
+
+def _lookup(problem, formal_order, time_order):
+    """``(key, warnings or None)``; key None when the cache is off or the problem cannot be keyed."""
+    if _diskcache.cache_dir() is None:
+        return None, None
+    try:
+        key = _key(problem, formal_order, time_order)
+    except Exception:  # not a Problem, or a part that cannot be printed: check without the cache
+        return None, None
+    hit = _diskcache.load(_KIND, key)
+    return key, (hit if _valid(hit) else None)

@@ -138,12 +138,17 @@ def _run(args):
         return 2
     from ..progress import progress_for
     quiet = getattr(args, "quiet", False)
-    if not quiet:
-        print_design_warnings(args)
+    pending = None if quiet else print_design_warnings(args)
     label = args.solver or args.external
     progress = progress_for(args, label=f"{args.problem} / {label}")
-    result = study_from_args(args, args.problem, args.solver, progress)
-    getattr(progress, "close", lambda: None)()  # end a live progress line before the table
+    if pending is not None:
+        progress = _Announcing(progress, pending)
+    try:
+        result = study_from_args(args, args.problem, args.solver, progress)
+    finally:
+        getattr(progress, "close", lambda: None)()  # end a live progress line before the table
+        if pending is not None:
+            pending.finish()
     print(str(result).splitlines()[0] if quiet else result)
     if args.target_error is not None and not quiet:
         print_plans(result, args.target_error)
@@ -173,16 +178,28 @@ def print_plans(result, target):
 
 
 def print_design_warnings(args):
-    """Warn, ahead of the study, where the manufactured solution cannot catch mistakes.
+    """Warn where the manufactured solution cannot catch mistakes (see :mod:`._designbg`).
 
-    The warnings of a problem seen before come from the derivation cache.
+    The warnings of a problem seen before come from the derivation cache and
+    are printed at once; otherwise they are worked out beside the study and
+    the pending work is returned (None when printed already).
     """
-    from .._designcache import cached_design_warnings
-    from ..problem import get_problem
-    order = getattr(args, "formal_order", None)
-    kw = {"time_order": order} if getattr(args, "mode", None) == "time" else {"formal_order": order}
-    for w in cached_design_warnings(get_problem(args.problem), **kw):
-        print(f"warning: {w}", file=sys.stderr)
+    from ._designbg import start_design_warnings
+    return start_design_warnings(args)
+
+
+class _Announcing:
+    """A progress callback that also prints design warnings worked out beside the study, once ready."""
+
+    def __init__(self, progress, pending):
+        self.progress, self.pending = progress, pending
+
+    def __call__(self, level_result):
+        self.pending.poll(before=getattr(self.progress, "close", None))
+        return self.progress(level_result)
+
+    def close(self):
+        return getattr(self.progress, "close", lambda: None)()
 
 
 def register(sub):

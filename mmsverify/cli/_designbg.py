@@ -1,0 +1,122 @@
+"""Design warnings of ``run``, worked out beside the study the first time.
+
+The design checks (:mod:`mmsverify.design`) of a problem content never seen
+on this machine take about 0.1 s of sympy work, a few percent of a short
+study, and are then cached. Seen before, their warnings are printed at
+once, ahead of the study, as always. Not seen before, they are worked out
+in a forked child process on another core while the study runs, and
+printed as soon as they are ready: after the next level that finishes, or
+at the end of the study, before its table. Where forking is not safe
+(not Linux, other threads running) or the child fails, the parent works
+them out itself, as before.
+"""
+
+import gc
+import os
+import pickle
+import select
+import sys
+import threading
+
+__all__ = ["start_design_warnings", "BACKGROUND"]
+
+#: Work out uncached design warnings in a child process (False: in this process, ahead of the study).
+BACKGROUND = True
+
+
+def _orders(args):
+    order = getattr(args, "formal_order", None)
+    return {"time_order": order} if getattr(args, "mode", None) == "time" else {"formal_order": order}
+
+
+def _show(warnings, stream):
+    for w in warnings:
+        print(f"warning: {w}", file=stream)
+    stream.flush()
+
+
+class _Pending:
+    """Warnings being worked out in a child; :meth:`poll` prints them when ready, :meth:`finish` waits."""
+
+    def __init__(self, pid, fd, problem, kw):
+        self.pid, self.fd, self.problem, self.kw = pid, fd, problem, kw
+        self.done = False
+
+    def poll(self, before=None):
+        """Print the warnings if the child has finished (never waits); ``before`` runs first if there are any."""
+        if not self.done and select.select([self.fd], [], [], 0)[0]:
+            self.finish(before)
+
+    def finish(self, before=None):
+        """Wait for the child and print its warnings (worked out here if the child failed)."""
+        if self.done:
+            return
+        self.done = True
+        chunks = []
+        try:
+            while True:
+                chunk = os.read(self.fd, 1 << 16)
+                if not chunk:
+                    break
+                chunks.append(chunk)
+        finally:
+            os.close(self.fd)
+            os.waitpid(self.pid, 0)
+            gc.unfreeze()
+        try:
+            kind, value = pickle.loads(b"".join(chunks))
+        except Exception:  # the child died before it wrote: do the work here
+            from .._designcache import cached_design_warnings
+            kind, value = "ok", cached_design_warnings(self.problem, **self.kw)
+        if kind != "ok":    # an interruption of the study reached the child too: nothing to add
+            value = [] if value == "KeyboardInterrupt" else [f"the design checks could not run: {value}"]
+        if value:
+            if before is not None:
+                before()
+            _show(value, sys.stderr)
+
+
+def _child(problem, kw, fd):
+    try:
+        import warnings
+        warnings.simplefilter("ignore")
+        from .._designcache import cached_design_warnings
+        result = ("ok", cached_design_warnings(problem, **kw))
+    except BaseException as exc:  # noqa: BLE001  (reported by the parent)
+        result = ("error", str(exc) or type(exc).__name__)
+    try:
+        data = pickle.dumps(result)
+        while data:
+            data = data[os.write(fd, data):]
+    finally:
+        os._exit(0)   # no clean-up of the parent's state (buffers, atexit handlers)
+
+
+def start_design_warnings(args):
+    """Print the design warnings of ``args.problem`` now if cached, else start them beside the study.
+
+    Returns None, or a pending object whose ``poll()`` and ``finish()`` print them.
+    """
+    from .._designcache import cached_design_warnings, cached_only
+    from ..problem import get_problem
+    problem, kw = get_problem(args.problem), _orders(args)
+    hit = cached_only(problem, **kw)
+    if hit is not None:
+        _show(hit, sys.stderr)
+        return None
+    if not (BACKGROUND and sys.platform.startswith("linux") and threading.active_count() == 1):
+        _show(cached_design_warnings(problem, **kw), sys.stderr)
+        return None
+    sys.stdout.flush()
+    sys.stderr.flush()
+    # Objects created so far leave the garbage collector's view while the child lives: a collection
+    # in this process would otherwise touch every one of them and copy all the memory the two share
+    # (copy-on-write), slowing the study more than the checks take.
+    gc.freeze()
+    read, write = os.pipe()
+    pid = os.fork()
+    if pid == 0:
+        os.close(read)
+        _child(problem, kw, write)
+    os.close(write)
+    return _Pending(pid, read, problem, kw)
