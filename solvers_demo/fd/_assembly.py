@@ -112,11 +112,13 @@ def assemble_diffusion(case, t=None, neumann="flux", mistake="", coefficient="k"
     index = np.arange(np.prod(shape)).reshape(shape)
     tk = {} if t is None else {"t": t}
 
+    constant = 1.0 if coefficient is None else mms.problem.parameter_constant(coefficient)
+
     def k_at(*coords):
-        if coefficient is None:
-            return np.ones(np.broadcast_shapes(*(np.shape(c) for c in coords)))
-        return np.broadcast_to(mms.parameter(coefficient, *coords, **tk),
-                               np.broadcast_shapes(*(np.shape(c) for c in coords)))
+        shape_k = np.broadcast_shapes(*(np.shape(c) for c in coords))
+        if constant is not None:   # a constant coefficient (Poisson's k = 1): no array to evaluate
+            return np.broadcast_to(np.float64(constant), shape_k)
+        return np.broadcast_to(mms.parameter(coefficient, *coords, **tk), shape_k)
 
     # widths of the control volumes per axis (half at Neumann ends)
     widths = []
