@@ -6,6 +6,9 @@ the grid (box, cells, time interval and steps) and the case options. Its
 record is one JSON file ``levels/<key>.json`` under the cache folder,
 written to a temporary file and moved into place with :func:`os.replace`,
 so a study killed at any moment leaves either the whole record or none.
+The record is then flushed to the disk (``fsync``) by a background thread,
+off the study's path: a power cut before that flush can at worst leave an
+empty record, which is read as missing and the level run again.
 A temporary file left by a writer killed mid-write is removed the next time
 a cache on that folder is opened (see :class:`LevelCache`); one that may
 still belong to a running writer is never touched.
@@ -29,6 +32,7 @@ import inspect
 import json
 import os
 from pathlib import Path
+import threading
 import time
 
 from .solvers import solver_name
@@ -200,12 +204,23 @@ class LevelCache:
         try:
             with open(tmp, "w", encoding="utf-8") as fh:
                 json.dump(rec, fh, indent=1)
-                fh.flush()
-                os.fsync(fh.fileno())
             os.replace(tmp, path)
         finally:
             tmp.unlink(missing_ok=True)
+        threading.Thread(target=_flush, args=(path,), name="mmsverify-level-flush", daemon=True).start()
         return path
+
+
+def _flush(path):
+    """Push a finished record to the disk (the rename already made it whole for every reader)."""
+    try:
+        fd = os.open(path, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+    except OSError:  # removed meanwhile, or a file system without fsync: nothing to keep
+        pass
 
 
 def _plain(info):
