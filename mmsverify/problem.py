@@ -728,6 +728,9 @@ def problem_from_text(text, source="<text>"):
 
 def _read_fast(data, text, source):
     """The problem read by the fast engine (see :mod:`mmsverify._fast`), or None where it steps aside."""
+    operator = data.get("operator")
+    if (operator.get("kind", "poisson") if isinstance(operator, dict) else "poisson") not in _fast.FAST_OPERATORS:
+        return None   # before loading symengine
     engine = _fast.fast_engine()
     if engine is None:
         return None
