@@ -180,7 +180,8 @@ class _Symengine:
                 raise Unsupported(where)
             if e.is_Pow and not e.free_symbols:
                 base, exp = e.args
-                if not (base.is_Number and float(base) > 0) and not (exp.is_Integer and base.is_Number):
+                positive = base in (self.se.pi, self.se.E) or (base.is_Number and float(base) > 0)
+                if not positive and not (exp.is_Integer and base.is_Number):
                     raise Unsupported(where)
             stack.extend(e.args)
 

@@ -292,9 +292,24 @@ class Problem:
 
     def renamed(self, name, source):
         """The same problem under another name and source (memos and lazy tables kept)."""
+        return self.with_changes(name=name, source=source)
+
+    #: Fields :meth:`with_changes` may change: none of them enters the content hash or a derived table.
+    _PLAIN = ("name", "description", "source", "space_order", "time_order", "tolerance", "study", "order_given")
+
+    def with_changes(self, **changes):
+        """A copy with some plain fields changed (orders, tolerance, study defaults, name, source).
+
+        Unlike :func:`dataclasses.replace`, the copy keeps the derived tables
+        as they are held (lazy, or from the fast engine) and the memoized
+        hashes, which none of these fields enters.
+        """
+        bad = sorted(set(changes) - set(Problem._PLAIN))
+        if bad:
+            raise TypeError(f"with_changes() changes only {', '.join(Problem._PLAIN)}; got {', '.join(bad)}")
         out = copy.copy(self)
-        object.__setattr__(out, "name", name)
-        object.__setattr__(out, "source", source)
+        for key, value in changes.items():
+            object.__setattr__(out, key, value)
         return out
 
     @property

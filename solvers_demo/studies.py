@@ -8,8 +8,6 @@ ties the time steps to the cells by the solver's own ratio of orders, and
 the verdict is judged against the order the solver claims.
 """
 
-from dataclasses import replace
-
 from mmsverify import run_study
 from mmsverify.problem import get_problem
 
@@ -22,7 +20,7 @@ def problem_for(problem, solver):
     changes = {"space_order": solver.formal_order}
     if problem.transient and getattr(solver, "time_order", None):
         changes["time_order"] = solver.time_order
-    return replace(problem, **changes)
+    return problem.with_changes(**changes)
 
 
 def verify(solver, problem, **kwargs):

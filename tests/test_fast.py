@@ -100,6 +100,22 @@ def test_sympy_tables_of_a_fast_problem_are_the_sympy_reading(name):
     assert fast.equation_text == reference.equation_text and fast.boundaries == reference.boundaries
 
 
+def test_constant_powers_of_pi_and_e_stay_on_the_fast_path():
+    p = problem_from_text(PLATE.format(field="pi**2*x*y + E**0.5*sin(x)"))
+    assert p._fast_tables() is not None
+    assert sp.srepr(p.equations) == sp.srepr(_sympy_read(PLATE.format(field="pi**2*x*y + E**0.5*sin(x)")).equations)
+
+
+def test_changed_orders_keep_the_fast_tables_and_the_hash():
+    p = problem_from_text(PLATE.format(field="sin(a*pi*x)*cos(y)"))
+    q = p.with_changes(space_order=1, tolerance=0.2)
+    assert (q.space_order, q.tolerance, p.space_order) == (1, 0.2, 2)
+    assert q._fast_tables() is p._fast_tables() and q.content_hash() == p.content_hash()
+    assert "fields" not in q.__dict__
+    with pytest.raises(TypeError, match="changes only"):
+        p.with_changes(fields={})
+
+
 @pytest.mark.parametrize("field", [
     "abs(x - 0.5) + y",          # a function the fast engine leaves to sympy
     "erf(x) * y",
