@@ -35,7 +35,8 @@ __all__ = ["cache_dir", "fingerprint", "make_key", "load", "store", "clear"]
 
 _OFF = ("", "0", "off", "no", "false", "none")
 # Modules whose text decides what an entry holds.
-_SOURCES = ("problem.py", "operators.py", "expr.py", "_fast.py", "derive.py", "_evaluate.py", "_diskcache.py")
+_SOURCES = ("problem.py", "operators.py", "expr.py", "_fast.py", "derive.py", "_evaluate.py", "_codegen_se.py",
+            "_diskcache.py")
 # Entries kept; older ones (by modification time) are removed when a write finds more.
 MAX_ENTRIES = 256
 # Age after which a temporary file is taken to be a killed writer's leftover.
