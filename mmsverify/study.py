@@ -11,6 +11,7 @@ is recorded with the reason; the study goes on and judges what the other
 levels support.
 """
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 import math
 import time
@@ -27,11 +28,14 @@ from .problem import get_problem
 from .solvers import Case, check_solution, resolve_solver, solver_name
 from .verdict import judge
 
-__all__ = ["LevelResult", "StudyResult", "plan_grids", "run_level", "run_study", "MODES"]
+__all__ = ["LevelResult", "StudyResult", "plan_grids", "run_level", "run_study", "judged_norms", "MODES",
+           "NORMS_SOURCES"]
 
 MODES = ("combined", "space", "time")
 MAX_LEVELS = 30          # more levels than any study needs; beyond, the finest grid is astronomically large
 MAX_CELLS = 1e9          # a level larger than this would not fit in memory on any workstation
+#: Where the judged norms of a study come from: the solver's ``judged_norms``, the caller's ``norms``, or all.
+NORMS_SOURCES = ("solver", "caller", "default")
 
 
 @dataclass(frozen=True)
@@ -71,6 +75,13 @@ class StudyResult:
         or ``"time"``), ``solver`` and ``problem`` (the two orders) and
         ``used_for`` (``"verdicts"`` when it is the judged order,
         ``"grids"`` when it only shaped the time steps of the plan).
+
+    Which norms got a verdict is kept as data too: ``judged_norms`` maps
+    each field of the problem to the norms it was judged in (every norm is
+    measured and tabled either way; empty for results read from files
+    written before it was recorded) and ``norms_source`` says who chose
+    them (one of :data:`NORMS_SOURCES`). A field judged in fewer than all
+    norms gets a line in :attr:`notes`.
     """
 
     problem: str
@@ -85,11 +96,13 @@ class StudyResult:
     order_source: str = "problem"
     missing_quantities: dict = field(default_factory=dict)
     order_conflicts: tuple = ()
+    judged_norms: dict = field(default_factory=dict)
+    norms_source: str = "default"
 
     @property
     def notes(self):
         """One-line remarks on how the study was read (not failures); empty when there are none."""
-        return _quantity_notes(self) + _order_notes(self)
+        return _quantity_notes(self) + _order_notes(self) + _norms_notes(self)
 
     @property
     def orders_confirmed(self):
@@ -158,6 +171,8 @@ class StudyResult:
             "order_source": self.order_source,
             "missing_quantities": {q: list(lv) for q, lv in self.missing_quantities.items()},
             "order_conflicts": [dict(c) for c in self.order_conflicts],
+            "judged_norms": {f: list(n) for f, n in self.judged_norms.items()},
+            "norms_source": self.norms_source,
             "notes": list(self.notes),
             "quantity_orders": {q: [None if not np.isfinite(p) else float(p) for p in self.quantity_orders(q)]
                                 for q in self.quantities},
@@ -210,6 +225,21 @@ def _order_notes(result):
     return tuple(notes)
 
 
+def _norms_notes(result):
+    """One line per set of measured fields judged in fewer than all norms, saying who chose the norms."""
+    how = {"solver": "as the solver states", "caller": "as the caller chose"}.get(result.norms_source)
+    if how is None:
+        return ()
+    groups = {}
+    for f in result.fields:
+        judged = tuple(result.judged_norms.get(f, NORMS))
+        if set(judged) != set(NORMS):
+            groups.setdefault(judged, []).append(f)
+    return tuple(f"{', '.join(fs)} judged in {', '.join(judged)} {how} "
+                 f"({', '.join(n for n in NORMS if n not in judged)} measured, not judged)"
+                 for judged, fs in groups.items())
+
+
 def _missing_quantities(problem, results):
     """Declared quantity to the successful levels that did not report it (only those lacking on some)."""
     ok = [r for r in results if r.ok]
@@ -248,11 +278,16 @@ def _order_conflicts(problem, solver, mode, *, caller, planned, base_steps):
 
 
 def _verdicts(problem, results, formal, tol, norms=NORMS):
-    """One verdict per field and judged norm, then one per reported quantity."""
+    """One verdict per field and judged norm, then one per reported quantity.
+
+    ``norms`` is a sequence of norms judged for every field, or a mapping
+    of field name to its judged norms (fields not in it: all norms).
+    """
     verdicts = []
     for f in problem.field_names:
         ok = [r for r in results if r.ok and f in r.errors]
-        for n in norms if ok else ():
+        judged = norms.get(f, NORMS) if isinstance(norms, Mapping) else norms
+        for n in judged if ok else ():
             verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], formal, tol,
                                   scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
     for q in problem.names("quantities"):
@@ -271,6 +306,75 @@ def _stated(solver, name):
     except Exception:  # a property that cannot answer for this solver
         return None
     return float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else None
+
+
+def _stated_norms(solver, problem, who):
+    """Field name to the norms a solver states its order claim holds in (attribute ``judged_norms``), or None.
+
+    Raises
+    ------
+    SolverError
+        When the statement is not a mapping of fields of ``problem`` to
+        norms among :data:`mmsverify.norms.NORMS`.
+    """
+    try:
+        stated = getattr(solver, "judged_norms", None)
+    except Exception:  # a property that cannot answer for this solver
+        return None
+    if stated is None:
+        return None
+    fix = ("state judged_norms as a dict of field name to a tuple of norms, e.g. {'p': ('L1', 'L2')}, or pass "
+           "norms= (--norms on the command line) to choose the judged norms yourself")
+    if not isinstance(stated, Mapping):
+        raise SolverError(f"solver {who}: judged_norms must be a dict of field name to norms, got "
+                          f"{type(stated).__name__}; {fix}")
+    out = {}
+    for f, norms in stated.items():
+        if f not in problem.field_names:
+            raise SolverError(f"solver {who}: judged_norms names field {f!r}, which problem {problem.name} does "
+                              f"not have (its fields: {', '.join(problem.field_names)}); correct the solver's "
+                              "judged_norms, or check that this is the solver for this problem")
+        norms = (norms,) if isinstance(norms, str) else norms
+        try:
+            norms = tuple(norms)
+        except TypeError:
+            raise SolverError(f"solver {who}: judged_norms for field {f} must be a tuple of norms, got "
+                              f"{norms!r}; {fix}") from None
+        unknown = [n for n in norms if n not in NORMS]
+        if unknown or not norms:
+            raise SolverError(f"solver {who}: judged_norms for field {f} names "
+                              f"{'unknown norm(s) ' + ', '.join(map(repr, unknown)) if unknown else 'no norm'}; "
+                              f"use some of {', '.join(NORMS)}, e.g. {{'{f}': ('L1', 'L2')}}")
+        out[f] = tuple(n for n in NORMS if n in norms)  # the usual order, each norm once
+    return out
+
+
+def judged_norms(problem, solver, norms=None, who=None):
+    """Norms that get a verdict, per field of ``problem``, and where they come from.
+
+    The caller's ``norms`` (one sequence for every field) win; without
+    them a solver that states ``judged_norms`` (field name to norms; other
+    fields: all norms) is judged in what it states; otherwise (no
+    statement, or an empty one) every field is judged in all of
+    :data:`mmsverify.norms.NORMS`.
+
+    Returns
+    -------
+    dict, str
+        Field name to a tuple of norms, and ``"caller"``, ``"solver"`` or
+        ``"default"``.
+    """
+    problem = get_problem(problem)
+    if norms is not None:
+        norms = (norms,) if isinstance(norms, str) else tuple(norms)
+        if not norms or set(norms) - set(NORMS):
+            raise AnalysisError(f"norms to judge must be among {', '.join(NORMS)}, got "
+                                f"{', '.join(map(str, norms)) or 'none'}")
+        return {f: norms for f in problem.field_names}, "caller"
+    stated = _stated_norms(solver, problem, solver_name(solver) if who is None else who)
+    if not stated:      # None, or an empty statement: every field in every norm
+        return {f: NORMS for f in problem.field_names}, "default"
+    return {f: stated.get(f, NORMS) for f in problem.field_names}, "solver"
 
 
 def design_orders(problem, solver):
@@ -391,7 +495,7 @@ def run_level(solver, case, where):
 
 def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode="combined", base_steps=None,
               grids=None, tolerance=None, formal_order=None, executor=None, options=None,
-              progress=None, workers=None, timeout=None, cache_dir=None, resume=True, norms=NORMS):
+              progress=None, workers=None, timeout=None, cache_dir=None, resume=True, norms=None):
     """Run a manufactured-solution study and judge the observed orders.
 
     Parameters
@@ -435,9 +539,14 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     resume : bool
         With ``cache_dir``: reuse stored levels (default); False recomputes
         and overwrites them.
-    norms : sequence of str
-        Norms that get a verdict (default all of L1, L2, Linf; every norm is
-        still measured and reported).
+    norms : sequence of str, optional
+        Norms that get a verdict, for every field. Without them a solver
+        that states ``judged_norms`` (a dict of field name to the norms its
+        order claim holds in; read like the stated orders, from the
+        configured solver) is judged in those, other fields and other
+        solvers in all of L1, L2, Linf (see :func:`judged_norms`). Every
+        norm is still measured and reported; a field judged in fewer says
+        so in ``notes`` (data in ``judged_norms`` and ``norms_source``).
 
     Returns
     -------
@@ -476,19 +585,17 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     tol = float(tolerance if tolerance is not None else problem.tolerance)
     if not formal > 0 or not tol > 0:
         raise AnalysisError(f"the formal order and the tolerance must be positive, got {formal:g} and {tol:g}")
-    norms = tuple(norms)
-    if not norms or set(norms) - set(NORMS):
-        raise AnalysisError(f"norms to judge must be among {', '.join(NORMS)}, got {', '.join(norms) or 'none'}")
+    name = solver_name(solver)
+    judged, norms_source = judged_norms(problem, stating, norms, who=solver_name(stating))
     opts = dict(options or {}, mode=mode)
     cases = [Case(g, mms, opts) for g in grids]
-    name = solver_name(solver)
     wheres = [_level_where(problem.name, name, c.grid) for c in cases]
     from .runner import run_levels
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)
-    verdicts = _verdicts(problem, results, formal, tol, norms)
+    verdicts = _verdicts(problem, results, formal, tol, judged)
     conflicts = _order_conflicts(problem, stating, mode, caller=formal_order is not None, planned=planned,
                                  base_steps=base_steps)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
                        problem.content_hash(), problem.source, order_source,
-                       _missing_quantities(problem, results), conflicts)
+                       _missing_quantities(problem, results), conflicts, judged, norms_source)

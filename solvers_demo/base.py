@@ -42,7 +42,10 @@ class DemoSolver:
     they solve), ``dims`` (space dimensions), ``steady``/``unsteady``
     (whether they accept steady and transient problems), ``MISTAKES``
     (seeded mistake name -> what it does) and ``CHOICES`` (option ->
-    allowed values), and implement ``_solve(case)``.
+    allowed values), and implement ``_solve(case)``. A scheme whose order
+    claim holds only in some norms for a field says so in ``judged_norms``
+    (field name -> tuple of norms; fields not named are judged in every
+    norm; see :func:`mmsverify.study.judged_norms`).
 
     Attributes
     ----------
@@ -56,6 +59,7 @@ class DemoSolver:
     unsteady: ClassVar[bool] = False
     MISTAKES: ClassVar[dict] = {}
     CHOICES: ClassVar[dict] = {}
+    judged_norms: ClassVar[dict] = {}
 
     mistake: str = ""
 

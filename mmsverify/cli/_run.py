@@ -20,8 +20,9 @@ def add_study_options(p):
     p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order (default: problem's)")
     p.add_argument("--formal-order", type=float, help="override the formal order (default: the solver's stated "
                                                       "order, else the problem's)")
-    p.add_argument("--norms", default="L1,L2,Linf", metavar="LIST",
-                   help="norms that get a verdict, comma-separated (default L1,L2,Linf; all are reported)")
+    p.add_argument("--norms", metavar="LIST",
+                   help="norms that get a verdict for every field, comma-separated (default: the norms the solver "
+                        "states per field, else L1,L2,Linf; all are reported)")
     p.add_argument("--option", action="append", default=[], metavar="NAME=VALUE",
                    help="solver option passed in case.options, e.g. --option grid=perturbed (repeatable)")
     add_execution_options(p)
@@ -79,7 +80,7 @@ def _norm_list(text):
     from ..norms import NORMS
     from . import comma_choices
     if not text:
-        return NORMS
+        return None     # the solver's stated norms, else all (see mmsverify.study.judged_norms)
     try:
         return comma_choices(text, NORMS, "norm")
     except ValueError as exc:

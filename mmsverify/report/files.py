@@ -20,7 +20,7 @@ from pathlib import Path
 from ..errors import MMSError
 from ..grids import Grid
 from ..norms import NORMS
-from ..study import LevelResult, StudyResult
+from ..study import NORMS_SOURCES, LevelResult, StudyResult
 from ..verdict import Verdict
 from ._common import level_rows, outcome
 from ._quantities import quantity_rows
@@ -131,10 +131,29 @@ def study_from_data(data, where="study data"):
         conflicts.append({"axis": str(_need(c, "axis", w)), "solver": float(_need(c, "solver", w)),
                           "problem": float(_need(c, "problem", w)), "used_for": str(_need(c, "used_for", w))})
     missing = {str(q): tuple(int(k) for k in lv) for q, lv in data.get("missing_quantities", {}).items()}
+    judged, norms_source = _judged_norms(data, where)
     return StudyResult(_need(data, "problem", where), _need(data, "solver", where), _need(data, "mode", where),
                        float(_need(data, "formal_order", where)), float(_need(data, "tolerance", where)),
                        tuple(levels), tuple(verdicts), data.get("problem_hash", ""), data.get("source", ""),
-                       data.get("order_source", "problem"), missing, tuple(conflicts))
+                       data.get("order_source", "problem"), missing, tuple(conflicts), judged, norms_source)
+
+
+def _judged_norms(data, where):
+    """The judged norms per field and their source; files written before they were recorded give ``{}``,
+    ``"default"`` (no note, the verdicts say which norms were judged)."""
+    judged = data.get("judged_norms", {})
+    source = data.get("norms_source", "default")
+    if not isinstance(judged, dict) or source not in NORMS_SOURCES:
+        raise MMSError(f"{where}: judged_norms must map fields to norms and norms_source be one of "
+                       f"{', '.join(NORMS_SOURCES)}; got {judged!r} and {source!r}; rerun the study to write a "
+                       "new file")
+    out = {}
+    for f, norms in judged.items():
+        if not isinstance(norms, list) or not norms or any(n not in NORMS for n in norms):
+            raise MMSError(f"{where}: judged_norms of field {f} must be a list of norms among "
+                           f"{', '.join(NORMS)}, got {norms!r}; rerun the study to write a new file")
+        out[str(f)] = tuple(norms)
+    return out, source
 
 
 def write_atomic(path, text):
