@@ -239,7 +239,7 @@ def test_staggered_ns_per_variable_at_centres():
     # Ferziger & Peric 2002, section 7.5: second-order pressure; its largest (corner) error
     # approaches second order only slowly (measured; see solvers_demo.ns.staggered)
     assert status[("p", "L1")].ok and status[("p", "L2")].ok
-    assert 1.7 < status[("p", "Linf")].observed < 2.1
+    assert 1.7 < result.orders("p", "Linf")[-1] < 2.1    # measured, not judged: StaggeredNS.judged_norms
 
 
 def test_staggered_ns_newton_converges_quadratically():
