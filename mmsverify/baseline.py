@@ -317,7 +317,9 @@ def compare(baseline, result, error_factor=None, tolerance=None, norms=None):
     error_factor, tolerance : float, optional
         Override the baseline's rules.
     norms : sequence of str, optional
-        Norms to check (default all).
+        Norms to check (default all). Without it, the order rule applies in
+        the norms the study judged each field in (a solver may state them,
+        see :func:`mmsverify.study.judged_norms`) and the error rule in all.
 
     Returns
     -------
@@ -325,6 +327,7 @@ def compare(baseline, result, error_factor=None, tolerance=None, norms=None):
     """
     factor = float(baseline.error_factor if error_factor is None else error_factor)
     tol = float(baseline.tolerance if tolerance is None else tolerance)
+    chosen = norms is not None
     norms = tuple(norms or NORMS)
     unknown = [n for n in norms if n not in NORMS]
     if unknown:
@@ -346,10 +349,11 @@ def compare(baseline, result, error_factor=None, tolerance=None, norms=None):
         if f not in result.fields:
             findings.append(Finding("field", f, "", -1, f"field {f} is missing from the run; the baseline has it"))
             continue
+        judged = norms if chosen else tuple(getattr(result, "judged_norms", {}).get(f, NORMS))
         for n in norms:
             current = [lv.errors[f][n] if lv.ok and f in lv.errors else None for lv in result.levels]
             best = max(best, _check_series(baseline, result, f, n, per_norm[n], current, verdicts.get((f, n)),
-                                           rules, findings, comparisons))
+                                           rules, findings, comparisons, judge_order=n in judged))
     for q, recorded in baseline.quantities.items():
         if q not in result.quantities:
             findings.append(Finding("quantity", q, "value", -1,
@@ -371,9 +375,11 @@ def compare(baseline, result, error_factor=None, tolerance=None, norms=None):
     return BaselineCheck(baseline, result, factor, tol, norms, tuple(findings), tuple(comparisons), tuple(notes))
 
 
-def _check_series(baseline, result, f, n, recorded, current, verdict, rules, findings, comparisons):
+def _check_series(baseline, result, f, n, recorded, current, verdict, rules, findings, comparisons,
+                  judge_order=True):
     """Apply the order and error rules to one field and norm (or one quantity, norm ``"value"``).
 
+    ``judge_order`` False: the error rule only (a norm the study measured but did not judge).
     Appends to ``findings`` and ``comparisons``; returns the largest factor
     by which an error fell (0 when none was compared).
     """
@@ -381,7 +387,9 @@ def _check_series(baseline, result, f, n, recorded, current, verdict, rules, fin
     floor = formal - tol
     was = baseline.observed.get(f, {}).get(n)
     was_text = f"; the baseline observed {was:.2f}" if was is not None else ""
-    if verdict is None or verdict.observed is None:
+    if not judge_order:
+        pass
+    elif verdict is None or verdict.observed is None:
         why = verdict.reason if verdict is not None else "no verdict"
         findings.append(Finding("order", f, n, -1, f"{f} {n}: no observed order ({why})"))
     elif verdict.observed < floor:

@@ -314,8 +314,9 @@ def _stated_norms(solver, problem, who):
     Raises
     ------
     SolverError
-        When the statement is not a mapping of fields of ``problem`` to
-        norms among :data:`mmsverify.norms.NORMS`.
+        When the statement is not a mapping of field names to norms among
+        :data:`mmsverify.norms.NORMS`. Fields the problem does not have are
+        left out (a solver made for other equations says so when it runs).
     """
     try:
         stated = getattr(solver, "judged_norms", None)
@@ -330,10 +331,6 @@ def _stated_norms(solver, problem, who):
                           f"{type(stated).__name__}; {fix}")
     out = {}
     for f, norms in stated.items():
-        if f not in problem.field_names:
-            raise SolverError(f"solver {who}: judged_norms names field {f!r}, which problem {problem.name} does "
-                              f"not have (its fields: {', '.join(problem.field_names)}); correct the solver's "
-                              "judged_norms, or check that this is the solver for this problem")
         norms = (norms,) if isinstance(norms, str) else norms
         try:
             norms = tuple(norms)
@@ -345,7 +342,8 @@ def _stated_norms(solver, problem, who):
             raise SolverError(f"solver {who}: judged_norms for field {f} names "
                               f"{'unknown norm(s) ' + ', '.join(map(repr, unknown)) if unknown else 'no norm'}; "
                               f"use some of {', '.join(NORMS)}, e.g. {{'{f}': ('L1', 'L2')}}")
-        out[f] = tuple(n for n in NORMS if n in norms)  # the usual order, each norm once
+        if f in problem.field_names:  # a field this problem lacks: the solver is not for this problem
+            out[f] = tuple(n for n in NORMS if n in norms)  # the usual order, each norm once
     return out
 
 

@@ -120,10 +120,12 @@ def test_unknown_norm_is_refused_naming_solver_and_fix():
         run_study("plate-poisson", _poisson(judged_norms={"u": ()}), levels=2)
 
 
-def test_unknown_field_is_refused_naming_solver_problem_and_fields():
-    with pytest.raises(SolverError, match=r"judged_norms names field 'P', which problem plate-poisson does not "
-                                          r"have \(its fields: u\); correct the solver's judged_norms"):
-        run_study("plate-poisson", _poisson(judged_norms={"P": ("L1",)}), levels=2)
+def test_fields_the_problem_lacks_are_left_out_and_the_solver_explains_itself():
+    r = run_study("plate-poisson", _poisson(judged_norms={"P": ("L1",)}), levels=2)
+    assert r.norms_source == "default" and _judged(r)["u"] == ["L1", "L2", "Linf"]   # nothing of it applies
+    wrong = run_study("plate-poisson", "ns-staggered", levels=2)   # a Navier-Stokes solver stating p
+    assert not any(lv.ok for lv in wrong.levels)
+    assert "pick a solver for that operator" in wrong.levels[0].message
     with pytest.raises(SolverError, match="must be a dict of field name to norms, got list"):
         run_study("plate-poisson", _poisson(judged_norms=["L1"]), levels=2)
 
