@@ -78,6 +78,10 @@ class _Pending:
 
 def _child(problem, kw, fd):
     try:
+        os.nice(10)   # background work: the study in the parent comes first on the cores
+    except OSError:
+        pass
+    try:
         import warnings
         warnings.simplefilter("ignore")
         from .._designcache import cached_design_warnings
