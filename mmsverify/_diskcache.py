@@ -12,7 +12,12 @@ directory:
   modules that read problems, build operators and generate code. Editing
   any of them, or upgrading sympy, starts a fresh set of entries.
 * Writes go to a temporary file that is then renamed over the entry, so a
-  reader never sees half a file, also with several processes at once.
+  reader never sees half a file, also with several processes at once. They
+  happen on a background thread, so a slow disk (a network home folder)
+  never holds up a study: :func:`store` takes a snapshot (the pickled
+  bytes) and returns, :func:`load` sees entries still waiting, and
+  :func:`flush` waits for them (run at interpreter exit, by each study
+  level, and by a forked child before it exits).
 * At most ``MAX_ENTRIES`` entries are kept; a write that finds more
   removes the least recently written ones, and temporaries over an hour
   old (left by a writer killed between writing and renaming).
@@ -22,6 +27,7 @@ directory:
   loading a pickle runs code.
 """
 
+import atexit
 from functools import lru_cache
 import hashlib
 import os
@@ -29,9 +35,10 @@ from pathlib import Path
 import pickle
 import sys
 import tempfile
+import threading
 import time
 
-__all__ = ["cache_dir", "fingerprint", "make_key", "load", "store", "clear"]
+__all__ = ["cache_dir", "fingerprint", "make_key", "load", "store", "flush", "clear"]
 
 _OFF = ("", "0", "off", "no", "false", "none")
 # Modules whose text decides what an entry holds.
@@ -100,6 +107,10 @@ def load(kind, key):
     path = _path(kind, key)
     if path is None:
         return None
+    with _state.lock:
+        waiting = _state.pending.get(path)
+    if waiting is not None:     # stored by this process, not on disk yet
+        return pickle.loads(waiting)
     try:
         if not _trusted(path):
             return None
@@ -116,26 +127,96 @@ def load(kind, key):
 
 
 def store(kind, key, obj):
-    """Write an entry atomically; returns False (and stays quiet) when it cannot."""
+    """Queue an entry for writing (atomically, on the writer thread); False when caching is off or it cannot pickle.
+
+    A disk that cannot take it (read-only, full) is found by the writer,
+    which drops the entry quietly: a cache must never stop a study.
+    """
     path = _path(kind, key)
     if path is None:
         return False
+    try:
+        data = pickle.dumps(obj, protocol=pickle.HIGHEST_PROTOCOL)
+    except Exception:
+        return False
+    with _state.lock:
+        _state.pending[path] = data
+        if _state.writer is None or not _state.writer.is_alive():
+            _state.writer = threading.Thread(target=_write_pending, name="mmsverify-cache-writer", daemon=True)
+            _state.writer.start()
+        _state.changed.notify_all()
+    return True
+
+
+def flush(timeout=10.0):
+    """Wait until every queued entry is written (or dropped); True when none is left waiting."""
+    deadline = time.monotonic() + timeout
+    with _state.lock:
+        while _state.pending or _state.busy:
+            left = deadline - time.monotonic()
+            if left <= 0 or _state.writer is None or not _state.writer.is_alive():
+                return not _state.pending
+            _state.changed.wait(left)
+    return True
+
+
+class _State:
+    """The queue of entries waiting for the writer thread (made anew in a forked child)."""
+
+    def __init__(self):
+        self.lock = threading.Lock()
+        self.changed = threading.Condition(self.lock)
+        self.pending = {}        # path -> pickled bytes; a later store of the same path replaces it
+        self.busy = False        # the writer holds an entry it took off the queue
+        self.writer = None
+
+
+_state = _State()
+
+
+def _write_pending():
+    while True:
+        with _state.lock:
+            while not _state.pending:
+                _state.changed.wait()
+            path, data = next(iter(_state.pending.items()))
+            _state.busy = True
+        try:
+            _write(path, data)
+        finally:
+            with _state.lock:
+                if _state.pending.get(path) is data:
+                    del _state.pending[path]
+                _state.busy = False
+                _state.changed.notify_all()
+
+
+def _write(path, data):
     tmp = None
     try:
         path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{kind}-", suffix=".tmp", dir=path.parent)
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.stem.split('-', 1)[0]}-", suffix=".tmp", dir=path.parent)
         with os.fdopen(fd, "wb") as fh:
-            pickle.dump(obj, fh, protocol=pickle.HIGHEST_PROTOCOL)
+            fh.write(data)
         os.replace(tmp, path)
         _prune(path.parent)
-        return True
     except Exception:  # a read-only or full disk must never stop a study
         if tmp is not None:
             try:
                 os.unlink(tmp)
             except OSError:
                 pass
-        return False
+
+
+def _after_fork_in_child():
+    # the writer thread does not exist in a child; its lock may have been held at the fork
+    global _state
+    _state = _State()
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_after_fork_in_child)
+atexit.register(flush)
 
 
 def _prune(root):
@@ -159,6 +240,7 @@ def _prune(root):
 
 def clear():
     """Remove every entry; returns how many files were removed."""
+    flush()
     root = cache_dir()
     if root is None or not root.is_dir():
         return 0

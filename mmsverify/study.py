@@ -14,11 +14,13 @@ levels support.
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 import math
+import multiprocessing
 import time
 import traceback
 
 import numpy as np
 
+from . import _diskcache
 from .derive import derive
 from .errors import AnalysisError, GridError, MMSError, SolverError
 from .grids import Grid, check_refinement, refinement
@@ -455,6 +457,15 @@ def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combi
 
 def run_level(solver, case, where):
     """Run one level and measure its errors; never raises for solver faults."""
+    try:
+        return _run_level(solver, case, where)
+    finally:
+        if multiprocessing.parent_process() is not None:
+            # a worker process ends without running exit handlers: write the cache entries it made now
+            _diskcache.flush()
+
+
+def _run_level(solver, case, where):
     grid, mms = case.grid, case.mms
     problem = mms.problem
     h = grid.dt if (problem.transient and case.options.get("mode") == "time") else grid.h

@@ -331,7 +331,7 @@ def test_cache_hit_returns_an_equal_problem_without_deriving(private_cache, monk
     second = problem_from_text(text, "a/compressible-2d.toml")
     assert calls == ["a/compressible-2d.toml"]
     assert second == first and second.content_hash() == first.content_hash()
-    assert any(private_cache.glob("problem-*.pkl"))
+    assert _diskcache.flush() and any(private_cache.glob("problem-*.pkl"))
     # same content elsewhere: still a hit; name and source follow the new place
     text_without_name = text.replace('name = "compressible-2d"\n', "")
     problem_from_text(text_without_name, "b/first.toml")
@@ -344,11 +344,13 @@ def test_corrupt_or_truncated_entry_is_rebuilt(private_cache, monkeypatch):
     calls = _count_reads(monkeypatch)
     text = (ROOT / "problems" / "cavity-flow.toml").read_text()
     good = problem_from_text(text)
+    _diskcache.flush()
     (entry,) = private_cache.glob("problem-*.pkl")
     for damage in (b"not a pickle", entry.read_bytes()[:100]):
         entry.write_bytes(damage)
         again = problem_from_text(text)
         assert again.content_hash() == good.content_hash()
+        _diskcache.flush()
         assert pickle.loads(entry.read_bytes()).content_hash() == good.content_hash()   # rewritten whole
     assert len(calls) == 3                                     # nothing asked for the sympy tables
     assert again == good and len(calls) == 5                   # which are read from the kept text
@@ -366,7 +368,7 @@ def test_cache_can_be_switched_off(tmp_path, monkeypatch):
 def test_generated_programs_come_back_from_disk(private_cache, monkeypatch):
     m = derive("compressible-2d")
     before = m.source("p", 0.3, 0.4)
-    assert any(private_cache.glob("programs-*.pkl"))
+    assert _diskcache.flush() and any(private_cache.glob("programs-*.pkl"))
     _Programs._memory.clear()                      # as in a new process
 
     def no_building(*args):
@@ -377,6 +379,7 @@ def test_generated_programs_come_back_from_disk(private_cache, monkeypatch):
 
 def test_entries_of_other_users_or_writable_by_others_are_ignored(private_cache):
     problem_from_text((ROOT / "problems" / "cavity-flow.toml").read_text())
+    _diskcache.flush()
     (entry,) = private_cache.glob("problem-*.pkl")
     key = entry.stem.split("-", 1)[1]
     assert _diskcache.load("problem", key) is not None
@@ -394,7 +397,7 @@ def test_stale_temporaries_are_removed_when_an_entry_is_written(private_cache):
         f.write_bytes(b"half a pickle")
     hour_ago = time.time() - _diskcache.STALE_SECONDS - 60
     os.utime(old, (hour_ago, hour_ago))
-    assert _diskcache.store("problem", "k" * 40, {"x": 1})
+    assert _diskcache.store("problem", "k" * 40, {"x": 1}) and _diskcache.flush()
     assert not old.exists() and fresh.exists()
     assert _diskcache.load("problem", "k" * 40) == {"x": 1}
 

@@ -7,7 +7,7 @@ once, ahead of the study, as always. Not seen before, they are worked out
 in a forked child process on another core while the study runs, and
 printed as soon as they are ready: after the next level that finishes, or
 at the end of the study, before its table. Where forking is not safe
-(not Linux, other threads running) or the child fails, the parent works
+(not Linux, threads other than mmsverify's own running) or the child fails, the parent works
 them out itself, as before.
 """
 
@@ -89,11 +89,19 @@ def _child(problem, kw, fd):
     except BaseException as exc:  # noqa: BLE001  (reported by the parent)
         result = ("error", str(exc) or type(exc).__name__)
     try:
+        from .. import _diskcache
+        _diskcache.flush()       # the warnings' cache entry, before an exit that runs no exit handlers
         data = pickle.dumps(result)
         while data:
             data = data[os.write(fd, data):]
     finally:
         os._exit(0)   # no clean-up of the parent's state (buffers, atexit handlers)
+
+
+def _other_threads():
+    """Threads besides the main one and mmsverify's own (cache writer, level flush), which forking tolerates."""
+    return [t for t in threading.enumerate()
+            if t is not threading.main_thread() and not t.name.startswith("mmsverify-")]
 
 
 def start_design_warnings(args):
@@ -108,7 +116,7 @@ def start_design_warnings(args):
     if hit is not None:
         _show(hit, sys.stderr)
         return None
-    if not (BACKGROUND and sys.platform.startswith("linux") and threading.active_count() == 1):
+    if not (BACKGROUND and sys.platform.startswith("linux") and not _other_threads()):
         _show(cached_design_warnings(problem, **kw), sys.stderr)
         return None
     sys.stdout.flush()
