@@ -8,11 +8,11 @@ ever built. The resulting :class:`~mmsverify._evaluate.Program` is the
 same kind of straight-line code the sympy branch writes.
 """
 
-import hashlib
 import itertools
 import math
 
 from ._evaluate import Program, _hoisted, _short
+from ._fast import canonical
 from .errors import ExpressionError
 
 __all__ = ["build_symengine"]
@@ -20,39 +20,6 @@ __all__ = ["build_symengine"]
 
 def _rebuild_symengine(e, args_):
     return e.func(*args_)
-
-
-def _canonical(e, memo):
-    """``(expression, key)``: the expression built again with sums and products in a fixed order.
-
-    symengine keeps the terms of a sum in the order of its hash table, which
-    depends on how the expression was built: the same expression derived
-    afresh and read back from a pickle can print its terms in different
-    orders, and floating-point sums in a different order differ in the last
-    bits. Built again bottom-up with the terms inserted in the order of a
-    content key, the result, and so the generated code, is the same however
-    the expression came to be.
-    """
-    found = memo.get(e)
-    if found is not None:
-        return found
-    if not e.args:
-        exact = not e.is_Number or e.is_Integer or e.is_Rational or not e.is_real
-        out = (e, f"{type(e).__name__}:{e if exact else repr(float(e))}")
-    else:
-        kids = [_canonical(a, memo) for a in e.args]
-        if e.is_Add or e.is_Mul:
-            kids.sort(key=lambda k: k[1])
-        digest = hashlib.blake2b(type(e).__name__.encode(), digest_size=16)
-        for _, key in kids:
-            digest.update(key.encode() + b"\0")
-        try:
-            rebuilt = _rebuild_symengine(e, [k for k, _ in kids])
-        except (AttributeError, TypeError, RuntimeError):   # a node the printer refuses anyway
-            rebuilt = e
-        out = (rebuilt, digest.hexdigest())
-    memo[e] = out
-    return out
 
 
 def build_symengine(expr, args):
@@ -67,7 +34,7 @@ def build_symengine(expr, args):
                               f"not arguments ({', '.join(map(str, args))})")
     names = [se.Symbol(f"_a{i}") for i in range(len(args))]
     reduced = expr.xreplace({s: names[index[str(s)]] for s in free}) if free else expr
-    replacements, (reduced,) = se.cse([_canonical(reduced, {})[0]])
+    replacements, (reduced,) = se.cse([canonical(reduced)[0]])
     # symengine names its replacements x0, x1, ... (no clash: the only other symbols are _a*, _c*);
     # they are printed as _s0, _s1, ..., the names _uses recognises (renaming them in the
     # expressions would cost more than the CSE itself)

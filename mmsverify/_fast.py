@@ -24,6 +24,7 @@ content hash.
 """
 
 import ast
+import hashlib
 from decimal import Decimal, InvalidOperation
 
 import sympy as sp
@@ -31,7 +32,7 @@ import sympy as sp
 from . import expr as _expr
 from .errors import ExpressionError
 
-__all__ = ["Unsupported", "SYMPY", "FAST_FUNCTIONS", "fast_engine", "is_fast", "srepr"]
+__all__ = ["Unsupported", "SYMPY", "FAST_FUNCTIONS", "FAST_OPERATORS", "fast_engine", "is_fast", "srepr", "canonical"]
 
 #: Functions the fast engine reads (one argument each); others make it step aside.
 FAST_FUNCTIONS = ("sin", "cos", "tan", "exp", "log", "sqrt", "sinh", "cosh", "tanh", "asin", "acos", "atan")
@@ -218,30 +219,49 @@ def is_fast(expr):
 def srepr(expr):
     """Exact printed form of an expression of either engine, for hashes.
 
-    sympy expressions print with :func:`sympy.srepr`. symengine expressions
-    print as nested ``Type(args)`` with floats in full (``repr``) and the
-    arguments of sums and products sorted, so the text does not depend on
-    the order symengine keeps them in.
+    sympy expressions print with :func:`sympy.srepr`; symengine expressions
+    as the content key of :func:`canonical`, which does not depend on the
+    order symengine keeps the terms of a sum in.
     """
-    if not is_fast(expr):
-        return sp.srepr(expr)
-    return _se_repr(expr)
+    return canonical(expr, rebuild=False)[1] if is_fast(expr) else sp.srepr(expr)
 
 
-def _se_repr(e):
-    kind = type(e).__name__
-    if e.is_Symbol:
-        return f"Symbol({e.name})"
-    if e.is_Number:
-        if e.is_Integer or e.is_Rational:
-            return f"{kind}({e})"
-        return f"Float({float(e)!r})"
-    args = [_se_repr(a) for a in e.args]
-    if not args:
-        return kind
-    if e.is_Add or e.is_Mul:
-        args.sort()
-    return f"{kind}({', '.join(args)})"
+def canonical(e, memo=None, rebuild=True):
+    """``(expression, key)`` of a symengine expression: sums and products in a fixed order.
+
+    symengine keeps the terms of a sum in the order of its hash table, which
+    depends on how the expression was built: the same expression derived
+    afresh and read back from a pickle can print its terms in different
+    orders, and floating-point sums in a different order differ in the last
+    bits. The key is a digest of the content with the terms of sums and
+    products sorted (floats in full); with ``rebuild`` the expression is
+    built again bottom-up with its terms inserted in key order, so the code
+    generated from it is the same however it came to be (else the
+    expression is returned as it is).
+    """
+    memo = {} if memo is None else memo
+    found = memo.get(e)
+    if found is not None:
+        return found
+    if not e.args:
+        exact = not e.is_Number or e.is_Integer or e.is_Rational or not e.is_real
+        out = (e, f"{type(e).__name__}:{e if exact else repr(float(e))}")
+    else:
+        kids = [canonical(a, memo, rebuild) for a in e.args]
+        if e.is_Add or e.is_Mul:
+            kids.sort(key=lambda k: k[1])
+        digest = hashlib.blake2b(type(e).__name__.encode(), digest_size=16)
+        for _, key in kids:
+            digest.update(key.encode() + b"\0")
+        rebuilt = e
+        if rebuild:
+            try:
+                rebuilt = e.func(*[k for k, _ in kids])
+            except (AttributeError, TypeError, RuntimeError):   # a node the code printer refuses anyway
+                pass
+        out = (rebuilt, digest.hexdigest())
+    memo[e] = out
+    return out
 
 
 #: Built-in operators the fast engine derives (the compressible one builds sympy functions; custom

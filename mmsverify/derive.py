@@ -177,28 +177,30 @@ class Manufactured:
         self._side(side)
         return self.exact(name, *coords, t=t)
 
-    def normal_derivative_expr(self, name, side, table="fields"):
-        """Outward normal derivative of a field on a side, as a sympy expression.
-
-        ``table="code"`` gives it in the form evaluator code is generated from
-        (symengine for a problem read by the fast engine; see :meth:`Problem.code_table`).
-        """
+    def normal_derivative_expr(self, name, side):
+        """Outward normal derivative of a field on a side, as a sympy expression."""
         axis, sign = self._side(side)
         self._check_field(name)
-        if table == "code":
-            return sign * self.problem.code_table("fields")[name].diff(self.problem.code_symbols()[0][axis])
         return sign * sp.diff(self.problem.fields[name], self.problem.coords[axis])
+
+    def _normal_derivative_code(self, name, side):
+        # the same in the form code is generated from (symengine for a problem the fast engine read)
+        axis, sign = self._side(side)
+        return sign * self.problem.code_table("fields")[name].diff(self.problem.code_symbols()[0][axis])
 
     def normal_derivative(self, name, side, *coords, t=None):
         """Outward normal derivative ``grad(u) . n`` of a field on a side."""
         self._side(side)
         self._check_field(name)
-        return self._eval(f"dudn_{name}_{side}", lambda: self.normal_derivative_expr(name, side, "code"), coords, t)
+        return self._eval(f"dudn_{name}_{side}", lambda: self._normal_derivative_code(name, side), coords, t)
 
-    def normal_flux_expr(self, name, side, table="fluxes"):
-        """Outward normal flux of a field on a side (``table="code"``: as for :meth:`normal_derivative_expr`)."""
+    def normal_flux_expr(self, name, side):
+        """Outward normal flux of a field on a side, as a sympy expression."""
+        return self._normal_flux(name, side, self.problem.fluxes)
+
+    def _normal_flux(self, name, side, fluxes):
         axis, sign = self._side(side)
-        flux = (self.problem.code_table("fluxes") if table == "code" else self.problem.fluxes).get(name)
+        flux = fluxes.get(name)
         if flux is None:
             raise ProblemError(f"{self.problem.name}: operator {self.problem.operator} defines no flux for "
                                f"{name!r}; use normal_derivative instead")
@@ -208,8 +210,9 @@ class Manufactured:
         """Outward normal flux (e.g. ``k grad(u) . n`` for diffusion) on a side."""
         self._side(side)
         if name not in self.problem.names("fluxes"):
-            self.normal_flux_expr(name, side)   # raises: no flux for this field
-        return self._eval(f"flux_{name}_{side}", lambda: self.normal_flux_expr(name, side, "code"), coords, t)
+            self._normal_flux(name, side, {})   # raises: no flux for this field
+        code = lambda: self._normal_flux(name, side, self.problem.code_table("fluxes"))  # noqa: E731
+        return self._eval(f"flux_{name}_{side}", code, coords, t)
 
     def parameter(self, name, *coords, t=None):
         """An operator parameter (coefficient) evaluated with the exact fields."""

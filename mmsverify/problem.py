@@ -73,7 +73,7 @@ import sympy as sp
 
 from . import _diskcache, _fast
 from .errors import ProblemError, MMSError
-from .expr import _Timeout, _time_limit, parse_expression
+from .expr import _Timeout, _time_limit
 from .operators import OPERATORS, get_operator, derivative_functions
 
 __all__ = ["Problem", "load_problem", "problem_from_text", "bundled_problems", "get_problem",
@@ -210,8 +210,7 @@ class Problem:
 
     def code_table(self, table):
         """One table as evaluator code is generated from it (symengine or sympy expressions)."""
-        fast = self._fast_tables()
-        return fast[table] if fast is not None else getattr(self, table)
+        return self._tables()[table]
 
     def code_symbols(self):
         """Space coordinates and time (None when steady) as symbols of the :meth:`code_table` expressions."""
@@ -264,12 +263,8 @@ class Problem:
         self.parameters_hash()
         self.bounds_hash()
         self._parameter_table()
-        out = copy.copy(self)
         tables = self._tables()
-        for k in Problem._SYMBOLIC:
-            out.__dict__.pop(k, None)
-        out.__dict__["_names"] = {k: tuple(v) for k, v in tables.items()}
-        out.__dict__["_quantity_info"] = {k: (q[0], q[2], q[3]) for k, q in tables["quantities"].items()}
+        out = self._without_tables(tables)
         blob = pickle.dumps(tables, protocol=pickle.HIGHEST_PROTOCOL)
         if self._fast_tables() is not None:
             out.__dict__.pop("_fast", None)
@@ -280,12 +275,17 @@ class Problem:
 
     def _fast_form(self, text):
         """This problem (read by the fast engine) as kept: symengine tables aside, sympy ones on demand."""
-        out = copy.copy(self)
         tables = {k: self.__dict__[k] for k in Problem._SYMBOLIC}
-        for k in Problem._SYMBOLIC:
-            out.__dict__.pop(k)
+        out = self._without_tables(tables)
         out.__dict__["_fast"] = tables
         out.__dict__["_text"] = text
+        return out
+
+    def _without_tables(self, tables):
+        """A copy without the symbolic tables, with what is known of them without building them."""
+        out = copy.copy(self)
+        for k in Problem._SYMBOLIC:
+            out.__dict__.pop(k, None)
         out.__dict__["_names"] = {k: tuple(v) for k, v in tables.items()}
         out.__dict__["_quantity_info"] = {k: (q[0], q[2], q[3]) for k, q in tables["quantities"].items()}
         return out
@@ -503,8 +503,6 @@ class _Reader:
             self.fail("operator", "kind", f"expected an operator name in quotes, got {kind!r:.60}")
         with_fields = {**names, **fields}
         equations, fluxes, parameters = {}, {}, {}
-        if self.engine is not _fast.SYMPY and kind not in _fast.FAST_OPERATORS:
-            raise _fast.Unsupported(kind)
         if kind == "custom":
             eqs = op_tab.pop("equations", None)
             if not isinstance(eqs, dict) or not eqs:
@@ -751,7 +749,7 @@ def _read_fast(data, text, source):
         return None
     try:
         problem = _Reader(data, text, source, engine).read()
-    except (Exception, RecursionError):  # anything at all: the sympy reader decides and explains
+    except Exception:  # anything at all: the sympy reader decides and explains
         return None
     return problem._fast_form(text)
 

@@ -279,17 +279,13 @@ def _order_conflicts(problem, solver, mode, *, caller, planned, base_steps):
     return tuple(conflicts)
 
 
-def _verdicts(problem, results, formal, tol, norms=NORMS):
-    """One verdict per field and judged norm, then one per reported quantity.
-
-    ``norms`` is a sequence of norms judged for every field, or a mapping
-    of field name to its judged norms (fields not in it: all norms).
-    """
+def _verdicts(problem, results, formal, tol, judged):
+    """One verdict per field and judged norm (``judged``: field -> norms, as :func:`judged_norms` gives),
+    then one per reported quantity."""
     verdicts = []
     for f in problem.field_names:
         ok = [r for r in results if r.ok and f in r.errors]
-        judged = norms.get(f, NORMS) if isinstance(norms, Mapping) else norms
-        for n in judged if ok else ():
+        for n in judged.get(f, NORMS) if ok else ():
             verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], formal, tol,
                                   scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
     for q in problem.names("quantities"):

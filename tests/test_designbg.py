@@ -68,3 +68,14 @@ def test_a_child_that_dies_leaves_the_work_to_the_parent(tmp_path, monkeypatch, 
         pytest.skip("this process cannot fork safely (threads running)")
     pending.finish()
     assert "every leading truncation-error derivative" in capsys.readouterr().err
+
+
+def test_no_process_to_spare_means_the_checks_run_here(tmp_path, monkeypatch, capsys):
+    monkeypatch.setenv("MMSVERIFY_CACHE", str(tmp_path))
+
+    def refused():
+        raise OSError(11, "Resource temporarily unavailable")
+    monkeypatch.setattr(_designbg.os, "fork", refused)
+    args = argparse.Namespace(problem=str(DATA / "quadratic-poisson.toml"), formal_order=None, mode="combined")
+    assert _designbg.start_design_warnings(args) is None
+    assert "every leading truncation-error derivative" in capsys.readouterr().err

@@ -2,11 +2,12 @@
 
 import json
 
-import numpy as np
 import pytest
 
 from mmsverify.cli import main
 from mmsverify.estimate import assess
+
+from _helpers import write_profiles
 
 
 def test_values_on_the_command_line_reproduce_celik_column_1(capsys, tmp_path):
@@ -40,13 +41,8 @@ def test_level_file(tmp_path, capsys):
 
 def test_profile_from_three_files(tmp_path, capsys):
     # closed form: phi(x; h) = sin(x) + h**2 cos(3x) converges at order 2 pointwise
-    files, cells = [], [10, 20, 40]
-    for n in cells:
-        x = np.linspace(0, 2, n + 1)
-        h = 2 / n
-        p = tmp_path / f"p{n}.csv"
-        p.write_text("x, u\n" + "\n".join(f"{a:.17g}, {np.sin(a) + h * h * np.cos(3 * a):.17g}" for a in x))
-        files.append(str(p))
+    cells = [10, 20, 40]
+    files = write_profiles(tmp_path, cells, prefix="p")
     png = tmp_path / "prof.png"
     rc = main(["estimate", "--profile", *files, "--cells", ",".join(map(str, cells)), "--dim", "1",
                "--volume", "2", "--column", "u", "--plot", str(png)])

@@ -9,19 +9,9 @@ from mmsverify.errors import AnalysisError
 from mmsverify.estimate import assess
 from mmsverify.gci import gci_profile
 
+from _helpers import write_profiles
+
 CELLS = (10, 20, 40)  # coarse to fine
-
-
-def _profiles(tmp_path):
-    # closed form: phi(x; h) = sin(x) + h^2 cos(3x) on [0, 2], second order at every node
-    files = []
-    for n in CELLS:
-        x = np.linspace(0, 2, n + 1)
-        h = 2 / n
-        p = tmp_path / f"grid{n}.csv"
-        p.write_text("x, u\n" + "\n".join(f"{a:.17g}, {np.sin(a) + h * h * np.cos(3 * a):.17g}" for a in x))
-        files.append(str(p))
-    return files
 
 
 def _run(capsys, argv):
@@ -31,7 +21,7 @@ def _run(capsys, argv):
 
 
 def test_profile_files_and_sizes_both_fine_first_are_reordered_with_a_note(tmp_path, capsys):
-    files = _profiles(tmp_path)
+    files = write_profiles(tmp_path, CELLS)
     base = ["--dim", "1", "--volume", "2", "--column", "u"]
     rc0, ref, _ = _run(capsys, ["estimate", "--profile", *files, "--cells", "10,20,40", *base])
     rc, out, _ = _run(capsys, ["estimate", "--profile", *files[::-1], "--cells", "40,20,10", *base])
@@ -41,7 +31,7 @@ def test_profile_files_and_sizes_both_fine_first_are_reordered_with_a_note(tmp_p
 
 
 def test_profile_files_fine_first_with_sizes_coarse_first_are_refused(tmp_path, capsys):
-    files = _profiles(tmp_path)
+    files = write_profiles(tmp_path, CELLS)
     rc, out, err = _run(capsys, ["estimate", "--profile", *files[::-1], "--cells", "10,20,40", "--dim", "1",
                                  "--volume", "2", "--column", "u"])
     assert rc == 2 and out == ""
@@ -49,7 +39,7 @@ def test_profile_files_fine_first_with_sizes_coarse_first_are_refused(tmp_path, 
 
 
 def test_profile_files_coarse_first_with_sizes_fine_first_are_refused(tmp_path, capsys):
-    files = _profiles(tmp_path)
+    files = write_profiles(tmp_path, CELLS)
     rc, _, err = _run(capsys, ["estimate", "--profile", *files, "--cells", "40,20,10", "--dim", "1",
                                "--volume", "2", "--column", "u"])
     assert rc == 2 and files[0] in err and "same order" in err

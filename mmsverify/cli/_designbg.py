@@ -7,8 +7,9 @@ once, ahead of the study, as always. Not seen before, they are worked out
 in a forked child process on another core while the study runs, and
 printed as soon as they are ready: after the next level that finishes, or
 at the end of the study, before its table. Where forking is not safe
-(not Linux, threads other than mmsverify's own running) or the child fails, the parent works
-them out itself, as before.
+(not Linux, threads other than mmsverify's own running), where no process
+can be started, or when the child fails, the parent works them out itself,
+as before.
 """
 
 import gc
@@ -125,8 +126,13 @@ def start_design_warnings(args):
     # in this process would otherwise touch every one of them and copy all the memory the two share
     # (copy-on-write), slowing the study more than the checks take.
     gc.freeze()
-    read, write = os.pipe()
-    pid = os.fork()
+    try:
+        read, write = os.pipe()
+        pid = os.fork()
+    except OSError:   # no process or pipe to spare: work them out here, as before
+        gc.unfreeze()
+        _show(cached_design_warnings(problem, **kw), sys.stderr)
+        return None
     if pid == 0:
         os.close(read)
         _child(problem, kw, write)
