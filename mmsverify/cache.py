@@ -32,8 +32,9 @@ import inspect
 import json
 import os
 from pathlib import Path
-import threading
+import queue
 import time
+import _thread
 
 from .solvers import solver_name
 
@@ -207,8 +208,29 @@ class LevelCache:
             os.replace(tmp, path)
         finally:
             tmp.unlink(missing_ok=True)
-        threading.Thread(target=_flush, args=(path,), name="mmsverify-level-flush", daemon=True).start()
+        _flusher().put(path)
         return path
+
+
+@functools.lru_cache(maxsize=None)
+def _flusher():
+    """The queue of records waiting for the disk, served by one thread for the life of the process.
+
+    One bare thread (``_thread``), not a ``threading.Thread`` per record:
+    ``Thread.start`` waits until the new thread runs, which with the cores
+    busy (a solve's BLAS threads, the design checks' child process) took
+    1 to 4 ms each time. Nothing here needs that handshake; like a daemon
+    thread it ends with the process.
+    """
+    todo = queue.SimpleQueue()
+    _thread.start_new_thread(_flush_all, (todo,))
+    return todo
+
+
+def _flush_all(todo):
+    while True:
+        path = todo.get()
+        _flush(path)
 
 
 def _flush(path):
@@ -221,6 +243,10 @@ def _flush(path):
             os.close(fd)
     except OSError:  # removed meanwhile, or a file system without fsync: nothing to keep
         pass
+
+
+if hasattr(os, "register_at_fork"):  # a forked child has no flush thread: it starts its own when it needs one
+    os.register_at_fork(after_in_child=_flusher.cache_clear)
 
 
 def _plain(info):

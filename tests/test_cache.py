@@ -86,6 +86,23 @@ def test_records_are_written_atomically_and_unreadable_ones_ignored(tmp_path):
     assert cache.load(key, case.grid) is None
 
 
+def test_records_are_pushed_to_disk_after_they_are_in_place(tmp_path, monkeypatch):
+    import threading
+    from mmsverify import cache as cache_mod
+    flushed, done = [], threading.Event()
+
+    def fake_flush(path):
+        if tmp_path in path.parents:  # not a record an earlier test left waiting
+            flushed.append(path)
+        if len(flushed) == 3:
+            done.set()
+
+    monkeypatch.setattr(cache_mod, "_flush", fake_flush)
+    run_study(PROBLEM, "poisson2d", levels=3, cache_dir=tmp_path)
+    assert done.wait(10)
+    assert sorted(flushed) == sorted((tmp_path / "levels").glob("*.json"))   # whole records, by their final names
+
+
 def test_rerun_reuses_finished_levels(counting, tmp_path):
     first = run_study(PROBLEM, "counting_solver:solve", levels=3, cache_dir=tmp_path / "c")
     assert _calls(counting) == [0, 1, 2]
