@@ -3,7 +3,7 @@
 The study is the command a user types,
 ``mmsverify run plate-poisson poisson2d --levels 4 --base-cells 128 --cache DIR --json FILE``
 (levels 128^2 ... 1024^2 cells, about a million unknowns on the finest),
-run through :func:`mmsverify.cli.main` in a child process with light
+run through :func:`mmsverify.cli.console` (the program's entry) in a child process with light
 timers around each stage. Exclusive times (a stage nested in another is
 subtracted from it):
 
@@ -161,7 +161,7 @@ def _child(argv):
     out = io.StringIO()
     w, c = time.perf_counter(), time.process_time()
     with contextlib.redirect_stdout(out):
-        code = cli.main(argv)
+        code = cli.console(argv)  # what the mmsverify program runs (main in a process of its own)
     total = (time.perf_counter() - w, time.process_time() - c)
     import resource
     child_cpu = resource.getrusage(resource.RUSAGE_CHILDREN)

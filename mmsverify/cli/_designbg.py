@@ -39,8 +39,9 @@ def _show(warnings, stream):
 class _Pending:
     """Warnings being worked out in a child; :meth:`poll` prints them when ready, :meth:`finish` waits."""
 
-    def __init__(self, pid, fd, problem, kw):
+    def __init__(self, pid, fd, problem, kw, thaw):
         self.pid, self.fd, self.problem, self.kw = pid, fd, problem, kw
+        self.thaw = thaw   # unfreeze the collector when done (it had nothing frozen before)
         self.done = False
 
     def poll(self, before=None):
@@ -63,7 +64,8 @@ class _Pending:
         finally:
             os.close(self.fd)
             os.waitpid(self.pid, 0)
-            gc.unfreeze()
+            if self.thaw:
+                gc.unfreeze()
         try:
             kind, value = pickle.loads(b"".join(chunks))
         except Exception:  # the child died before it wrote: do the work here
@@ -105,14 +107,16 @@ def _other_threads():
             if t is not threading.main_thread() and not t.name.startswith("mmsverify-")]
 
 
-def start_design_warnings(args):
+def start_design_warnings(args, problem=None):
     """Print the design warnings of ``args.problem`` now if cached, else start them beside the study.
+
+    ``problem`` is that problem when the caller has read it already.
 
     Returns None, or a pending object whose ``poll()`` and ``finish()`` print them.
     """
     from .._designcache import cached_design_warnings, cached_only
     from ..problem import get_problem
-    problem, kw = get_problem(args.problem), _orders(args)
+    problem, kw = get_problem(args.problem if problem is None else problem), _orders(args)
     hit = cached_only(problem, **kw)
     if hit is not None:
         _show(hit, sys.stderr)
@@ -124,17 +128,21 @@ def start_design_warnings(args):
     sys.stderr.flush()
     # Objects created so far leave the garbage collector's view while the child lives: a collection
     # in this process would otherwise touch every one of them and copy all the memory the two share
-    # (copy-on-write), slowing the study more than the checks take.
+    # (copy-on-write), slowing the study more than the checks take. A process that runs one command
+    # has frozen them already for good (mmsverify.cli.main); only a freeze made here is undone.
+    # (gc.get_freeze_count() would tell, but it walks every frozen object: milliseconds.)
+    thaw = not getattr(args, "own_process", False)
     gc.freeze()
     try:
         read, write = os.pipe()
         pid = os.fork()
     except OSError:   # no process or pipe to spare: work them out here, as before
-        gc.unfreeze()
+        if thaw:
+            gc.unfreeze()
         _show(cached_design_warnings(problem, **kw), sys.stderr)
         return None
     if pid == 0:
         os.close(read)
         _child(problem, kw, write)
     os.close(write)
-    return _Pending(pid, read, problem, kw)
+    return _Pending(pid, read, problem, kw, thaw)

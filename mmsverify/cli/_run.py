@@ -1,11 +1,13 @@
 """``mmsverify run PROBLEM SOLVER``: a manufactured-solution study."""
 
+import gc
 import shlex
 import sys
 from pathlib import Path
 
 from ..errors import SolverError
 from ..external import OUTPUT_FORMATS, ExternalSolver
+from ..solvers import resolve_solver
 from ..study import MODES, run_study
 from . import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_INPUT, EXIT_OK
 
@@ -109,7 +111,23 @@ def _dask_client(address, workers):
     return distributed.Client(address)
 
 
+def settle(args):
+    """In a process of its own (see :func:`mmsverify.cli.main`): load the solver's module, then freeze.
+
+    The module and its libraries are imported now rather than inside the
+    study, so that they are frozen out of the garbage collector with
+    everything else made so far. A name that cannot be imported fails here,
+    before any work. Cheap to repeat.
+    """
+    if not getattr(args, "own_process", False):
+        return
+    if getattr(args, "solver", None) is not None and not getattr(args, "external", None):
+        resolve_solver(args.solver)
+    gc.freeze()
+
+
 def study_from_args(args, problem, solver, progress=None):
+    settle(args)
     solver = external_from_args(args) or solver
     kwargs = dict(levels=args.levels, base_cells=args.base_cells, ratio=args.ratio, mode=args.mode,
                   base_steps=args.base_steps, tolerance=args.tolerance, formal_order=args.formal_order,
@@ -137,15 +155,18 @@ def _run(args):
     if args.solver is not None and args.external:
         print("mmsverify run: give either a solver or --external, not both", file=sys.stderr)
         return 2
+    from ..problem import get_problem
     from ..progress import progress_for
     quiet = getattr(args, "quiet", False)
-    pending = None if quiet else print_design_warnings(args)
+    problem = get_problem(args.problem)  # read once: the design checks and the study share it
+    settle(args)
+    pending = None if quiet else print_design_warnings(args, problem)
     label = args.solver or args.external
     progress = progress_for(args, label=f"{args.problem} / {label}")
     if pending is not None:
         progress = _Announcing(progress, pending)
     try:
-        result = study_from_args(args, args.problem, args.solver, progress)
+        result = study_from_args(args, problem, args.solver, progress)
     finally:
         getattr(progress, "close", lambda: None)()  # end a live progress line before the table
         if pending is not None:
@@ -178,7 +199,7 @@ def print_plans(result, target):
         print("  " + str(p).replace("\n", "\n  "))
 
 
-def print_design_warnings(args):
+def print_design_warnings(args, problem=None):
     """Warn where the manufactured solution cannot catch mistakes (see :mod:`._designbg`).
 
     The warnings of a problem seen before come from the derivation cache and
@@ -186,7 +207,7 @@ def print_design_warnings(args):
     the pending work is returned (None when printed already).
     """
     from ._designbg import start_design_warnings
-    return start_design_warnings(args)
+    return start_design_warnings(args, problem)
 
 
 class _Announcing:
