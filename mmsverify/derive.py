@@ -233,7 +233,14 @@ class Manufactured:
             t = p.t_range[1]
         key = (name, None if t is None else float(t))
         if key not in self._quantities:
-            self._quantities[key] = self._exact_quantity(name, t)
+            if self._ident is None:
+                self._ident = _Programs.ident(p, self._args)
+            disk = _diskcache.make_key(*self._ident, *key)
+            value = _diskcache.load("quantity", disk)
+            if not isinstance(value, float):
+                value = self._exact_quantity(name, t)
+                _diskcache.store("quantity", disk, value)
+            self._quantities[key] = value
         return self._quantities[key]
 
     def _exact_quantity(self, name, t):

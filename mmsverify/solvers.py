@@ -147,11 +147,18 @@ def solver_name(solver):
     return f"{mod}:{qual}"
 
 
-def _all_finite(a):
-    """True when every entry is finite: one pass without a temporary array in the usual case."""
+def _finite_sum(a):
+    """The sum of ``a`` when every entry is finite, else None: one pass without a temporary in the usual case."""
     with np.errstate(all="ignore"):
         total = np.add.reduce(a, axis=None)  # a NaN or an infinity makes the sum NaN or infinite
-    return bool(np.isfinite(total)) or bool(np.isfinite(a).all())  # an overflowing sum is checked entry by entry
+    if np.isfinite(total) or np.isfinite(a).all():  # an overflowing sum is checked entry by entry
+        return total
+    return None
+
+
+def _all_finite(a):
+    """True when every entry is finite."""
+    return _finite_sum(a) is not None
 
 
 _KINDS = {"c": "complex", "b": "boolean", "U": "text", "S": "text", "O": "Python object", "M": "date",
@@ -228,8 +235,9 @@ def check_solution(sol, problem, where):
         except (ValueError, TypeError):
             raise SolverError(f"{where}: weights of shape {np.shape(sol.weights)} do not match the values' "
                               f"shape {shape}") from None
-        # checked before broadcasting; with no negative entry the sum is positive exactly when the largest is
-        if not _all_finite(raw) or raw.min() < 0 or not raw.max() > 0:
+        # checked before broadcasting; with no negative entry the sum is positive exactly when one entry is
+        total = _finite_sum(raw)
+        if total is None or raw.min() < 0 or not total > 0:
             raise SolverError(f"{where}: weights (cell volumes) must be finite, non-negative and not all zero")
     if not isinstance(sol.quantities, dict):
         raise SolverError(f"{where}: Solution.quantities must be a dict of name to number")

@@ -238,3 +238,24 @@ def test_stated_orders_follow_the_options_that_configure_the_solver():
     assert [c["solver"] for c in r.order_conflicts] == [1.0]
     with pytest.raises(SolverError, match="neumann='ghost'"):
         run_study("plate-poisson", FDDiffusion(), levels=2, options={"neumann": "ghost"})
+
+
+def test_the_solvers_arrays_are_left_as_returned():
+    # u = x: the exact values on full meshgrid points can be a view of the solver's x array, so the error
+    # must not be written into them (the study reuses the exact values' memory only when it is its own)
+    from mmsverify import problem_from_text
+    problem = problem_from_text('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "x"\n[order]\nspace = 2\n',
+                                "linear-field")
+    kept = []
+
+    def solve(case):
+        X, Y = np.meshgrid(*(case.grid.nodes(a) for a in range(2)), indexing="ij")
+        u = X + case.grid.spacing[0] ** 2 * Y      # an error of order h^2
+        kept.append((X, X.copy(), u, u.copy()))
+        return Solution(values={"u": u}, points=(X, Y))
+
+    result = run_study(problem, solve, levels=3, base_cells=4)
+    for X, X0, u, u0 in kept:
+        assert np.array_equal(X, X0) and np.array_equal(u, u0)
+    assert result.passed
+    assert result.levels[0].errors["u"]["Linf"] == pytest.approx(0.25 ** 2)   # h^2 * max y
