@@ -33,12 +33,15 @@ Children run with Python's default bytecode cache (``PYTHONDONTWRITEBYTECODE``
 removed from their environment), as a user's Python runs.
 
 Run: ``python bench/harness_overhead.py [--base 128] [--levels 4] [--repeats 2]``;
-``--tiny`` is a smoke run (base 8, 3 levels).
+``--tiny`` is a smoke run (base 8, 3 levels). The stage tables show the
+fastest run per state; the spread table the harness share of every run
+(the solver's own time moves by 10-20 % between runs, and the share with it).
 """
 
 import argparse
 import json
 import os
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -176,6 +179,12 @@ def _child(argv):
                       "child_cpu": child_cpu}))
 
 
+def _share(r):
+    """Harness share of run_study's wall time in one run, percent."""
+    tot = r["total"][0] - r["wall"]["parser"] - r["wall"]["design"]
+    return 100 * (tot - r["wall"]["solver"]) / tot
+
+
 def _run_child(cache, args, workdir, inline=False):
     cmd = ["run", args.problem, args.solver, "--levels", str(args.levels), "--base-cells", str(args.base),
            "--cache", os.path.join(workdir, "levels"), "--json", os.path.join(workdir, "study.json")]
@@ -207,7 +216,7 @@ def main(argv=None):
     if args.tiny:
         args.base, args.levels, args.repeats = 8, 3, 1
     load0 = os.getloadavg()
-    runs = {}
+    runs, shares = {}, {}
     with tempfile.TemporaryDirectory() as tmp:
         for rep in range(args.repeats):
             cache = os.path.join(tmp, f"derivation-cache-{rep}")  # a new, empty derivation cache per repeat
@@ -220,6 +229,7 @@ def main(argv=None):
                     raise SystemExit(f"the study did not pass (exit {r['code']}); the figure would be meaningless")
                 if state not in runs or r["total"][0] < runs[state]["total"][0]:
                     runs[state] = r
+                shares.setdefault(state, []).append(_share(r))
     load1 = os.getloadavg()
     first = next(iter(runs.values()))
     cells = " / ".join(f"{c[0]}^{len(c)}" for c, _ in first["levels"])
@@ -249,6 +259,14 @@ def main(argv=None):
                                f"{harness:.3f}", f"{100 * harness / tot:.2f} %"])
     print(table(["derivation cache", "clock", "run_study total s", "run_study harness s", "**harness share, run_study**",
                  "CLI total s", "CLI harness s", "harness share, CLI"], ratio_rows))
+    print()
+    spread = []
+    for state, values in shares.items():
+        values = sorted(values)
+        spread.append([state, str(len(values)), f"{values[0]:.2f} %", f"{statistics.median(values):.2f} %",
+                       f"**{values[-1]:.2f} %**"])
+    print(table(["derivation cache", "runs", "harness share, run_study, wall: lowest", "median", "highest"],
+                spread))
     print()
     print("run_study = the command minus its CLI-only stages (parser, design warnings). CPU seconds count every "
           "thread of the process, so BLAS helper threads still spinning after a solve add to the stage that "
