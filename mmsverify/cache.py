@@ -230,7 +230,10 @@ def _flusher():
 def _flush_all(todo):
     while True:
         path = todo.get()
-        _flush(path)
+        try:
+            _flush(path)
+        except Exception:  # noqa: BLE001  (one record not flushed must not stop the flushing of the others)
+            pass
 
 
 def _flush(path):

@@ -233,13 +233,16 @@ class Manufactured:
             t = p.t_range[1]
         key = (name, None if t is None else float(t))
         if key not in self._quantities:
+            # one derivation-cache entry per problem holds every value worked out for it
             if self._ident is None:
                 self._ident = _Programs.ident(p, self._args)
-            disk = _diskcache.make_key(*self._ident, *key)
-            value = _diskcache.load("quantity", disk)
+            disk = _diskcache.make_key(*self._ident)
+            stored = _diskcache.load("quantities", disk)
+            stored = stored if isinstance(stored, dict) else {}
+            value = stored.get(key)
             if not isinstance(value, float):
-                value = self._exact_quantity(name, t)
-                _diskcache.store("quantity", disk, value)
+                value = stored[key] = self._exact_quantity(name, t)
+                _diskcache.store("quantities", disk, stored)
             self._quantities[key] = value
         return self._quantities[key]
 

@@ -478,7 +478,7 @@ def _run_level(solver, case, where):
             exact = mms.exact(name, *points, t=t)
             scale[name] = float(np.maximum(np.max(exact), -np.min(exact)))  # max |exact|, no temporary
             # the error goes into the exact values' array, a new one, unless it could be an input's memory
-            own = exact.shape == v.shape and exact.flags.writeable and not any(
+            own = exact.flags.owndata and exact.shape == v.shape and not any(
                 np.may_share_memory(exact, a) for a in (v, *points))
             magnitude = np.subtract(v, exact, out=exact if own else None)
             errors[name] = _magnitude_norms(np.abs(magnitude, out=magnitude), weights)

@@ -103,6 +103,25 @@ def test_records_are_pushed_to_disk_after_they_are_in_place(tmp_path, monkeypatc
     assert sorted(flushed) == sorted((tmp_path / "levels").glob("*.json"))   # whole records, by their final names
 
 
+def test_one_record_that_cannot_be_flushed_does_not_stop_the_others(tmp_path, monkeypatch):
+    import threading
+    from mmsverify import cache as cache_mod
+    flushed, done = [], threading.Event()
+
+    def flaky_flush(path):
+        if tmp_path not in path.parents:
+            return
+        flushed.append(path)
+        if len(flushed) == 1:
+            raise RuntimeError("the first flush fails")
+        if len(flushed) == 3:
+            done.set()
+
+    monkeypatch.setattr(cache_mod, "_flush", flaky_flush)
+    run_study(PROBLEM, "poisson2d", levels=3, cache_dir=tmp_path)
+    assert done.wait(10)
+
+
 def test_rerun_reuses_finished_levels(counting, tmp_path):
     first = run_study(PROBLEM, "counting_solver:solve", levels=3, cache_dir=tmp_path / "c")
     assert _calls(counting) == [0, 1, 2]

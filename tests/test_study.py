@@ -259,3 +259,22 @@ def test_the_solvers_arrays_are_left_as_returned():
         assert np.array_equal(X, X0) and np.array_equal(u, u0)
     assert result.passed
     assert result.levels[0].errors["u"]["Linf"] == pytest.approx(0.25 ** 2)   # h^2 * max y
+
+
+def test_axis_points_and_a_coordinate_field_give_no_warning():
+    # u = x on np.ix_ points: the exact values are then a broadcast view of the points; asking whether
+    # such a view is writeable warns in NumPy 2 (FutureWarning), and a user's suite may turn warnings
+    # into errors. The study must neither warn nor write into the view.
+    import warnings
+    from mmsverify import problem_from_text
+    problem = problem_from_text('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "x"\n[order]\nspace = 2\n',
+                                "linear-field")
+
+    def solve(case):
+        x, y = np.ix_(case.grid.nodes(0), case.grid.nodes(1))
+        return Solution(values={"u": x + case.grid.spacing[0] ** 2 * y}, points=(x, y))
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        result = run_study(problem, solve, levels=3, base_cells=4)
+    assert result.passed and all(lv.ok for lv in result.levels)

@@ -102,7 +102,10 @@ def _child(problem, kw, fd):
 
 
 def _other_threads():
-    """Threads besides the main one and mmsverify's own (cache writer, level flush), which forking tolerates."""
+    """Threads besides the main one and mmsverify's own (the derivation cache's writer), which forking tolerates.
+
+    (The level cache's flush thread is a bare one, not listed here; it holds nothing a child uses.)
+    """
     return [t for t in threading.enumerate()
             if t is not threading.main_thread() and not t.name.startswith("mmsverify-")]
 

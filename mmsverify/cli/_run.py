@@ -117,7 +117,10 @@ def settle(args):
     The module and its libraries are imported now rather than inside the
     study, so that they are frozen out of the garbage collector with
     everything else made so far. A name that cannot be imported fails here,
-    before any work. Cheap to repeat.
+    before any work. Cheap to repeat. In ``run`` this comes before the
+    design checks start: a solver module that starts threads when imported
+    makes them run in this process instead of a forked child (see
+    :mod:`._designbg`).
     """
     if not getattr(args, "own_process", False):
         return
