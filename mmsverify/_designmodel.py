@@ -29,7 +29,7 @@ import sympy as sp
 from sympy.core.function import AppliedUndef
 
 from .errors import ProblemError
-from .expr import parse_expression
+from .expr import parse_expression, parse_quietly
 from .operators import derivative_functions, get_operator
 from .problem import get_problem, problem_from_text
 
@@ -156,7 +156,7 @@ def split_sum(text):
     """
     flat = " ".join(str(text).split())
     try:
-        tree = ast.parse(flat, mode="eval").body
+        tree = parse_quietly(flat).body
     except (SyntaxError, ValueError, RecursionError):
         return [(1, flat)]
     parts = []
@@ -179,7 +179,7 @@ def split_sum(text):
 
 def _names_in(text):
     try:
-        return {n.id for n in ast.walk(ast.parse(text, mode="eval")) if isinstance(n, ast.Name)}
+        return {n.id for n in ast.walk(parse_quietly(text)) if isinstance(n, ast.Name)}
     except (SyntaxError, ValueError, RecursionError):
         return set()
 

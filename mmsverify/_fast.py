@@ -102,7 +102,7 @@ class _Symengine:
         if not body or "#" in body:
             raise Unsupported(where)
         try:
-            tree = ast.parse(body, mode="eval")
+            tree = _expr.parse_quietly(body)
         except (SyntaxError, ValueError, RecursionError, MemoryError):
             raise Unsupported(where) from None
         ctx = _expr._Ctx(text, body, 0, names, {}, where)

@@ -35,6 +35,7 @@ import inspect
 import signal
 import threading
 import time
+import warnings
 from decimal import Decimal, InvalidOperation
 from types import MappingProxyType
 from typing import Callable, Mapping
@@ -263,9 +264,22 @@ def _time_limit(seconds):
             signal.signal(signal.SIGALRM, old)
 
 
+def parse_quietly(body):
+    """``ast.parse(body, mode="eval")`` with the compiler's warnings about the text silenced.
+
+    Python 3.12+ warns on stderr of text such as ``1if`` (invalid decimal
+    literal) while parsing it; the safe parser says what is wrong in its own
+    words, so the warning would only be noise ahead of the message.
+    """
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", SyntaxWarning)
+        warnings.simplefilter("ignore", DeprecationWarning)
+        return ast.parse(body, mode="eval")
+
+
 def _parse(ctx, text, body):
     try:
-        return ast.parse(body, mode="eval")
+        return parse_quietly(body)
     except SyntaxError as exc:
         if not exc.offset:
             raise ExpressionError(f"{ctx.where}: syntax error: {exc.msg}") from None

@@ -68,6 +68,7 @@ def test_entries_are_written_at_interpreter_exit(cache):
     assert _diskcache.load("problem", "d" * 40) == {"y": 2}
 
 
+@pytest.mark.filterwarnings("ignore:This process .* is multi-threaded:DeprecationWarning")  # Python 3.12+: forks with the writer running on purpose
 def test_a_forked_child_starts_with_its_own_queue_and_flushes_what_it_stores(cache):
     _diskcache.store("design", "e" * 40, ["parent"])
     parent_queue = _diskcache._state

@@ -439,3 +439,17 @@ def test_nested_limits_restore_the_outer_one():
                     pass
     assert 0.15 < time.monotonic() - start < 1.0
     assert signal.getsignal(signal.SIGALRM) == signal.SIG_DFL and signal.getitimer(signal.ITIMER_REAL)[0] == 0
+
+
+@pytest.mark.parametrize("entry, says", [('u = "1if x else 2"', "conditional expression"),
+                                          ("""u = "'\\\\d' + x" """, "not allowed")])
+def test_text_python_warns_about_gets_only_our_message(entry, says):
+    # Python 3.12+ warns while parsing such text ("invalid decimal literal", "invalid escape
+    # sequence"); a problem file's author should see the message naming the place, not the compiler's
+    # warning ahead of it, also where warnings are errors.
+    import warnings
+    from mmsverify.problem import problem_from_text
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        with pytest.raises(ProblemError, match=says):
+            problem_from_text("[domain]\nx = [0, 1]\n[fields]\n" + entry + "\n", "shared.toml")

@@ -422,11 +422,6 @@ def summary(results):
     return table
 
 
-# An alarm of the load time limit can land in a garbage-collector callback (Hypothesis installs one),
-# which prints the exception and drops it; the limit rings again 50 ms later by design (expr._REPEAT)
-# and the timing assertions below still hold. pytest reports the dropped one as a warning: expected here.
-@pytest.mark.filterwarnings(
-    "ignore:Exception ignored in. <function gc_cumulative_time:pytest.PytestUnraisableExceptionWarning")
 def test_a_thousand_generated_hostile_files_end_in_a_problem_or_a_clear_error_in_time(hostile_env):
     files = corpus()
     assert len(files) >= 1000 and len({label for label, _ in files}) == len(files)

@@ -18,6 +18,7 @@ import pickle
 import select
 import sys
 import threading
+import warnings
 
 __all__ = ["start_design_warnings", "BACKGROUND"]
 
@@ -138,7 +139,13 @@ def start_design_warnings(args, problem=None):
     gc.freeze()
     try:
         read, write = os.pipe()
-        pid = os.fork()
+        with warnings.catch_warnings():
+            # Python 3.12+ warns of any fork with threads running. The only threads here are
+            # mmsverify's own (see _other_threads) and native library pools: the derivation cache's
+            # writer queue is made anew in the child (_diskcache, os.register_at_fork), the level
+            # flush thread holds nothing the child uses, and OpenBLAS re-initialises after a fork.
+            warnings.filterwarnings("ignore", r"This process .* is multi-threaded", DeprecationWarning)
+            pid = os.fork()
     except OSError:   # no process or pipe to spare: work them out here, as before
         if thaw:
             gc.unfreeze()
