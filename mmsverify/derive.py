@@ -130,9 +130,13 @@ class Manufactured:
             if t is None:
                 raise ProblemError(f"{p.name} is transient: pass t=... to evaluate it")
             values += (t,)
+        return _Programs.evaluator(self._programs_ident(), self._args, key, make_expr)(*values)
+
+    def _programs_ident(self):
+        """What identifies this problem's generated programs (and cached values); worked out once."""
         if self._ident is None:
-            self._ident = _Programs.ident(p, self._args)
-        return _Programs.evaluator(self._ident, self._args, key, make_expr)(*values)
+            self._ident = _Programs.ident(self.problem, self._args)
+        return self._ident
 
     def _check_field(self, name, table="fields", what="field"):
         known = self.problem.names(table)   # names only: the expressions are built when code is generated
@@ -234,9 +238,7 @@ class Manufactured:
         key = (name, None if t is None else float(t))
         if key not in self._quantities:
             # one derivation-cache entry per problem holds every value worked out for it
-            if self._ident is None:
-                self._ident = _Programs.ident(p, self._args)
-            disk = _diskcache.make_key(*self._ident)
+            disk = _diskcache.make_key(*self._programs_ident())
             stored = _diskcache.load("quantities", disk)
             stored = stored if isinstance(stored, dict) else {}
             value = stored.get(key)

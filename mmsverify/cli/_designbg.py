@@ -31,8 +31,8 @@ def _orders(args):
     return {"time_order": order} if getattr(args, "mode", None) == "time" else {"formal_order": order}
 
 
-def _show(warnings, stream):
-    for w in warnings:
+def _show(lines, stream):
+    for w in lines:
         print(f"warning: {w}", file=stream)
     stream.flush()
 
@@ -86,7 +86,6 @@ def _child(problem, kw, fd):
     except OSError:
         pass
     try:
-        import warnings
         warnings.simplefilter("ignore")
         from .._designcache import cached_design_warnings
         result = ("ok", cached_design_warnings(problem, **kw))
