@@ -170,6 +170,14 @@ class Manufactured:
         t0 = self.problem.t_range[0] if self.problem.t is not None else None
         return self.exact(name, *coords, t=t0)
 
+    def gradient(self, name, *coords, t=None, axis=None):
+        """Exact gradient of a field: a tuple of one array per dimension, or the ``axis`` component."""
+        self._check_field(name)
+        if axis is None:
+            return tuple(self.gradient(name, *coords, t=t, axis=a) for a in range(self.problem.dim))
+        code = lambda: self.problem.code_table("fields")[name].diff(self.problem.code_symbols()[0][axis])  # noqa: E731
+        return self._eval(f"grad_{name}_{axis}", code, coords, t)
+
     def boundary(self, name, side):
         """Kind of boundary data, ``"dirichlet"`` or ``"neumann"``."""
         self._check_field(name)

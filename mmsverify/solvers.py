@@ -59,6 +59,10 @@ class Solution:
     quantities : dict of str to float
         Functionals the solver computed (boundary fluxes, integrals, point
         values), compared with the problem's ``[quantities]``.
+    gradients : dict of str to tuple of ndarray
+        The gradient of some fields, one array per space dimension on the
+        values' points; measured in the H1 seminorm, the H1 norm and the
+        energy norm (see :mod:`mmsverify.gradnorms`).
     """
 
     values: dict
@@ -67,6 +71,7 @@ class Solution:
     time: float = None
     info: dict = field(default_factory=dict)
     quantities: dict = field(default_factory=dict)
+    gradients: dict = field(default_factory=dict)
 
 
 # Bundled solvers: name -> "module:attribute". Names, not objects, so that

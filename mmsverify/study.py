@@ -23,6 +23,7 @@ import numpy as np
 from . import _diskcache
 from .derive import derive
 from .errors import AnalysisError, GridError, MMSError, SolverError
+from .gradnorms import GRADIENT_NORMS, check_gradients, gradient_errors, norm_orders
 from .grids import Grid, check_refinement, refinement
 from .norms import NORMS, _magnitude_norms
 from .order import observed_orders
@@ -279,15 +280,23 @@ def _order_conflicts(problem, solver, mode, *, caller, planned, base_steps):
     return tuple(conflicts)
 
 
-def _verdicts(problem, results, formal, tol, judged):
+def _verdicts(problem, results, formal, tol, judged, orders=None):
     """One verdict per field and judged norm (``judged``: field -> norms, as :func:`judged_norms` gives),
-    then one per reported quantity."""
+    then one per reported quantity.
+
+    ``orders`` maps ``(field, norm)`` to a formal order of its own (see
+    :func:`mmsverify.gradnorms.norm_orders`); other pairs are judged at
+    ``formal``. A gradient norm is judged only where it has an order there
+    and every successful level measured it.
+    """
+    orders = orders or {}
     verdicts = []
     for f in problem.field_names:
         ok = [r for r in results if r.ok and f in r.errors]
-        for n in judged.get(f, NORMS) if ok else ():
-            verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], formal, tol,
-                                  scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
+        extra = tuple(n for n in GRADIENT_NORMS if (f, n) in orders and ok and all(n in r.errors[f] for r in ok))
+        for n in (judged.get(f, NORMS) + extra) if ok else ():
+            verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], orders.get((f, n), formal),
+                                  tol, scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
     for q in problem.names("quantities"):
         ok = [r for r in results if r.ok and q in r.quantities]
         if ok:
@@ -482,6 +491,9 @@ def _run_level(solver, case, where):
                 np.may_share_memory(exact, a) for a in (v, *points))
             magnitude = np.subtract(v, exact, out=exact if own else None)
             errors[name] = _magnitude_norms(np.abs(magnitude, out=magnitude), weights)
+        gradients = check_gradients(getattr(sol, "gradients", None), problem, values, points[0].shape, where)
+        for name, g in gradients.items():
+            errors[name].update(gradient_errors(mms, name, g, points, weights, errors[name]["L2"], t=t))
         quantities = {}
         for name, q in sol.quantities.items():
             exact = mms.exact_quantity(name, t=t)
@@ -595,13 +607,15 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
         raise AnalysisError(f"the formal order and the tolerance must be positive, got {formal:g} and {tol:g}")
     name = solver_name(solver)
     judged, norms_source = judged_norms(problem, stating, norms, who=solver_name(stating))
+    # per-norm orders are read before the first solve, so a bad statement costs no run
+    per_norm = {} if formal_order is not None else norm_orders(stating, problem, solver_name(stating))
     opts = dict(options or {}, mode=mode)
     cases = [Case(g, mms, opts) for g in grids]
     wheres = [_level_where(problem.name, name, c.grid) for c in cases]
     from .runner import run_levels
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)
-    verdicts = _verdicts(problem, results, formal, tol, judged)
+    verdicts = _verdicts(problem, results, formal, tol, judged, per_norm)
     conflicts = _order_conflicts(problem, stating, mode, caller=formal_order is not None, planned=planned,
                                  base_steps=base_steps)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),

@@ -4,6 +4,7 @@ import textwrap
 
 import numpy as np
 
+from ..gradnorms import GRADIENT_NORMS
 from ..norms import NORMS
 from ._common import notes, outcome
 
@@ -60,17 +61,19 @@ def format_study(result, caution=True):
     for f in result.fields:
         head = f"  field {f}"
         lines.append(head)
-        lines.append((f"  level  {'grid':<{gw}} {size:<10} " +
-                      "".join(f"{n + ' error':<13}{'order':<8}" for n in NORMS)).rstrip())
         ok = [lv for lv in result.levels if lv.ok and f in lv.errors]
-        orders = {n: result.orders(f, n) for n in NORMS}
+        # gradient norms get columns when every successful level measured them
+        shown = NORMS + tuple(n for n in GRADIENT_NORMS if ok and all(n in lv.errors[f] for lv in ok))
+        lines.append((f"  level  {'grid':<{gw}} {size:<10} " +
+                      "".join(f"{n + ' error':<13}{'order':<8}" for n in shown)).rstrip())
+        orders = {n: result.orders(f, n) for n in shown}
         for lv in result.levels:
             row = f"  {lv.level:<6} {lv.grid.describe():<{gw}} {lv.h:<10.6g} "
             if not lv.ok:
                 row += "failed: " + lv.message.splitlines()[0]
             elif f in lv.errors:
                 i = ok.index(lv)
-                for n in NORMS:
+                for n in shown:
                     p = orders[n][i - 1] if i > 0 else None
                     row += f"{_num(lv.errors[f][n]):<13}{_num(p, '{:.2f}'):<8}"
             lines.append(row.rstrip())
