@@ -47,6 +47,7 @@ is ever executed. The format, with every table but ``[fields]`` optional::
     [study]                             # defaults for `mmsverify run`
     levels = 4
     base_cells = 8                      # or one count per direction, [8, 16]
+    # cells = [6, 10, 17, 29]           # or a list of resolutions, one level each (any ratios)
     ratio = 2
     base_steps = 8                      # time steps of the coarsest level
 
@@ -92,7 +93,8 @@ MAX_LOAD_SECONDS = 10.0
 MAX_EQUATION_NODES = 100_000
 #: Largest formal order accepted in [order].
 MAX_ORDER = 20
-_STUDY_KEYS = {"levels": (2, 30), "base_cells": (1, 10**9), "ratio": None, "base_steps": (1, 10**9)}
+_STUDY_KEYS = {"levels": (2, 30), "base_cells": (1, 10**9), "ratio": None, "base_steps": (1, 10**9),
+               "cells": (1, 10**9)}
 _TOP_KEYS = {"name", "description", "domain", "constants", "fields", "operator", "boundaries", "order", "study",
              "quantities", "bounds"}
 
@@ -592,7 +594,10 @@ class _Reader:
                     self.fail("study", key, f"the refinement ratio must exceed 1 (and be at most 16), got {value}")
                 continue
             lo, hi = _STUDY_KEYS[key]
-            items = value if key == "base_cells" and isinstance(value, list) else [value]
+            items = value if key in ("base_cells", "cells") and isinstance(value, list) else [value]
+            if key == "cells" and not (isinstance(value, list) and len(value) >= 2):
+                self.fail("study", key, f"give a list of at least 2 resolutions, coarse to fine, e.g. [6, 10, 17, 29]; "
+                                        f"got {value!r:.60}")
             if key == "base_cells" and isinstance(value, list) and len(value) != dim:
                 self.fail("study", key, f"give one number of cells or {dim} (one per direction), got {value!r:.60}")
             for v in items:

@@ -63,6 +63,13 @@ class Solution:
         The gradient of some fields, one array per space dimension on the
         values' points; measured in the H1 seminorm, the H1 norm and the
         energy norm (see :mod:`mmsverify.gradnorms`).
+    h : float or None
+        The grid size the solver measured on the mesh it ran (a mesh it
+        chose itself); replaces the planned grid's h in the orders. The
+        older spelling ``info["h"]`` is read alike.
+    unknowns : int or None
+        The number of unknowns (degrees of freedom) of the level, shown in
+        the table beside the grid.
     """
 
     values: dict
@@ -72,6 +79,8 @@ class Solution:
     info: dict = field(default_factory=dict)
     quantities: dict = field(default_factory=dict)
     gradients: dict = field(default_factory=dict)
+    h: float = None
+    unknowns: int = None
 
 
 # Bundled solvers: name -> "module:attribute". Names, not objects, so that

@@ -28,6 +28,7 @@ from .grids import Grid, check_refinement, refinement
 from .norms import NORMS, _magnitude_norms
 from .order import observed_orders
 from .problem import get_problem
+from .resolutions import level_info, planned_list
 from .solvers import Case, check_solution, resolve_solver, solver_name
 from .verdict import judge
 
@@ -397,7 +398,7 @@ def design_orders(problem, solver):
 
 
 def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combined", base_steps=None,
-               orders=None):
+               orders=None, cells=None):
     """The grids of a study, from arguments or the problem's ``[study]`` defaults.
 
     For transient problems, ``mode`` chooses how time is refined:
@@ -412,6 +413,11 @@ def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combi
     problem = get_problem(problem)
     p_space, p_time = orders if orders is not None else (problem.space_order, problem.time_order)
     s = problem.study
+    if cells is not None or ("cells" in s and levels is None and base_cells is None and ratio is None):
+        if cells is not None and (levels, base_cells, ratio) != (None, None, None):
+            raise GridError("give either a list of resolutions (cells) or levels, base cells and ratio, not both")
+        return planned_list(problem, s["cells"] if cells is None else cells, mode, base_steps,
+                            (p_space, p_time))
     frozen_default = {"time": base_cells is None, "space": base_steps is None}.get(mode, False)
     levels = s.get("levels", 4) if levels is None else levels
     base_cells = s.get("base_cells", 8) if base_cells is None else base_cells
@@ -499,7 +505,7 @@ def _run_level(solver, case, where):
             exact = mms.exact_quantity(name, t=t)
             quantities[name] = {"value": float(q), "exact": exact, "error": abs(float(q) - exact)}
         return LevelResult(grid.level, grid, h, "ok", errors, seconds, int(values[next(iter(values))].size), scale,
-                           quantities=quantities, info=dict(sol.info) if isinstance(sol.info, dict) else {})
+                           quantities=quantities, info=level_info(sol, where))
     except SolverError as exc:
         text, own = str(exc), getattr(exc, "location", "")
         if own and text.startswith(own + ", "):  # the solver named problem and level itself: say it once
@@ -515,7 +521,7 @@ def _run_level(solver, case, where):
 
 def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode="combined", base_steps=None,
               grids=None, tolerance=None, formal_order=None, executor=None, options=None,
-              progress=None, workers=None, timeout=None, cache_dir=None, resume=True, norms=None):
+              progress=None, workers=None, timeout=None, cache_dir=None, resume=True, norms=None, cells=None):
     """Run a manufactured-solution study and judge the observed orders.
 
     Parameters
@@ -524,6 +530,10 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     solver : callable, ``"module:function"`` or bundled name
     levels, base_cells, ratio : optional
         Refinement plan (defaults from the problem's ``[study]`` table, else 4, 8, 2).
+    cells : sequence of int, optional
+        A list of resolutions instead (cells per direction, one level each,
+        any ratios between them; ``cells`` in ``[study]`` is the default
+        when no plan is given). See :mod:`mmsverify.resolutions`.
     mode : {"combined", "space", "time"}
         How transient problems refine time (see :func:`plan_grids`).
     grids : sequence of Grid, optional
@@ -588,7 +598,7 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     planned = grids is None
     if grids is None:
         grids = plan_grids(problem, levels, base_cells, ratio, mode=mode, base_steps=base_steps,
-                           orders=(p_space, p_time))
+                           orders=(p_space, p_time), cells=cells)
     else:
         grids = list(grids)
         check_refinement(grids)

@@ -5,7 +5,8 @@ import shlex
 import sys
 from pathlib import Path
 
-from ..errors import SolverError
+from ..errors import GridError, SolverError
+from ..resolutions import parse_cells
 from ..external import OUTPUT_FORMATS, ExternalSolver
 from ..solvers import resolve_solver
 from ..study import MODES, run_study
@@ -16,6 +17,8 @@ def add_study_options(p):
     p.add_argument("--levels", type=int, help="number of grid levels (default: problem's [study], else 4)")
     p.add_argument("--base-cells", type=int, help="cells per direction on the coarsest level (default 8)")
     p.add_argument("--ratio", type=float, help="refinement ratio (default 2)")
+    p.add_argument("--cells", metavar="LIST",
+                   help="a list of resolutions instead, cells per direction, one level each: 6,10,17,29")
     p.add_argument("--mode", choices=MODES, default="combined",
                    help="transient problems: refine space and time together, space only, or time only")
     p.add_argument("--base-steps", type=int, help="time steps on the coarsest level (transient problems)")
@@ -129,6 +132,15 @@ def settle(args):
     gc.freeze()
 
 
+def _cell_list(text):
+    """``--cells 6,10,17,29`` as a list of whole numbers (at least two)."""
+    cells = parse_cells(text, "--cells")
+    if not isinstance(cells, list):
+        raise GridError(f"--cells: give at least 2 resolutions, coarse to fine (e.g. 6,10,17,29), got {text!r}; "
+                        "for a single coarsest level use --base-cells")
+    return cells
+
+
 def study_from_args(args, problem, solver, progress=None):
     settle(args)
     solver = external_from_args(args) or solver
@@ -138,6 +150,8 @@ def study_from_args(args, problem, solver, progress=None):
                   cache_dir=getattr(args, "cache", None), resume=not getattr(args, "fresh", False),
                   options=dict(_param(o) for o in getattr(args, "option", [])) or None,
                   norms=_norm_list(getattr(args, "norms", None)))
+    if getattr(args, "cells", None):
+        kwargs["cells"] = _cell_list(args.cells)
     if getattr(args, "dask", None):
         client = _dask_client(args.dask, args.workers)
         try:

@@ -6,6 +6,7 @@ import numpy as np
 
 from ..gradnorms import GRADIENT_NORMS
 from ..norms import NORMS
+from ..resolutions import describe_level
 from ._common import notes, outcome
 
 __all__ = ["format_study", "CAUTION"]
@@ -50,7 +51,7 @@ def format_study(result, caution=True):
     lines.append(f"  formal order {result.formal_order:g} ({result.mode} refinement{stated}), "
                  f"tolerance {result.tolerance:g}")
     size = "dt" if result.mode == "time" else "h"
-    gw = max([23] + [len(lv.grid.describe()) for lv in result.levels])
+    gw = max([23] + [len(describe_level(lv)) for lv in result.levels])
     width = max([12] + [len(f"{v.field} {v.norm}") for v in result.verdicts])
     for v in result.verdicts:
         mark = "ok " if v.ok else "!! "
@@ -68,7 +69,7 @@ def format_study(result, caution=True):
                       "".join(f"{n + ' error':<13}{'order':<8}" for n in shown)).rstrip())
         orders = {n: result.orders(f, n) for n in shown}
         for lv in result.levels:
-            row = f"  {lv.level:<6} {lv.grid.describe():<{gw}} {lv.h:<10.6g} "
+            row = f"  {lv.level:<6} {describe_level(lv):<{gw}} {lv.h:<10.6g} "
             if not lv.ok:
                 row += "failed: " + lv.message.splitlines()[0]
             elif f in lv.errors:
