@@ -108,6 +108,11 @@ BUNDLED_SOLVERS = MappingProxyType({
     "ns-staggered": "solvers_demo.bundled:ns_staggered",
     "ns-staggered-u": "solvers_demo.bundled:ns_staggered_u",
     "ns-staggered-v": "solvers_demo.bundled:ns_staggered_v",
+    # finite elements with scikit-fem (pip install scikit-fem)
+    "fem-p1": "solvers_demo.fem.poisson:p1",
+    "fem-p2": "solvers_demo.fem.poisson:p2",
+    "fem-p1-perturbed": "solvers_demo.fem.poisson:p1_perturbed",
+    "fem-p2-perturbed": "solvers_demo.fem.poisson:p2_perturbed",
 })
 
 

@@ -218,7 +218,7 @@ def test_bundled_demo_solvers_resolve():
     assert {"poisson2d", "poisson2d-neumann1", "fd-heat-cn", "fv-diffusion-perturbed"} <= set(demo)
     for name in demo:
         solver = resolve_solver(name)
-        assert callable(solver) and solver.formal_order in (1, 2)
+        assert callable(solver) and solver.formal_order in (1, 2, 3)   # P2 elements: 3 in L2
 
 
 # --- incompressible flow on a staggered grid ---------------------------------------------------

@@ -1,0 +1,1 @@
+"""Finite-element demo solvers on triangles, built on scikit-fem (an optional dependency)."""
