@@ -18,7 +18,7 @@ import threading
 import numpy as np
 import sympy as sp
 
-from . import _diskcache
+from . import _diskcache, boundary
 from ._evaluate import Evaluator, build_program
 from .errors import ProblemError
 from .problem import Problem, get_problem
@@ -178,6 +178,21 @@ class Manufactured:
         code = lambda: self.problem.code_table("fields")[name].diff(self.problem.code_symbols()[0][axis])  # noqa: E731
         return self._eval(f"grad_{name}_{axis}", code, coords, t)
 
+    def flux(self, name, *coords, t=None):
+        """Exact flux vector of a field (e.g. ``k grad u`` for diffusion), one array per dimension."""
+        if name not in self.problem.names("fluxes"):
+            self._normal_flux(name, "x_min", {})   # raises: no flux for this field
+        code = lambda a: lambda: self.problem.code_table("fluxes")[name][a]  # noqa: E731
+        return tuple(self._eval(f"fluxvec_{name}_{a}", code(a), coords, t) for a in range(self.problem.dim))
+
+    def normal_flux_at(self, name, points, normals, t=None):
+        """Outward normal flux at any boundary points with unit normals (see :mod:`mmsverify.boundary`)."""
+        return boundary.normal_flux_at(self, name, points, normals, t)
+
+    def robin_data(self, name, points, normals, alpha, t=None):
+        """Robin data ``F(u).n + alpha u`` at boundary points with unit normals."""
+        return boundary.robin_data(self, name, points, normals, alpha, t)
+
     def boundary(self, name, side):
         """Kind of boundary data, ``"dirichlet"`` or ``"neumann"``."""
         self._check_field(name)
@@ -299,4 +314,9 @@ def derive(problem):
     problem = get_problem(problem)
     if not isinstance(problem, Problem):
         raise ProblemError(f"expected a Problem, got {type(problem).__name__}")
-    return Manufactured(problem)
+    mms = Manufactured(problem)
+    if any(k == "periodic" for k in problem.boundaries.values()):
+        trouble = boundary.periodic_problems(mms)
+        if trouble:
+            raise ProblemError(f"{problem.source}: {trouble[0]}")
+    return mms

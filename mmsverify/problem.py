@@ -24,7 +24,7 @@ is ever executed. The format, with every table but ``[fields]`` optional::
     # [operator.equations]
     # u = "-d(k*d(u, x), x) + u**3"
 
-    [boundaries]                        # dirichlet or neumann per side
+    [boundaries]                        # dirichlet, neumann, robin or periodic per side
     default = "dirichlet"
     x_max = "neumann"                   # or per field: {u = "neumann"}
 
@@ -73,6 +73,7 @@ import tomllib
 import sympy as sp
 
 from . import _diskcache, _fast
+from .boundary import robin_coefficients
 from .errors import ProblemError, MMSError
 from .expr import _Timeout, _time_limit
 from .operators import OPERATORS, get_operator, derivative_functions
@@ -83,7 +84,7 @@ __all__ = ["Problem", "load_problem", "problem_from_text", "bundled_problems", "
 PROBLEM_DIR = Path(__file__).resolve().parent.parent / "problems"
 SPACE = ("x", "y", "z")
 SIDES = ("x_min", "x_max", "y_min", "y_max", "z_min", "z_max")
-_KINDS = ("dirichlet", "neumann")
+_KINDS = ("dirichlet", "neumann", "robin", "periodic")   # see mmsverify.boundary
 #: Longest problem file read (characters); real ones are a few thousand.
 MAX_FILE_CHARS = 1_000_000
 #: Seconds allowed for reading, parsing and deriving one file (main thread only).
@@ -125,7 +126,9 @@ class Problem:
     fluxes : dict of str to list of sympy.Expr
         Flux vector per field for Neumann data (may be empty).
     boundaries : dict of (field, side) to str
-        ``"dirichlet"`` or ``"neumann"``.
+        ``"dirichlet"``, ``"neumann"``, ``"robin"`` or ``"periodic"``.
+    robin : dict of side to float
+        The coefficient alpha of each Robin side (see :mod:`mmsverify.boundary`).
     space_order, time_order : int or None
     tolerance : float
     study : dict
@@ -171,6 +174,7 @@ class Problem:
     bounds: dict = field(default_factory=dict)
     equation_text: dict = field(default_factory=dict)
     order_given: tuple = None
+    robin: dict = field(default_factory=dict)
 
     # The tables of sympy expressions. A problem read back from the derivation
     # cache holds them pickled and builds them on first use: a study whose
@@ -345,6 +349,7 @@ class Problem:
             "boundaries": sorted(f"{f}:{s}:{k}" for (f, s), k in self.boundaries.items()),
             "quantities": {k: [q[0], srepr(q[1]), str(q[2])] for k, q in tab["quantities"].items()},
             "parameters": {k: srepr(v) for k, v in tab["parameters"].items()},
+            **({"robin": self.robin} if self.robin else {}),   # absent when unused: older hashes stay
         }, sort_keys=True)
         memo = hashlib.sha256(blob.encode()).hexdigest()
         object.__setattr__(self, "_content_hash", memo)
@@ -573,7 +578,8 @@ class _Reader:
                        t_range=box.get("t"), constants=constants, fields=fields, operator=kind,
                        parameters=parameters, equations=equations, fluxes=fluxes, boundaries=boundaries,
                        space_order=space_order, time_order=time_order, tolerance=tolerance, study=study,
-                       source=self.source, order_given=tuple(a for a in ("space", "time") if a in order))
+                       source=self.source, order_given=tuple(a for a in ("space", "time") if a in order),
+                       robin=self.robin)
 
     def check_size(self, section, key, expr, what):
         """Refuse a derived expression whose tree has more than MAX_EQUATION_NODES nodes."""
@@ -671,6 +677,7 @@ class _Reader:
     def _boundaries(self, fields, axes):
         tab = dict(self.table("boundaries"))
         default = tab.pop("default", "dirichlet")
+        robin = tab.pop("robin", None)
         sides = [s for s in SIDES if s[0] in axes]
         out = {(f, s): default for f in fields for s in sides}
         for side, spec in tab.items():
@@ -684,6 +691,7 @@ class _Reader:
         for (f, s), k in out.items():
             if k not in _KINDS:
                 self.fail("boundaries", s if s in tab else "default", f"kind must be one of {_KINDS}, got {k!r}")
+        self.robin = robin_coefficients(out, robin, lambda key, message: self.fail("boundaries", key, message))
         return out
 
 

@@ -7,9 +7,11 @@ Two ways out of "cells per direction in a box, times a ratio":
   with any ratio between them; :func:`listed_grids` builds the grids;
 * a solver that builds its own mesh reports what it ran:
   ``Solution.h`` (its measured grid size, used for the orders) and
-  ``Solution.unknowns`` (its count of unknowns, shown in the table).
-  :func:`level_info` keeps them in the level's ``info`` as ``"h"`` and
-  ``"unknowns"`` (``info["h"]`` set by the solver itself is read alike).
+  ``Solution.unknowns`` (its count of unknowns, shown in the table) and
+  ``Solution.mesh`` (a short description shown instead of the planned
+  grid). :func:`level_info` keeps them in the level's ``info`` as ``"h"``,
+  ``"unknowns"`` and ``"mesh"`` (``info["h"]`` set by the solver itself is
+  read alike).
 """
 
 import numbers
@@ -31,13 +33,19 @@ def level_info(sol, where):
         if isinstance(n, bool) or not isinstance(n, numbers.Integral) or n < 1:
             raise SolverError(f"{where}: Solution.unknowns must be a positive whole number, got {n!r}")
         info["unknowns"] = int(n)
+    mesh = getattr(sol, "mesh", "")
+    if mesh:
+        if not isinstance(mesh, str) or len(mesh) > 60 or "\n" in mesh:
+            raise SolverError(f"{where}: Solution.mesh must be a short one-line text (at most 60 characters)")
+        info["mesh"] = mesh
     return info
 
 
 def describe_level(level):
     """The grid column of a level: the grid, and the unknowns when the solver reported them."""
-    text = level.grid.describe()
-    n = level.info.get("unknowns") if isinstance(level.info, dict) else None
+    info = level.info if isinstance(level.info, dict) else {}
+    text = info.get("mesh") or level.grid.describe()
+    n = info.get("unknowns")
     return f"{text}, {n} unknowns" if n else text
 
 

@@ -70,6 +70,10 @@ class Solution:
     unknowns : int or None
         The number of unknowns (degrees of freedom) of the level, shown in
         the table beside the grid.
+    mesh : str
+        A short description of a mesh the solver chose itself (e.g.
+        ``"disc, 512 triangles"``); shown in the table instead of the
+        planned grid.
     """
 
     values: dict
@@ -81,6 +85,7 @@ class Solution:
     gradients: dict = field(default_factory=dict)
     h: float = None
     unknowns: int = None
+    mesh: str = ""
 
 
 # Bundled solvers: name -> "module:attribute". Names, not objects, so that

@@ -60,6 +60,8 @@ class DemoSolver:
     MISTAKES: ClassVar[dict] = {}
     CHOICES: ClassVar[dict] = {}
     judged_norms: ClassVar[dict] = {}
+    #: Boundary kinds the scheme implements; a problem with another kind is refused, not solved as Dirichlet.
+    boundary_kinds: ClassVar[tuple] = ("dirichlet", "neumann")
 
     mistake: str = ""
 
@@ -104,6 +106,10 @@ class DemoSolver:
         if case.grid.dim not in solver.dims:
             raise SolverError(f"{owner} works in {', '.join(map(str, solver.dims))} dimension(s); problem "
                               f"{problem.name} is {case.grid.dim}-D")
+        other = sorted({k for k in problem.boundaries.values() if k not in solver.boundary_kinds})
+        if other:
+            raise SolverError(f"{owner} implements {', '.join(solver.boundary_kinds)} boundaries; problem "
+                              f"{problem.name} has {', '.join(other)}; pick a solver that implements them")
         if problem.transient and not solver.unsteady:
             raise SolverError(f"{owner} is a steady solver; problem {problem.name} is transient")
         if not problem.transient and not solver.steady:

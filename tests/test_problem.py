@@ -56,7 +56,7 @@ def test_malformed_toml_names_the_file():
 
 
 def test_bad_boundary_kind_and_side():
-    assert "kind must be one of" in _err(BASE + '[boundaries]\nx_min = "robin"\n')
+    assert "kind must be one of" in _err(BASE + '[boundaries]\nx_min = "convective"\n')
     assert "unknown side" in _err(BASE + '[boundaries]\nz_max = "neumann"\n')
 
 
