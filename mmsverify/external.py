@@ -48,6 +48,7 @@ import zipfile
 import numpy as np
 
 from .errors import SolverError
+from .meshfiles import MESH_FORMATS, read_mesh_columns
 from .problem import SIDES
 from .solvers import Solution
 
@@ -57,7 +58,7 @@ __all__ = ["ExternalSolver", "ProgramFailed", "write_case", "read_case", "read_s
 #: Placeholders a command template may use.
 PLACEHOLDERS = ("case", "out", "dir", "level", "problem", "hash")
 #: Solution file formats the reader understands.
-OUTPUT_FORMATS = ("csv", "npz", "npy")
+OUTPUT_FORMATS = ("csv", "npz", "npy") + MESH_FORMATS
 #: Version number written into every case file.
 CASE_FORMAT_VERSION = 1
 _KEY = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
@@ -395,6 +396,13 @@ def _read_npy(path):
     return {n: arr[n] for n in arr.dtype.names}
 
 
+def _read_mesh(path, problem):
+    try:
+        return read_mesh_columns(path, [str(c) for c in problem.coords], problem.field_names)
+    except ValueError as exc:
+        raise ProgramFailed("bad output", str(exc)) from None
+
+
 def read_solution(path, problem, fmt=None, *, max_bytes=1 << 30):
     """Read a solution a program wrote.
 
@@ -403,7 +411,9 @@ def read_solution(path, problem, fmt=None, *, max_bytes=1 << 30):
     hold ``points`` of shape (N, d)), optionally ``volume`` (the cell volume
     each point stands for), one or more of the problem's fields, and in an
     ``.npz`` optionally a scalar ``time``. Arrays of any shape are flattened;
-    other columns are ignored.
+    other columns are ignored. A ``.vtu`` mesh file gives the fields as
+    point or cell data, and the points and volumes from its mesh (see
+    :mod:`mmsverify.meshfiles`).
 
     Returns
     -------
@@ -418,7 +428,10 @@ def read_solution(path, problem, fmt=None, *, max_bytes=1 << 30):
         raise SolverError(f"unknown solution format {fmt!r}; use one of {', '.join(OUTPUT_FORMATS)}")
     _too_big(path.stat().st_size, max_bytes, path)
     try:
-        cols = {"csv": _read_csv, "npy": _read_npy}[fmt](path) if fmt != "npz" else _read_npz(path, max_bytes)
+        if fmt in MESH_FORMATS:
+            cols = _read_mesh(path, problem)
+        else:
+            cols = {"csv": _read_csv, "npy": _read_npy}[fmt](path) if fmt != "npz" else _read_npz(path, max_bytes)
     except UnicodeDecodeError:
         raise ProgramFailed("bad output", f"{path} is not UTF-8 text; write CSV as plain text") from None
     coords = [str(c) for c in problem.coords]
