@@ -27,7 +27,25 @@ import numpy as np
 from .errors import SolverError
 from .norms import NORMS
 
-__all__ = ["GRADIENT_NORMS", "ALL_NORMS", "check_gradients", "gradient_errors", "norm_orders"]
+_FIX = "e.g. {L2 = 3, H1semi = 2}; norms are " + ", ".join(NORMS + ("H1semi", "H1", "energy"))
+
+
+def order_per_norm(table, fail):
+    """``[order] norms`` of a problem file as norm -> order; ``fail(message)`` raises the file's error."""
+    if table is None:
+        return {}
+    if not isinstance(table, dict):
+        fail(f"expected a table of norm = order, {_FIX}")
+    out = {}
+    for n, p in table.items():
+        if n not in NORMS + ("H1semi", "H1", "energy"):
+            fail(f"unknown norm {n!r}; {_FIX}")
+        if isinstance(p, bool) or not isinstance(p, (int, float)) or not 0 < p <= 20:
+            fail(f"the order of {n} must be a positive number, got {p!r:.40}")
+        out[n] = float(p)
+    return out
+
+__all__ = ["GRADIENT_NORMS", "ALL_NORMS", "check_gradients", "gradient_errors", "norm_orders", "order_per_norm"]
 
 #: Norms measured when a solver returns gradients.
 GRADIENT_NORMS = ("H1semi", "H1", "energy")
@@ -97,9 +115,11 @@ def _weighted_sum(*arrays):
 
 
 def norm_orders(solver, problem, who):
-    """``(field, norm) -> formal order`` from a solver's ``norm_orders`` attribute; empty when it states none.
+    """``(field, norm) -> formal order`` from a solver's ``norm_orders`` attribute, else the problem's.
 
-    Accepted forms: ``{"L2": 3, "H1semi": 2}`` (every field) or
+    A solver that states ``norm_orders`` is judged by its statement (as
+    with ``formal_order``); otherwise ``[order] norms`` of the problem
+    file applies to every field. Accepted forms of the attribute: ``{"L2": 3, "H1semi": 2}`` (every field) or
     ``{"u": {"L2": 3, "H1semi": 2}}`` (per field).
 
     >>> class P1:
@@ -112,9 +132,10 @@ def norm_orders(solver, problem, who):
     try:
         stated = getattr(solver, "norm_orders", None)
     except Exception:       # a property that cannot answer for this solver
-        return {}
+        stated = None
     if stated is None:
-        return {}
+        filed = getattr(problem, "norm_orders", None) or {}
+        return {(f, n): p for f in problem.field_names for n, p in filed.items()}
     fix = ("state norm_orders as a dict of norm to order, e.g. {'L2': 3, 'H1semi': 2}, or of field to such "
            f"a dict; norms are {', '.join(ALL_NORMS)}")
     if not isinstance(stated, dict):

@@ -30,6 +30,7 @@ is ever executed. The format, with every table but ``[fields]`` optional::
 
     [order]
     space = 2                           # formal order the scheme is built for
+    # norms = {L2 = 3, H1semi = 2}      # orders of single norms (gradient norms: mmsverify.gradnorms)
     time = 1                            # for transient problems
     tolerance = 0.1                     # allowed |observed - formal|
 
@@ -74,6 +75,7 @@ import sympy as sp
 
 from . import _diskcache, _fast
 from .boundary import robin_coefficients
+from .gradnorms import order_per_norm
 from .errors import ProblemError, MMSError
 from .expr import _Timeout, _time_limit
 from .operators import OPERATORS, get_operator, derivative_functions
@@ -129,6 +131,9 @@ class Problem:
         ``"dirichlet"``, ``"neumann"``, ``"robin"`` or ``"periodic"``.
     robin : dict of side to float
         The coefficient alpha of each Robin side (see :mod:`mmsverify.boundary`).
+    norm_orders : dict of str to float
+        Formal orders of single norms from ``[order] norms`` (see
+        :mod:`mmsverify.gradnorms`), e.g. ``{"L2": 3, "H1semi": 2}``.
     space_order, time_order : int or None
     tolerance : float
     study : dict
@@ -175,6 +180,7 @@ class Problem:
     equation_text: dict = field(default_factory=dict)
     order_given: tuple = None
     robin: dict = field(default_factory=dict)
+    norm_orders: dict = field(default_factory=dict)
 
     # The tables of sympy expressions. A problem read back from the derivation
     # cache holds them pickled and builds them on first use: a study whose
@@ -301,7 +307,8 @@ class Problem:
         return self.with_changes(name=name, source=source)
 
     #: Fields :meth:`with_changes` may change: none of them enters the content hash or a derived table.
-    _PLAIN = ("name", "description", "source", "space_order", "time_order", "tolerance", "study", "order_given")
+    _PLAIN = ("name", "description", "source", "space_order", "time_order", "tolerance", "study", "order_given",
+              "norm_orders")
 
     def with_changes(self, **changes):
         """A copy with some plain fields changed (orders, tolerance, study defaults, name, source).
@@ -558,7 +565,8 @@ class _Reader:
         self.stage = None
         boundaries = self._boundaries(fields, axes)
         order = self.table("order")
-        self.known_keys("order", order, ("space", "time", "tolerance"))
+        self.known_keys("order", order, ("space", "time", "tolerance", "norms"))
+        norm_orders = order_per_norm(order.get("norms"), lambda message: self.fail("order", "norms", message))
         space_order = self.number("order", "space", order.get("space", 2), int)
         time_order = self.number("order", "time", order["time"], int) if "time" in order else (1 if t is not None else None)
         tolerance = self.number("order", "tolerance", order.get("tolerance", 0.1))
@@ -579,7 +587,7 @@ class _Reader:
                        parameters=parameters, equations=equations, fluxes=fluxes, boundaries=boundaries,
                        space_order=space_order, time_order=time_order, tolerance=tolerance, study=study,
                        source=self.source, order_given=tuple(a for a in ("space", "time") if a in order),
-                       robin=self.robin)
+                       robin=self.robin, norm_orders=norm_orders)
 
     def check_size(self, section, key, expr, what):
         """Refuse a derived expression whose tree has more than MAX_EQUATION_NODES nodes."""

@@ -87,3 +87,18 @@ def test_gradients_of_the_wrong_shape_fail_the_level():
     r = run_study(problem_from_text(TEXT), Short(), levels=2, base_cells=4)
     assert all(not lv.ok for lv in r.levels)
     assert "must hold 2 arrays" in r.levels[0].message
+
+
+def test_orders_per_norm_in_the_problem_file():
+    text = TEXT + '[order]\nspace = 2\nnorms = {L2 = 2, H1semi = 1}\n'
+    p = problem_from_text(text)
+    assert p.norm_orders == {"L2": 2.0, "H1semi": 1.0}
+
+    class Plain(_Sampled):
+        norm_orders = None
+
+    r = run_study(p, Plain(), levels=3, base_cells=4)
+    assert {(v.norm, v.formal) for v in r.verdicts} >= {("L2", 2), ("H1semi", 1)} and r.passed, str(r)
+    from mmsverify import ProblemError
+    with pytest.raises(ProblemError, match="unknown norm 'H2'"):
+        problem_from_text(TEXT + '[order]\nnorms = {H2 = 1}\n')
