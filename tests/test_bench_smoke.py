@@ -50,3 +50,9 @@ def _parallel_output(tmp_path):
     if "out" not in _CACHE:  # one run serves the three checks
         _CACHE["out"] = _run("parallel_batch.py", tmp_path)
     return _CACHE["out"]
+
+
+def test_scattered_points_compare_derived_and_hand_written(tmp_path):
+    out = _run("scattered.py", tmp_path)
+    for quantity in ("source", "exact", "gradient"):
+        assert f"| {quantity} | mmsverify |" in out and f"| {quantity} | hand-written NumPy |" in out
