@@ -1,4 +1,4 @@
-"""Ready-made instances of the demo solvers, named in ``mmsverify.solvers.BUNDLED_SOLVERS``.
+"""Ready-made instances of the demo solvers, named in ``mmsverify.execute.solvers.BUNDLED_SOLVERS``.
 
 ``mmsverify run PROBLEM NAME`` judges against the problem's formal order;
 for a first-order scheme add ``--formal-order 1`` (the instance states its

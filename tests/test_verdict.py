@@ -1,6 +1,6 @@
 """Verdicts: statements a reader can check by hand, and floors named as floors."""
 
-from mmsverify.verdict import judge
+from mmsverify.analysis.verdict import judge
 
 H = [0.1, 0.05, 0.025, 0.0125, 0.00625]
 

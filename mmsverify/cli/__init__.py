@@ -20,7 +20,7 @@ import gc
 import importlib
 import sys
 
-from ..errors import MMSError
+from mmsverify.errors import MMSError
 
 __all__ = ["main", "console", "EXIT_OK", "EXIT_FAIL", "EXIT_INPUT", "EXIT_INCONCLUSIVE"]
 
@@ -79,7 +79,7 @@ def build_parser(argv=None):
     chosen = None if argv is None else _chosen_module(argv)
     for name in (chosen,) if chosen else _COMMANDS:
         importlib.import_module(f"{__name__}.{name}").register(sub)
-    from ..progress import add_verbosity_options
+    from mmsverify.cli.progress import add_verbosity_options
     add_verbosity_options(parser)
     for command in sub.choices.values():
         add_verbosity_options(command, sub=True)
@@ -107,7 +107,7 @@ def main(argv=None, *, own_process=False):
     args.own_process = own_process
     if own_process:
         gc.freeze()   # a study command freezes again once the problem and the solver's module are loaded
-    from ..progress import configure_logging, verbosity
+    from mmsverify.cli.progress import configure_logging, verbosity
     configure_logging(verbosity(args))
     try:
         return int(args.func(args) or 0)

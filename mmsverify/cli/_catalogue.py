@@ -12,7 +12,7 @@ import json
 import sys
 from pathlib import Path
 
-from . import EXIT_FAIL, EXIT_OK
+from mmsverify.cli import EXIT_FAIL, EXIT_OK
 
 
 def _write(path, text):

@@ -1,8 +1,8 @@
 """``mmsverify list``: bundled problems, solvers and operators."""
 
-from ..operators import OPERATORS
-from ..problem import PROBLEM_DIR, bundled_problems, load_problem
-from ..solvers import BUNDLED_SOLVERS
+from mmsverify.problem.operators import OPERATORS
+from mmsverify.problem.record import PROBLEM_DIR, bundled_problems, load_problem
+from mmsverify.execute.solvers import BUNDLED_SOLVERS
 
 
 def _list(args):
