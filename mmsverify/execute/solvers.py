@@ -1,4 +1,4 @@
-"""The solver interface, its checks and the registry of bundled solvers.
+"""The solver interface, its checks and the solvers registered by name.
 
 A solver is any callable ``solve(case) -> Solution``:
 
@@ -24,7 +24,7 @@ import numpy as np
 
 from mmsverify.errors import SolverError
 
-__all__ = ["Case", "Solution", "resolve_solver", "check_solution", "BUNDLED_SOLVERS", "solver_name"]
+__all__ = ["Case", "Solution", "resolve_solver", "check_solution", "registered_solvers", "SOLVER_GROUP", "solver_name"]
 
 
 @dataclass(frozen=True)
@@ -69,32 +69,24 @@ class Solution:
     quantities: dict = field(default_factory=dict)
 
 
-# Bundled solvers: name -> "module:attribute". Names, not objects, so that
-# listing them imports nothing heavy.
-BUNDLED_SOLVERS = MappingProxyType({
-    "poisson2d": "solvers_demo.fd.poisson:solve",
-    "poisson2d-neumann1": "solvers_demo.fd.poisson:solve_first_order_neumann",
-    "fd-diffusion": "solvers_demo.bundled:fd_diffusion",
-    "fd-diffusion-neumann1": "solvers_demo.bundled:fd_diffusion_neumann1",
-    "fd-diffusion-neumann3pt": "solvers_demo.bundled:fd_diffusion_neumann3pt",
-    "fd-heat-euler": "solvers_demo.bundled:fd_heat_euler",
-    "fd-heat-cn": "solvers_demo.bundled:fd_heat_cn",
-    "fd-burgers": "solvers_demo.bundled:fd_burgers",
-    "fd-advection-upwind": "solvers_demo.bundled:fd_advection_upwind",
-    "fd-advection-central": "solvers_demo.bundled:fd_advection_central",
-    "fd-advection-upwind2": "solvers_demo.bundled:fd_advection_upwind2",
-    "fv-diffusion": "solvers_demo.bundled:fv_diffusion",
-    "fv-diffusion-stretched": "solvers_demo.bundled:fv_diffusion_stretched",
-    "fv-diffusion-skewed": "solvers_demo.bundled:fv_diffusion_skewed",
-    "fv-diffusion-perturbed": "solvers_demo.bundled:fv_diffusion_perturbed",
-    "fv-two-point": "solvers_demo.bundled:fv_two_point",
-    "fv-advection-upwind": "solvers_demo.bundled:fv_advection_upwind",
-    "fv-advection-unlimited": "solvers_demo.bundled:fv_advection_unlimited",
-    "fv-advection-limited": "solvers_demo.bundled:fv_advection_limited",
-    "ns-staggered": "solvers_demo.bundled:ns_staggered",
-    "ns-staggered-u": "solvers_demo.bundled:ns_staggered_u",
-    "ns-staggered-v": "solvers_demo.bundled:ns_staggered_v",
-})
+#: Entry-point group in which packages register solvers by name ("module:attribute").
+SOLVER_GROUP = "mmsverify.solvers"
+
+
+def registered_solvers():
+    """Solver names registered by installed packages: name -> ``"module:attribute"``.
+
+    A package registers its solvers in the entry-point group
+    :data:`SOLVER_GROUP`, the way pytest finds plugins; the demo solvers
+    are registered so by ``solvers_demo``. Nothing is imported until a
+    solver is resolved. When two packages register one name, the first
+    found wins.
+    """
+    from importlib.metadata import entry_points
+    found = {}
+    for ep in entry_points(group=SOLVER_GROUP):
+        found.setdefault(ep.name, ep.value)
+    return MappingProxyType(found)
 
 
 def _import_from_here(module):
@@ -117,10 +109,11 @@ def resolve_solver(spec):
         return spec
     if not isinstance(spec, str):
         raise SolverError(f"a solver is a callable, 'module:function' or a bundled name; got {spec!r}")
-    target = BUNDLED_SOLVERS.get(spec, spec)
+    registered = registered_solvers() if ":" not in spec else {}
+    target = registered.get(spec, spec)
     if ":" not in target:
-        raise SolverError(f"unknown solver {spec!r}; give 'module:function' or one of: "
-                          f"{', '.join(BUNDLED_SOLVERS)}")
+        raise SolverError(f"unknown solver {spec!r}; give 'module:function' or one of the registered names: "
+                          f"{', '.join(registered) or '(none installed)'}")
     module, _, attr = target.partition(":")
     try:
         mod = _import_from_here(module)

@@ -1,5 +1,8 @@
 """``mmsverify mistakes``: run the seeded-mistake catalogue and report what the order test detects.
 
+The demo package contributes this command to the ``mmsverify`` program through the entry-point
+group ``mmsverify.commands`` (see pyproject.toml).
+
 Every entry of :mod:`solvers_demo.catalogue` (a demo solver with one seeded
 mistake, a correct solver, or a scheme with a known order loss) is run as a
 manufactured-solution study; the table says per entry the expected effect,
