@@ -186,7 +186,7 @@ for line in open(case_path, encoding="utf-8"):
         key, value = line.split("=", 1)
         case[key.strip()] = value.strip().strip('"')
 out = case["output"]
-n = 5
+n = int(case["cells"].strip("[]").split(",")[0]) + 1  # the nodes of the level's grid
 g = np.linspace(0.0, 1.0, n)
 X, Y = np.meshgrid(g, g, indexing="ij")
 x, y = X.ravel(), Y.ravel()
@@ -421,7 +421,7 @@ def test_output_file_modes_are_not_trusted(tmp_path):
     prog.write_text(textwrap.dedent(f"""
         import os, sys
         out = [l.split("=", 1)[1].strip().strip('"') for l in open(sys.argv[1]) if l.startswith("output")][0]
-        open(out, "w").write("x,y,u\\n0,0,1\\n")
+        open(out, "w").write("x,y,u\\n0,0,1\\n1,1,1\\n")
         os.chmod(out, {stat.S_IWUSR})
     """))
     solver = ExternalSolver([PY, str(prog), "{case}"], workdir=str(tmp_path / "s"))

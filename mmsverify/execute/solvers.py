@@ -171,8 +171,13 @@ def _real_array(v, where, what):
     return a.astype(float, copy=False)
 
 
-def check_solution(sol, problem, where):
+def check_solution(sol, problem, where, grid=None):
     """Validate a solver's return value; raise :class:`SolverError` saying what is wrong.
+
+    Besides the form (fields, shapes, finite numbers), the content must be
+    plausible for the problem: points inside the domain, weights that add
+    up to the domain's measure, a time inside the time interval, and more
+    than one point when the level's ``grid`` has more than one cell.
 
     Returns the values and weights as float arrays of one common shape and the
     points broadcast to it (weights and points as read-only broadcast views).
@@ -219,6 +224,10 @@ def check_solution(sol, problem, where):
         points = tuple(pts[:-1])
         values[name] = arr
     shape = points[0].shape
+    _check_inside(raw_points, problem, where)
+    if grid is not None and int(np.prod(shape)) == 1 and grid.n_cells > 1:
+        raise SolverError(f"{where}: the solver returned a single point for a grid of {grid.n_cells} cells; "
+                          "return the solution at every node or cell of the level")
     if sol.weights is None:
         weights = np.broadcast_to(1.0, shape)
     else:
@@ -232,6 +241,8 @@ def check_solution(sol, problem, where):
         total = _finite_sum(raw)
         if total is None or raw.min() < 0 or not total > 0:
             raise SolverError(f"{where}: weights (cell volumes) must be finite, non-negative and not all zero")
+        _check_measure(float(total) * (weights.size / raw.size), problem, where)
+    _check_time(sol.time, problem, where)
     if not isinstance(sol.quantities, dict):
         raise SolverError(f"{where}: Solution.quantities must be a dict of name to number")
     declared = problem.names("quantities")
@@ -243,3 +254,49 @@ def check_solution(sol, problem, where):
         if isinstance(q, bool) or not isinstance(q, (int, float, np.floating, np.integer)) or not np.isfinite(q):
             raise SolverError(f"{where}: quantity {name!r} must be a finite number, got {q!r}")
     return values, points, weights
+
+
+#: Points may lie this far outside the domain (relative to its extent per direction): rounding of a mesh
+#: generator, never a ghost layer (half a cell of a 1000-cell grid is 5e-4).
+INSIDE_TOLERANCE = 1e-6
+#: The weights may add up to the domain's measure times a factor within [1/2, 2]: a solver that reports
+#: interior points only (boundary values are given) leaves out a boundary layer, which is less than half
+#: the domain on any grid with at least 4 cells per direction in 2-D (3/4 squared); weights of another
+#: scale (ones, 1e308) are not volumes and would overflow or hide a wrong norm.
+MEASURE_FACTOR = 2.0
+
+
+def _check_inside(raw_points, problem, where):
+    """Refuse points outside the problem's box (beyond :data:`INSIDE_TOLERANCE` of its extent)."""
+    for axis, p, lo, hi in zip("xyz", raw_points, problem.lower, problem.upper):
+        slack = INSIDE_TOLERANCE * (hi - lo)
+        low, high = float(p.min()), float(p.max())
+        if low < lo - slack or high > hi + slack:
+            raise SolverError(f"{where}: points reach {axis} = {low if low < lo - slack else high:.6g}, outside "
+                              f"the domain {axis} = [{lo:g}, {hi:g}]; return the solution at points of the domain "
+                              "only (no ghost or halo points) in the problem's coordinates")
+
+
+def _check_measure(total, problem, where):
+    """Refuse weights whose sum is not the domain's measure within a factor :data:`MEASURE_FACTOR`."""
+    measure = float(np.prod([hi - lo for lo, hi in zip(problem.lower, problem.upper)]))
+    if not (np.isfinite(total) and measure / MEASURE_FACTOR <= total <= measure * MEASURE_FACTOR):
+        what = {1: "length", 2: "area", 3: "volume"}.get(problem.dim, "measure")
+        raise SolverError(f"{where}: the weights add up to {total:.6g}, but the domain's {what} is {measure:.6g}; "
+                          "a weight is the length, area or volume a point stands for (cell volumes, trapezoid "
+                          "weights); return those, or weights=None for equal weights")
+
+
+def _check_time(time, problem, where):
+    """Refuse a time that is not a finite number inside the problem's time interval."""
+    if time is None or not problem.transient:
+        return
+    t0, t1 = problem.t_range
+    try:
+        t = float(time)
+    except (TypeError, ValueError):
+        raise SolverError(f"{where}: Solution.time must be a number, got {time!r}") from None
+    slack = 1e-9 * max(abs(t1 - t0), abs(t1), 1.0)
+    if not np.isfinite(t) or not t0 - slack <= t <= t1 + slack:
+        raise SolverError(f"{where}: Solution.time = {time!r} is outside the time interval t = [{t0:g}, {t1:g}]; "
+                          "return the time the values belong to (the grid's t_end after the last step)")

@@ -78,6 +78,10 @@ class StudyResult:
         ``used_for`` (``"verdicts"`` when it is the judged order,
         ``"grids"`` when it only shaped the time steps of the plan).
 
+    ``warnings``
+        Lines about levels that are plausible one by one but not as a
+        sequence (a point count that does not grow as the grids do).
+
     Which norms got a verdict is kept as data too: ``judged_norms`` maps
     each field of the problem to the norms it was judged in (every norm is
     measured and tabled either way; empty for results read from files
@@ -100,11 +104,12 @@ class StudyResult:
     order_conflicts: tuple = ()
     judged_norms: dict = field(default_factory=dict)
     norms_source: str = "default"
+    warnings: tuple = ()
 
     @property
     def notes(self):
         """One-line remarks on how the study was read (not failures); empty when there are none."""
-        return _quantity_notes(self) + _order_notes(self) + _norms_notes(self)
+        return tuple(self.warnings) + _quantity_notes(self) + _order_notes(self) + _norms_notes(self)
 
     @property
     def orders_confirmed(self):
@@ -277,6 +282,49 @@ def _order_conflicts(problem, solver, mode, *, caller, planned, base_steps):
         if use:
             conflicts.append({"axis": axis, "solver": stated, "problem": float(filed), "used_for": use})
     return tuple(conflicts)
+
+
+def _check_levels(results, mode, wheres):
+    """Check the levels as a sequence; return the results (some now failed) and warning lines.
+
+    A level whose every error equals the previous level's on the same
+    number of points did not solve its own grid (a solver that returns a
+    stored or the previous solution): it fails, and so does a level with
+    the previous level's number of points where the grid has more cells
+    (its points did not change). Any other point count that does
+    not grow as the grid's cells do is told as a warning: a solver on its
+    own mesh may have been given the wrong h.
+    """
+    results, warnings = list(results), []
+    prev = None
+    for i, r in enumerate(results):
+        if not r.ok:
+            continue
+        if prev is not None and r.n_points == prev.n_points and r.errors == prev.errors and r.errors:
+            results[i] = LevelResult(
+                r.level, r.grid, r.h, "failed", seconds=r.seconds, n_points=r.n_points,
+                message=f"{wheres[i]}: the solution is the one of level {prev.level} (the same {r.n_points} points "
+                        f"and the same errors); solve this level's grid ({r.grid.describe()}) rather than "
+                        "returning a stored or the previous level's solution")
+            continue
+        want = r.grid.n_cells / prev.grid.n_cells if prev is not None else 1.0
+        if want > 1 and r.n_points == prev.n_points:
+            results[i] = LevelResult(
+                r.level, r.grid, r.h, "failed", seconds=r.seconds, n_points=r.n_points,
+                message=f"{wheres[i]}: the solution has the same {r.n_points} points as level {prev.level}, though "
+                        f"the grid has {want:.3g} times the cells; return the solution on this level's grid "
+                        f"({r.grid.describe()})")
+            continue
+        if prev is not None and mode != "time" and prev.n_points > 0:
+            got = r.n_points / prev.n_points
+            # nodes against cells: 9 -> 17 nodes is 1.89 for 2x the cells; half the growth in log is far off
+            if want > 1 and abs(math.log(got) - math.log(want)) > 0.5 * math.log(want):
+                warnings.append(
+                    f"level {r.level} has {r.n_points} points, {got:.3g} times level {prev.level}'s, but its grid "
+                    f"has {want:.3g} times the cells; if the solver builds its own mesh, h taken from the grid "
+                    "may be wrong (give the grids that match the meshes, or h from the cell volumes)")
+        prev = r
+    return results, tuple(warnings)
 
 
 def _verdicts(problem, results, formal, tol, judged):
@@ -469,7 +517,7 @@ def _run_level(solver, case, where):
     try:
         sol = solver(case)
         seconds = time.perf_counter() - start
-        values, points, weights = check_solution(sol, problem, where)
+        values, points, weights = check_solution(sol, problem, where, grid)
         t = None
         if problem.transient:
             t = grid.t_end if sol.time is None else float(sol.time)
@@ -601,9 +649,10 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     from mmsverify.execute.runner import run_levels
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)
+    results, warnings = _check_levels(results, mode, wheres)
     verdicts = _verdicts(problem, results, formal, tol, judged)
     conflicts = _order_conflicts(problem, stating, mode, caller=formal_order is not None, planned=planned,
                                  base_steps=base_steps)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
                        problem.content_hash(), problem.source, order_source,
-                       _missing_quantities(problem, results), conflicts, judged, norms_source)
+                       _missing_quantities(problem, results), conflicts, judged, norms_source, warnings)
