@@ -129,3 +129,17 @@ def test_split_command_budget_option_and_progress_of_every_study(capsys):
 def test_a_negative_budget_is_refused():
     with pytest.raises(GridError, match="refinement budget"):
         run_space_time("slab-heat", theta_heat(1.0), refine_budget=-1)
+
+
+@pytest.mark.parametrize("mode, option", [("time", "--base-cells"), ("space", "--base-steps")])
+def test_run_in_one_mode_refuses_with_the_command_that_works(mode, option, capsys):
+    # Crank-Nicolson is O(dt**2) (LeVeque 2007, sec. 9.6): with frozen cells guessed at 256, run --mode time
+    # reported it "below" (observed 0.38); the refusal names split, which passes (test above)
+    from mmsverify.cli import main
+    assert main(["run", "slab-heat", "fd-heat-cn", "--mode", mode, "--levels", "3"]) == 2
+    err = capsys.readouterr().err
+    assert "\n    mmsverify split slab-heat fd-heat-cn --levels 3\n" in err
+    assert option in err
+    # with the frozen resolution given, fine enough, the same study runs and passes
+    frozen = ["--base-cells", "4096"] if mode == "time" else ["--base-steps", "4096"]
+    assert main(["run", "slab-heat", "fd-heat-cn", "--mode", mode, "--levels", "3", *frozen]) == 0

@@ -196,14 +196,22 @@ def test_a_stated_time_order_is_noted_where_it_was_used():
     assert r.order_conflicts == ({"axis": "time", "solver": 2.0, "problem": 1.0, "used_for": "grids"},)
     assert "note: the solver states time order 2; the problem file's [order] time = 1; the time steps were " \
            "planned with the solver's" in str(r)
-    r = run_study("slab-heat", "fd-heat-cn", levels=2, mode="time")
+    r = run_study("slab-heat", "fd-heat-cn", levels=2, mode="time", base_cells=256)
     assert [c["used_for"] for c in r.order_conflicts] == ["verdicts"]
     assert r.notes == ("the solver states time order 2; the problem file's [order] time = 1; judged against "
                        "the solver's",)
     # given steps in space mode: the stated time order shaped nothing, so nothing to say
     assert run_study("slab-heat", "fd-heat-cn", levels=2, mode="space", base_steps=64).order_conflicts == ()
-    r = run_study("slab-heat", "fd-heat-euler", levels=2, mode="time")
+    r = run_study("slab-heat", "fd-heat-euler", levels=2, mode="time", base_cells=256)
     assert r.order_conflicts == () and r.notes == ()
+
+
+@pytest.mark.parametrize("mode, option", [("time", "base_cells"), ("space", "base_steps")])
+def test_a_one_sided_study_does_not_guess_its_frozen_resolution(mode, option):
+    # Crank-Nicolson (second order in time, Crank & Nicolson 1947) on slab-heat: with the cells frozen at the
+    # count the plan used to guess (256), the spatial error stalled the time order at 0.38 (a false "below")
+    with pytest.raises(GridError, match=f"give the frozen .*\\({option}\\).*mmsverify split"):
+        run_study("slab-heat", "fd-heat-cn", levels=3, mode=mode)
 
 
 def test_no_order_note_when_the_file_states_no_order():

@@ -129,8 +129,39 @@ def settle(args):
     gc.freeze()
 
 
+def _frozen_refused(args, problem, solver):
+    """The GridError for ``--mode time|space`` on a transient problem with the frozen resolution not given.
+
+    Its message holds the commands that work: ``split``, which sizes the
+    frozen resolution from the errors it measures, and this command with
+    the frozen resolution fixed by hand.
+    """
+    from mmsverify.errors import GridError
+    from mmsverify.problem.record import get_problem
+    mode = getattr(args, "mode", "combined")
+    option = {"time": "base_cells", "space": "base_steps"}.get(mode)
+    if option is None or getattr(args, option) is not None or not get_problem(problem).transient:
+        return None
+    name = args.problem if isinstance(args.problem, str) else get_problem(problem).name
+    plan = [f"--{k.replace('_', '-')} {getattr(args, k):g}" for k in ("levels", "base_cells", "base_steps", "ratio")
+            if getattr(args, k, None) is not None]
+    words = ["mmsverify", "split", shlex.quote(name), shlex.quote(str(solver)), *plan]
+    split = " ".join(words) if solver and not getattr(args, "external", None) else None
+    frozen, kind = ("cells", "spatial") if mode == "time" else ("steps", "temporal")
+    text = (f"--mode {mode} keeps the {frozen} frozen, and the {kind} error left at a fixed count of {frozen} can "
+            f"bend the {mode} order of a correct solver, so the count is not guessed. ")
+    if split:
+        text += (f"Run the space-time study, which refines the frozen {frozen} until their error is negligible "
+                 f"(and prints the count it settled on):\n    {split}\nor ")
+    text += f"freeze the {frozen} yourself with --{option.replace('_', '-')} N, fine enough that their error is negligible"
+    return GridError(text)
+
+
 def study_from_args(args, problem, solver, progress=None):
     settle(args)
+    refused = _frozen_refused(args, problem, solver)
+    if refused is not None:
+        raise refused
     solver = external_from_args(args) or solver
     kwargs = dict(levels=args.levels, base_cells=args.base_cells, ratio=args.ratio, mode=args.mode,
                   base_steps=args.base_steps, tolerance=args.tolerance, formal_order=args.formal_order,

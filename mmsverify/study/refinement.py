@@ -263,10 +263,9 @@ def _order_conflicts(problem, solver, mode, *, caller, planned, base_steps):
 
     The judged axis counts unless the caller gave the formal order; the
     other axis only where it shaped the plan (the time steps of a
-    transient study planned in ``combined`` mode, or in ``space`` mode with
-    the frozen steps left to their default).
+    transient study planned in ``combined`` mode).
     """
-    shaped_plan = planned and problem.transient and (mode == "combined" or (mode == "space" and base_steps is None))
+    shaped_plan = planned and problem.transient and mode == "combined"
     conflicts = []
     for axis, attr, filed in (("space", "formal_order", problem.space_order),
                               ("time", "time_order", problem.time_order)):
@@ -443,8 +442,12 @@ def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combi
     ``"combined"`` ties the number of steps to h by the ratio of formal
     orders (so both errors fall at the space order), ``"space"`` keeps the
     steps fixed, ``"time"`` keeps the cells fixed and refines the steps.
-    Unless given, the frozen resolution (cells in ``"time"``, steps in
-    ``"space"``) is two refinements beyond the finest combined level.
+    The frozen resolution (cells in ``"time"``, steps in ``"space"``) must
+    be given (``base_cells``, ``base_steps``): no fixed default leaves its
+    error negligible for every solver, and a frozen error that is not bends
+    the measured order of a correct solver.
+    :func:`~mmsverify.study.spacetime.run_space_time` (``mmsverify split``)
+    sizes it from the errors it measures.
     ``orders`` = (space, time) overrides the problem's formal orders (for
     example with the orders a solver states).
     """
@@ -480,18 +483,19 @@ def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combi
     if isinstance(base_steps, bool) or int(base_steps) != base_steps or base_steps < 1:
         raise GridError(f"base steps must be a positive whole number, got {base_steps!r}")
     base_steps = int(base_steps)
+    if frozen_default:
+        frozen, option = ("cells", "base_cells") if mode == "time" else ("steps", "base_steps")
+        raise GridError(f"mode {mode!r} keeps the {frozen} of {problem.name} frozen, and the error left at a "
+                        f"fixed {frozen[:-1]} count can bend the {mode} order of a correct solver; give the frozen "
+                        f"{frozen} ({option}), or run the space-time study (run_space_time, `mmsverify split`), "
+                        f"which refines them until their error is negligible")
     if mode == "combined":
         time_ratio = ratio ** (p_space / p_time)
         return refinement(problem.lower, problem.upper, base_cells, levels, ratio, t_start=t0, t_end=t1,
                           base_steps=base_steps, time_ratio=time_ratio)
-    # The frozen resolution of a one-sided study defaults to two refinements beyond the finest level
-    # of the combined plan, so the frozen error stays below the one being measured.
     if mode == "space":
-        steps = base_steps * ratio ** ((levels + 1) * p_space / p_time) if frozen_default else base_steps
         return refinement(problem.lower, problem.upper, base_cells, levels, ratio, t_start=t0, t_end=t1,
-                          base_steps=int(round(steps)), time_ratio=1.0)
-    if frozen_default:
-        base_cells = np.round(np.asarray(base_cells) * ratio ** (levels + 1)).astype(int)
+                          base_steps=base_steps, time_ratio=1.0)
     cells = (int(base_cells),) * problem.dim if np.ndim(base_cells) == 0 else tuple(int(n) for n in base_cells)
     grids = [Grid(k, problem.lower, problem.upper, cells, t_start=t0, t_end=t1,
                   steps=int(round(base_steps * ratio ** k))) for k in range(levels)]
