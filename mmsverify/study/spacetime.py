@@ -12,8 +12,10 @@ Three studies, each with its own verdict:
 
 The fixed resolution of the first two is taken two refinements beyond the
 finest level of the combined plan. The frozen error of each is then
-estimated from the other study (its finest error scaled by the formal
-order); when it is not below 2% of the smallest error being
+estimated from the other study (its finest error scaled by the order that
+study measured, at most the formal one: a solver first order in time
+where 2 is formal leaves a frozen time error that falls only at 1); when
+it is not below 2% of the smallest error being
 measured, the study is run once more with the frozen resolution refined
 enough (at most three times, 16 times each), unless the caller fixed it.
 
@@ -22,7 +24,10 @@ the solver seconds of the study it replaces, scaled by cells x steps, and
 a rerun that would take the refinement past the budget is not started.
 When a frozen error is left too large (budget spent, rounds used up, or
 fixed by the caller), the result says so in its ``notes``, with the
-command that freezes finer.
+command that freezes finer. A study that fails while the other
+direction's frozen error is more than 5% of its finest error is not
+failed in its own direction: it is named in ``polluted`` and the outcome
+is inconclusive unless another study fails on its own evidence.
 """
 
 import logging
@@ -47,16 +52,27 @@ class SpaceTimeResult:
     time: object
     combined: object
     notes: tuple = ()
+    polluted: tuple = ()
 
     @property
     def passed(self):
         return self.space.passed and self.time.passed and self.combined.passed
 
+    @property
+    def outcome(self):
+        """``"pass"``; ``"fail"`` when a study fails on its own evidence; ``"inconclusive"`` when the only
+        failing studies are those (named in :attr:`polluted`) whose errors the other direction's error swamps."""
+        if self.passed:
+            return "pass"
+        failed = [label for label, r in (("time", self.time), ("space", self.space), ("combined", self.combined))
+                  if not r.passed]
+        return "inconclusive" if set(failed) <= set(self.polluted) else "fail"
+
     def summary(self):
         """One line per study: what was fixed, what was refined, verdicts."""
         rows = []
         for label, r in (("time", self.time), ("space", self.space), ("combined", self.combined)):
-            status = "PASS" if r.passed else "FAIL"
+            status = "PASS" if r.passed else "POLLUTED" if label in self.polluted else "FAIL"
             g = r.levels[-1].grid
             fixed = (f"cells fixed at {'x'.join(map(str, g.cells))}" if label == "time"
                      else f"steps fixed at {g.steps}" if label == "space" else "steps tied to h")
@@ -66,7 +82,7 @@ class SpaceTimeResult:
         return "\n".join(rows)
 
     def __str__(self):
-        head = "PASS" if self.passed else "FAIL"
+        head = {"pass": "PASS", "fail": "FAIL"}.get(self.outcome, "INCONCLUSIVE")
         parts = [f"{head}  space and time orders of {self.combined.solver} on {self.combined.problem}",
                  self.summary(), ""]
         if self.notes:
@@ -136,19 +152,27 @@ def run_space_time(problem, solver, *, levels=4, base_cells=None, base_steps=Non
 
     time_study = study("time", fine_cells, base_steps)
     space_study = study("space", base_cells, fine_steps)
-    # Each study's frozen error, estimated from the other study's finest error and formal order, must sit
+    # Each study's frozen error, estimated from the other study's finest error and measured order, must sit
     # well below the errors it measures; when it does not, freeze finer and run that study again, as long
     # as the estimated cost of the rerun keeps the refinement within the budget.
     frozen, studies, fixed = {"h": fine_cells, "dt": fine_steps}, {"h": time_study, "dt": space_study}, \
         {"h": user_cells, "dt": user_steps}
+    formal = {"h": p_space, "dt": p_time}   # the order each frozen error falls at, by design
+
+    def measured(axis):
+        """The order the frozen error of ``axis`` falls at, from the study that measures that direction."""
+        oa = "dt" if axis == "h" else "h"
+        return _measured_order(studies[oa], formal[axis], _clean(studies[oa], studies[axis], formal[oa], oa))
+
     spent, refused = 0.0, {}
 
     def refine(axis):
         """Freeze this axis finer and rerun its study if its frozen error needs it and the budget allows."""
         nonlocal spent
         other = studies["dt" if axis == "h" else "h"]
-        order, what = (p_space, ("time study's cells", "cells of the time study")) if axis == "h" else \
-            (p_time, ("space study's steps", "steps of the space study"))
+        order = measured(axis)
+        what = ("time study's cells", "cells of the time study") if axis == "h" else \
+            ("space study's steps", "steps of the space study")
         more = 1.0 if fixed[axis] or axis in refused else _refine_frozen(studies[axis], other, order, axis)
         if more <= 1:
             return False
@@ -174,18 +198,22 @@ def run_space_time(problem, solver, *, levels=4, base_cells=None, base_steps=Non
     time_study, space_study = studies["h"], studies["dt"]
     combined = study("combined", base_cells, base_steps)
     plan.update(fine_cells=fine_cells if user_cells else None, fine_steps=fine_steps if user_steps else None)
-    notes = []
-    for axis, measuring, other, order, fine, fixed in (
-            ("h", time_study, space_study, p_space, fine_cells, user_cells),
-            ("dt", space_study, time_study, p_time, fine_steps, user_steps)):
+    notes, polluted, told = [], [], []
+    for axis, measuring, other, fine, fixed in (("h", time_study, space_study, fine_cells, user_cells),
+                                                ("dt", space_study, time_study, fine_steps, user_steps)):
+        order = measured(axis)
         want = _refine_frozen(measuring, other, order, axis, cap=math.inf)
+        est = _frozen_estimate(measuring, other, order, axis)
+        if not measuring.passed and est is not None and est[0] > _NOTE * est[1] and not measuring.failed_levels:
+            polluted.append("time" if axis == "h" else "space")
+            told.append(_polluted_note(axis, est, other, order, formal[axis]))
         # a refinement the budget refused is always told; otherwise only a frozen error that bends the order
         # by about half the usual tolerance (a few percent over the margin is rounding of the last round)
         if want > 1 and (axis in refused or want > (_NOTE / _MARGIN) ** (1.0 / order)):
             why = "fixed" if fixed else "budget" if axis in refused else "rounds"
             notes.append(_frozen_note(axis, measuring, other, order, fine, want, why, refused.get(axis), budget,
                                       given, plan, problem.dim))
-    return SpaceTimeResult(space_study, time_study, combined, tuple(notes))
+    return SpaceTimeResult(space_study, time_study, combined, tuple(notes + told), tuple(polluted))
 
 
 #: Default solver seconds the automatic refinement of the frozen resolution may spend.
@@ -194,6 +222,7 @@ _MARGIN = 0.02     # a frozen error 2% of the finest measured one bends a second
 _NOTE = 0.05       # a frozen error 5% of the finest one bends a second order by about 0.05 (log2(3.85/1)): told
 _MAX_FACTOR = 16   # refine the frozen resolution at most this much at once
 _ROUNDS = 3        # and at most this many times
+_MIN_ORDER = 0.25  # a lower measured order is taken as this: the refinement then takes the largest step
 
 
 def _finest_l2(result):
@@ -228,6 +257,40 @@ def _refine_frozen(measuring, other, order, axis, cap=_MAX_FACTOR):
     if est is None or est[0] <= _MARGIN * est[1]:
         return 1.0
     return min(cap, (est[0] / (_MARGIN * est[1])) ** (1.0 / order))
+
+
+def _clean(study, other, order, axis):
+    """True when ``study`` (frozen along ``axis``) is not swamped by its frozen error, estimated with the
+    formal ``order``: only then is the order it measures that of its own direction."""
+    est = _frozen_estimate(study, other, order, axis)
+    return est is None or est[0] <= _NOTE * est[1]
+
+
+def _measured_order(result, formal, clean=True):
+    """The order the frozen error of the other study falls at: measured, at most the formal one.
+
+    The L2 order of the finest pair, lowest over the fields; a solver whose
+    time error falls at 1 where 2 is formal leaves a frozen error that
+    shrinks only at 1, and sizing the frozen steps by 2 leaves it too large.
+    An order above the formal one is not trusted (a lucky pair); one that
+    is not measured, or measured by a study swamped by its own frozen
+    error (not ``clean``), is taken as the formal one.
+    """
+    if not clean:
+        return float(formal)
+    measured = [o[-1] for f in result.fields for o in [result.orders(f, "L2")] if len(o) and math.isfinite(o[-1])]
+    if not measured:
+        return float(formal)
+    return max(_MIN_ORDER, min(float(formal), min(measured)))
+
+
+def _polluted_note(axis, est, other, order, formal):
+    """Why a failed study is not evidence against its own direction: the other direction's frozen error."""
+    study, kind, other_name = (("temporal", "spatial", "space") if axis == "h" else ("spatial", "temporal", "time"))
+    measured = f"measured {order:.2f}" + (f", below the formal {formal:g}" if order < formal - 1e-9 else "")
+    return (f"the {study} study is polluted by {kind} error: the frozen {kind} error is an estimated "
+            f"{est[0] / est[1]:.0%} of the finest error it measures (the {other_name} study's order: {measured}). "
+            f"Its verdict says nothing about the {study} order; fix the {other_name} order first, or freeze finer")
 
 
 def _frozen_note(axis, measuring, other, order, fine, want, why, refused_cost, budget, given, plan, dim):
