@@ -23,7 +23,9 @@ def test_every_family_with_its_defaults_is_a_sound_diffusion_design(kind, dim, t
 
 def test_trig_family_passes_for_the_advective_and_flow_operators():
     fs = scalar_field("trig", "c", 2)
-    adv = fs.problem_text("adv", "advection_diffusion", parameters={"k": 0.1, "ax": 1.0, "ay": 0.5})
+    # a varying k: a constant one leaves dk/dx of the diffusion term unexercised (coverage_check)
+    adv = fs.problem_text("adv", "advection_diffusion",
+                          parameters={"k": "0.1*(1 + 0.25*sin(x + y + 0.3))", "ax": 1.0, "ay": 0.5})
     assert audit(problem_from_text(adv), starts=0).ok
     flow = vector_field("trig", ("u", "v"), 2) + scalar_field("trig", "p", 2)
     ns = flow.problem_text("ns", "navier_stokes", parameters={"nu": 0.1})

@@ -44,7 +44,7 @@ from mmsverify.design.model import diff, model_from_problem, sample_points
 
 __all__ = ["TermSize", "TermReport", "LeadingDerivative", "TruncationReport", "BoundCheck",
            "AdmissibilityReport", "DesignAudit", "term_sizes", "truncation_check", "admissibility_check",
-           "audit", "design_warnings", "SMALL_TERM"]
+           "audit", "design_warnings", "SMALL_TERM", "Unexercised", "CoverageReport", "coverage_check"]
 
 #: Default: a term below this fraction of the largest term of its equation is "small".  # common practice
 SMALL_TERM = 0.01
@@ -478,6 +478,154 @@ def admissibility_check(problem, starts=6, seed=0, per_axis=None):
     return _admissibility(model, sample_points(model, per_axis), starts, seed)
 
 
+# -- unexercised coefficients and derivatives --------------------------------------------------
+@dataclass(frozen=True)
+class Unexercised:
+    """A coefficient or field derivative that a term needs but that vanishes for this solution."""
+
+    name: str           # the coefficient or field
+    derivatives: tuple  # labels such as "dk/dx", "d2u/dxdy"
+    terms: tuple        # "equation T, term diffusion"
+    reason: str
+    suggestion: str
+
+    @property
+    def message(self):
+        return (f"{', '.join(self.derivatives)} {'is' if len(self.derivatives) == 1 else 'are'} zero everywhere "
+                f"({self.reason}), though {'; '.join(self.terms)} {'needs' if len(self.terms) == 1 else 'need'} "
+                f"{'it' if len(self.derivatives) == 1 else 'them'}: a mistake in that part of the scheme cannot "
+                f"be seen. {self.suggestion}")
+
+
+@dataclass(frozen=True)
+class CoverageReport:
+    """What the terms need and the solution leaves at zero (see :func:`coverage_check`)."""
+
+    problem: str
+    findings: tuple
+
+    @property
+    def ok(self):
+        return not self.findings
+
+    @property
+    def warnings(self):
+        return [f.message for f in self.findings]
+
+    def __str__(self):
+        head = ("coverage: every coefficient and field derivative the terms need varies" if self.ok else
+                "coverage: parts of the operator the solution does not exercise")
+        return "\n".join([head] + [f"  !! {w}" for w in self.warnings])
+
+
+def _number(expr):
+    e = sp.sympify(expr)
+    return float(e) if e.is_number and e.is_real else None
+
+
+def _wave(variables):
+    return f"sin({' + '.join(variables)} + 0.3)" if variables else "1"
+
+
+def _coefficient_finding(model, name, atoms, terms):
+    value = sp.sympify(model.parameters[name])
+    variables = sorted({str(v) for a in atoms for v, _ in a.variable_count})
+    labels = tuple(_atom_label(a) for a in atoms)
+    number = _number(value) if not model.consts else None
+    if not (value.free_symbols & set(model.variables)):
+        shown = f"{number:g}" if number is not None else str(value)
+        reason = f"{name} = {shown} is constant"
+        factor = f"1 + 0.25*{_wave(variables)}"
+        suggest = (f"Make {name} vary where the scheme forms it between points (face averages), e.g. "
+                   f"{name} = \"{factor if shown == '1' else f'{shown}*({factor})'}\" in [operator]")
+    else:
+        reason = f"{name} does not vary in {', '.join(variables)}"
+        suggest = f"Give {name} variation in {', '.join(variables)}, e.g. a factor (1 + 0.25*{_wave(variables)})"
+    return Unexercised(name, labels, tuple(terms), reason, suggest)
+
+
+def _field_finding(field, atoms, terms):
+    labels = tuple(_atom_label(a) for a in atoms)
+    mixed = [a for a in atoms if len(a.variable_count) > 1]
+    pure = [a for a in atoms if len(a.variable_count) == 1]
+    reasons, adds = [], []
+    if mixed:
+        pairs = sorted({tuple(sorted(str(v) for v, _ in a.variable_count)) for a in mixed})
+        reasons.append(f"{field} has no product of {' and '.join('/'.join(p) for p in pairs)}")
+        adds += [f"0.1*{'*'.join(f'sin({v} + 0.3)' for v in p)}" for p in pairs]
+    for a in pure:
+        (v, n), = a.variable_count
+        reasons.append(f"{field} does not vary in {v}" if n == 1 else f"{field} is a polynomial of degree below {n} in {v}")
+        adds.append(f"0.1*sin(2*{v} + 0.3)")
+    return Unexercised(field, labels, tuple(terms), "; ".join(reasons),
+                       f"Add to {field} a part that varies so, e.g. + {' + '.join(dict.fromkeys(adds))}")
+
+
+def _coverage(model, pts):
+    """Coefficient and field derivatives that a term needs (with every coefficient allowed to vary) but that
+    vanish on the samples; terms that vanish whole are left to the term sizes."""
+    if not model.generic:
+        return CoverageReport(model.name, ())
+    term_values = model.compile([t.expr for t in model.generic])(*pts, *model.values)
+    largest = {}
+    for t, v in zip(model.generic, term_values):
+        largest[t.equation] = max(largest.get(t.equation, 0.0), _rms(v))
+    live = [t for t, v in zip(model.generic, term_values) if _rms(v) > _ZERO * largest[t.equation]]
+    atoms = sorted({a for t in live for a in t.expr.atoms(sp.Derivative) if a in model.atoms},
+                   key=sp.default_sort_key)
+    if not atoms:
+        return CoverageReport(model.name, ())
+    values = dict(zip(atoms, model.compile(atoms)(*pts, *model.values)))
+    extent = min(hi - lo for lo, hi in model.box)
+    bases = sorted({a.expr for a in atoms}, key=sp.default_sort_key)
+    scale = dict(zip(bases, (_rms(v) or 1.0 for v in model.compile([model.atoms[b] for b in bases])(
+        *pts, *model.values))))
+    zero = {}
+    for a in atoms:
+        order = sum(c for _, c in a.variable_count)
+        if _rms(values[a]) <= _ZERO * scale[a.expr] / extent ** order:
+            zero.setdefault(a.expr.func.__name__, []).append(a)
+    defaults = {}
+    if model.operator != "custom":
+        from mmsverify.problem.operators import get_operator
+        defaults = get_operator(model.operator).parameters
+    findings = []
+    for base, found in zero.items():
+        where = [f"equation {t.equation}, term {t.name}" for t in live if any(t.expr.has(a) for a in found)]
+        if base.startswith("_par_"):
+            name = base.removeprefix("_par_")
+            value = _number(model.parameters[name])
+            # the operator's own default (k = 1 of Poisson, a zero velocity component) is no coefficient the
+            # problem claims to exercise; a zero coefficient switches its terms off on purpose
+            if value == 0 or (name in defaults and value == _number(defaults[name])):
+                continue
+            findings.append(_coefficient_finding(model, name, found, where))
+        else:
+            findings.append(_field_finding(base, found, where))
+    return CoverageReport(model.name, tuple(findings))
+
+
+def coverage_check(problem, per_axis=None):
+    """Coefficients and field derivatives the operator's terms need but the solution does not exercise.
+
+    Each term is written with every coefficient varying in space and time
+    (so ``-d(k du/dx)/dx`` shows ``dk/dx``); a derivative of a coefficient
+    or field in a term that does not vanish, which the manufactured solution
+    leaves zero everywhere (a constant coefficient, a field that does not
+    vary in a direction, a field without a cross term), is reported with a
+    field or expression that would exercise it. A mistake in how a code
+    forms a constant coefficient between points (arithmetic against
+    harmonic face averages) is invisible to such a solution. Coefficients
+    at the operator's default value and zero coefficients are not reported.
+
+    Returns
+    -------
+    CoverageReport
+    """
+    model = _model(problem)
+    return _coverage(model, sample_points(model, per_axis))
+
+
 # -- together -------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class DesignAudit:
@@ -487,19 +635,24 @@ class DesignAudit:
     terms: TermReport
     truncation: TruncationReport
     admissibility: AdmissibilityReport
+    coverage: CoverageReport = None
 
     @property
     def ok(self):
-        return self.terms.ok and self.truncation.ok and self.admissibility.ok
+        return self.terms.ok and self.truncation.ok and self.admissibility.ok and self._coverage.ok
+
+    @property
+    def _coverage(self):
+        return self.coverage if self.coverage is not None else CoverageReport(self.problem, ())
 
     @property
     def warnings(self):
-        return self.terms.warnings + self.truncation.warnings + self.admissibility.warnings
+        return self.terms.warnings + self.truncation.warnings + self.admissibility.warnings + self._coverage.warnings
 
     def __str__(self):
         verdict = "design OK" if self.ok else f"design has {len(self.warnings)} warning(s)"
-        return "\n\n".join([f"{verdict}: {self.problem}", str(self.terms), str(self.truncation),
-                            str(self.admissibility)])
+        return "\n\n".join([f"{verdict}: {self.problem}", str(self.terms), str(self._coverage),
+                            str(self.truncation), str(self.admissibility)])
 
 
 def audit(problem, formal_order=None, time_order=None, *, threshold=SMALL_TERM, starts=6, seed=0, per_axis=None):
@@ -510,7 +663,7 @@ def audit(problem, formal_order=None, time_order=None, *, threshold=SMALL_TERM, 
     q = int(round(time_order)) if time_order is not None else model.time_order
     return DesignAudit(model.name, _term_sizes(model, threshold, pts),
                        _truncation(model, p, q if model.t is not None else None, pts),
-                       _admissibility(model, pts, starts, seed))
+                       _admissibility(model, pts, starts, seed), _coverage(model, pts))
 
 
 def design_warnings(problem, formal_order=None, time_order=None):

@@ -104,6 +104,8 @@ class Model:
     atoms: dict = None
     consts: tuple = ()
     values: tuple = ()
+    operator: str = "custom"
+    generic: tuple = ()     # the terms with every coefficient varying (see _build_terms)
 
     @property
     def variables(self):
@@ -208,8 +210,8 @@ def diff(expr, *variable_count):
     return expr
 
 
-def _atoms(terms, field_funcs, param_funcs, fields, parameters):
-    """Concrete value of every field, coefficient and derivative atom in the terms."""
+def _atoms(terms, field_funcs, param_funcs, fields, parameters, known=()):
+    """Concrete value of every field, coefficient and derivative atom in the terms (not in ``known``)."""
     concrete = {F: fields[f] for f, F in field_funcs.items()}
     concrete |= {P: sp.sympify(parameters[k]) for k, P in param_funcs.items()}
     cache = {}
@@ -229,7 +231,7 @@ def _atoms(terms, field_funcs, param_funcs, fields, parameters):
     for term in terms:
         expr = sp.sympify(term.expr)
         for a in expr.atoms(sp.Derivative, AppliedUndef) | expr.free_symbols:
-            if a in out:
+            if a in out or a in known:
                 continue
             if isinstance(a, sp.Derivative) and a.expr in concrete:
                 counts = tuple(sorted(((v, int(n)) for v, n in a.variable_count if n), key=lambda c: str(c[0])))
@@ -239,12 +241,18 @@ def _atoms(terms, field_funcs, param_funcs, fields, parameters):
     return out
 
 
-def _build_terms(operator, X, t, fields, parameters, equation_text, equations, base):
-    """Structured terms and their atoms; ``base`` maps coordinate and constant names to sympy objects."""
+def _build_terms(operator, X, t, fields, parameters, equation_text, equations, base, vary=False, known=()):
+    """Structured terms and their atoms; ``base`` maps coordinate and constant names to sympy objects.
+
+    With ``vary`` every coefficient is a function of all variables, so the
+    terms show every coefficient derivative they need, also of constant
+    coefficients (whose concrete derivatives are then zero); atoms in
+    ``known`` are not computed again.
+    """
     var = X + ((t,) if t is not None else ())
     field_funcs = {f: sp.Function(f)(*var) for f in fields}
     # a coefficient that varies is a function (its derivatives appear); a constant one a symbol
-    param_funcs = {k: sp.Function(f"_par_{k}")(*var) if sp.sympify(v).free_symbols & set(var)
+    param_funcs = {k: sp.Function(f"_par_{k}")(*var) if vary or sp.sympify(v).free_symbols & set(var)
                    else sp.Symbol(f"_par_{k}") for k, v in parameters.items()}
     terms = []
     if operator != "custom":
@@ -266,7 +274,14 @@ def _build_terms(operator, X, t, fields, parameters, equation_text, equations, b
                 label = ("-" if sign < 0 else "") + seg
                 consts = tuple(sorted(_names_in(seg) & (set(base) - {str(v) for v in var})))
                 terms.append(Term(eq, label, expr, *_structure(expr, field_funcs, param_funcs), consts))
-    return tuple(terms), _atoms(terms, field_funcs, param_funcs, fields, parameters)
+    return tuple(terms), _atoms(terms, field_funcs, param_funcs, fields, parameters, known)
+
+
+def _with_generic(operator, X, t, fields, parameters, equation_text, equations, base, atoms):
+    """The terms with every coefficient varying (see :func:`_build_terms`) and all atoms together."""
+    generic, more = _build_terms(operator, X, t, fields, parameters, equation_text, equations, base, vary=True,
+                                 known=atoms)
+    return generic, {**more, **atoms}
 
 
 def _implied_bounds(operator, fields, parameters, taken):
@@ -290,10 +305,12 @@ def model_from_problem(problem):
     base = {str(c): c for c in p.coords} | ({"t": p.t} if p.t is not None else {}) | _constant_syms(p.constants)
     terms, atoms = _build_terms(p.operator, p.coords, p.t, p.fields, p.parameters, p.equation_text, p.equations,
                                 base)
+    generic, atoms = _with_generic(p.operator, p.coords, p.t, p.fields, p.parameters, p.equation_text,
+                                   p.equations, base, atoms)
     bounds = [Bound(k, e, lo, hi) for k, (e, lo, hi) in p.bounds.items()]
     bounds += _implied_bounds(p.operator, p.fields, p.parameters, p.bounds)
     return Model(p.name, p.coords, p.t, p.lower, p.upper, p.t_range, dict(p.fields), dict(p.parameters),
-                 terms, tuple(bounds), p.space_order, p.time_order, atoms)
+                 terms, tuple(bounds), p.space_order, p.time_order, atoms, operator=p.operator, generic=generic)
 
 
 def _value(v, names, where):
@@ -323,6 +340,8 @@ def model_from_text(text, source="<text>", keep=()):
         op_tab = {k: op_tab.get(k, d) for k, d in get_operator(kind).parameters.items()}
     parameters = {k: _value(v, {**base, **fields}, f"{source}, [operator] {k}") for k, v in op_tab.items()}
     terms, atoms = _build_terms(kind, p.coords, p.t, fields, parameters, p.equation_text, p.equations, base)
+    generic, atoms = _with_generic(kind, p.coords, p.t, fields, parameters, p.equation_text, p.equations, base,
+                                   atoms)
     bounds = []
     names = {**base, **fields, **parameters}
     for key, (_, lo, hi) in p.bounds.items():
@@ -334,7 +353,8 @@ def model_from_text(text, source="<text>", keep=()):
         bounds.append(Bound(key, expr, lo, hi))
     bounds += _implied_bounds(kind, fields, parameters, p.bounds)
     return Model(p.name, p.coords, p.t, p.lower, p.upper, p.t_range, fields, parameters, terms, tuple(bounds),
-                 p.space_order, p.time_order, atoms, tuple(consts.values()), tuple(p.constants[k] for k in symbolic))
+                 p.space_order, p.time_order, atoms, tuple(consts.values()), tuple(p.constants[k] for k in symbolic),
+                 operator=kind, generic=generic)
 
 
 def sample_points(model, per_axis=None, times=5):
