@@ -27,8 +27,9 @@ from .grids import Grid, check_refinement, refinement
 from .norms import NORMS, _magnitude_norms
 from .order import observed_orders
 from .problem import get_problem
+from .rules import check_rules, parse_rules, rule_for
 from .solvers import Case, check_solution, resolve_solver, solver_name
-from .verdict import judge
+from .verdict import check_rule, judge
 
 __all__ = ["LevelResult", "StudyResult", "plan_grids", "run_level", "run_study", "judged_norms", "MODES",
            "NORMS_SOURCES"]
@@ -100,6 +101,7 @@ class StudyResult:
     order_conflicts: tuple = ()
     judged_norms: dict = field(default_factory=dict)
     norms_source: str = "default"
+    rules: tuple = ()
 
     @property
     def notes(self):
@@ -175,13 +177,16 @@ class StudyResult:
             "order_conflicts": [dict(c) for c in self.order_conflicts],
             "judged_norms": {f: list(n) for f, n in self.judged_norms.items()},
             "norms_source": self.norms_source,
+            "rules": {sel: r.to_dict() for sel, r in self.rules},
             "notes": list(self.notes),
             "quantity_orders": {q: [None if not np.isfinite(p) else float(p) for p in self.quantity_orders(q)]
                                 for q in self.quantities},
             "orders": {f: {n: [None if not np.isfinite(p) else float(p) for p in self.orders(f, n)]
                            for n in NORMS} for f in self.fields},
             "verdicts": [{"field": v.field, "norm": v.norm, "status": v.status, "observed": v.observed,
-                          "formal": v.formal, "tolerance": v.tolerance, "reason": v.reason}
+                          "formal": v.formal, "tolerance": v.tolerance, "reason": v.reason, "kind": v.kind,
+                          "interval": None if v.interval is None else list(v.interval),
+                          "at_least": v.at_least, "left_out": list(v.left_out)}
                          for v in self.verdicts],
         }
 
@@ -279,21 +284,27 @@ def _order_conflicts(problem, solver, mode, *, caller, planned, base_steps):
     return tuple(conflicts)
 
 
-def _verdicts(problem, results, formal, tol, judged):
+def _verdicts(problem, results, formal, tol, judged, rules=(), mode="combined"):
     """One verdict per field and judged norm (``judged``: field -> norms, as :func:`judged_norms` gives),
-    then one per reported quantity."""
+    then one per reported quantity, each under its rule (``rules``: see :mod:`mmsverify.rules`)."""
+    axis = "time" if mode == "time" else "space"
+    size = "dt" if mode == "time" else "h"
+
+    def one(name, norm, ok, errors, scale):
+        p, t, at_least = rule_for(rules, name, norm, formal, tol, axis)
+        return judge(name, norm, [r.h for r in ok], errors, p, t, scale=scale, levels=[r.level for r in ok],
+                     at_least=at_least, axis=size)
+
     verdicts = []
     for f in problem.field_names:
         ok = [r for r in results if r.ok and f in r.errors]
         for n in judged.get(f, NORMS) if ok else ():
-            verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], formal, tol,
-                                  scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
+            verdicts.append(one(f, n, ok, [r.errors[f][n] for r in ok], max(r.scale[f] for r in ok)))
     for q in problem.names("quantities"):
         ok = [r for r in results if r.ok and q in r.quantities]
         if ok:
-            verdicts.append(judge(q, "value", [r.h for r in ok], [r.quantities[q]["error"] for r in ok], formal,
-                                  tol, scale=abs(ok[-1].quantities[q]["exact"]) or 1.0,
-                                  levels=[r.level for r in ok]))
+            verdicts.append(one(q, "value", ok, [r.quantities[q]["error"] for r in ok],
+                                abs(ok[-1].quantities[q]["exact"]) or 1.0))
     return tuple(verdicts)
 
 
@@ -503,7 +514,7 @@ def _run_level(solver, case, where):
 
 def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode="combined", base_steps=None,
               grids=None, tolerance=None, formal_order=None, executor=None, options=None,
-              progress=None, workers=None, timeout=None, cache_dir=None, resume=True, norms=None):
+              progress=None, workers=None, timeout=None, cache_dir=None, resume=True, norms=None, rules=None):
     """Run a manufactured-solution study and judge the observed orders.
 
     Parameters
@@ -555,6 +566,11 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
         solvers in all of L1, L2, Linf (see :func:`judged_norms`). Every
         norm is still measured and reported; a field judged in fewer says
         so in ``notes`` (data in ``judged_norms`` and ``norms_source``).
+    rules : dict, optional
+        Order rules for single fields, norms or quantities, e.g.
+        ``{"drag": {"at_least": True}, "u Linf": {"tolerance": 0.3}}``; they
+        add to (and for the same selector replace) the problem's
+        ``[order.by]`` table (see :mod:`mmsverify.rules`).
 
     Returns
     -------
@@ -591,19 +607,22 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
         formal, order_source = formal_order, "caller"
     formal = float(formal)
     tol = float(tolerance if tolerance is not None else problem.tolerance)
-    if not formal > 0 or not tol > 0:
-        raise AnalysisError(f"the formal order and the tolerance must be positive, got {formal:g} and {tol:g}")
+    check_rule(formal, tol, f"problem {problem.name}, the order rule" + (" (--tolerance)" if tolerance is not None
+                                                                          else ""))
     name = solver_name(solver)
     judged, norms_source = judged_norms(problem, stating, norms, who=solver_name(stating))
+    rules = tuple(dict({**dict(getattr(problem, "order_rules", ())), **dict(parse_rules(rules))}).items())
+    check_rules(rules, {**judged, **{q: ("value",) for q in problem.names("quantities")}}, NORMS + ("value",),
+                formal, tol, "time" if mode == "time" else "space", f"problem {problem.name}, order rules")
     opts = dict(options or {}, mode=mode)
     cases = [Case(g, mms, opts) for g in grids]
     wheres = [_level_where(problem.name, name, c.grid) for c in cases]
     from .runner import run_levels
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)
-    verdicts = _verdicts(problem, results, formal, tol, judged)
+    verdicts = _verdicts(problem, results, formal, tol, judged, rules, mode)
     conflicts = _order_conflicts(problem, stating, mode, caller=formal_order is not None, planned=planned,
                                  base_steps=base_steps)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
                        problem.content_hash(), problem.source, order_source,
-                       _missing_quantities(problem, results), conflicts, judged, norms_source)
+                       _missing_quantities(problem, results), conflicts, judged, norms_source, rules)
