@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["PowerFit", "BendFit", "power_fit", "bend_fit", "find_floor", "CONFIDENCE"]
+__all__ = ["PowerFit", "BendFit", "power_fit", "bend_fit", "floor_fit", "find_floor", "CONFIDENCE"]
 
 #: Confidence level of every interval of the observed order.
 CONFIDENCE = 0.95  # common practice
@@ -84,6 +84,36 @@ def power_fit(h, e, confidence=CONFIDENCE):
     return PowerFit(p, low, high, math.sqrt(ss / n), n)
 
 
+def _scan(h, e, p_max, second):
+    """Best ``p`` of ``e = C h**p + D g(h, p)`` (``second(h, p)`` gives ``g``) by a scan, with C and D
+    solved at each ``p``; returns the scanned orders, residual sums, C and D."""
+    n, w = len(h), _weights(h)
+    ps = np.arange(0.01, p_max, 0.001)
+    a = h[None, :] ** ps[:, None] / e[None, :]          # (P, n): columns of the linear problem
+    b = second(h[None, :], ps[:, None]) / e[None, :]
+    sw = w[None, :]
+    aa, ab, bb = (sw * a * a).sum(1), (sw * a * b).sum(1), (sw * b * b).sum(1)
+    a1, b1 = (sw * a).sum(1), (sw * b).sum(1)
+    det = aa * bb - ab * ab
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        C = (a1 * bb - b1 * ab) / det
+        D = (aa * b1 - ab * a1) / det
+        ss = (sw * (C[:, None] * a + D[:, None] * b - 1.0) ** 2).sum(1)
+    ss[~np.isfinite(ss)] = np.inf
+    return ps, ss, C, D
+
+
+def floor_fit(h, e, p_max):
+    """``e = C h**p + F`` over four or more levels: ``(p, F, rms)``, the relative rms residual.
+
+    ``F`` is an error that does not shrink with ``h`` (a frozen resolution, iteration error).
+    """
+    h, e = np.asarray(h, float), np.asarray(e, float)
+    ps, ss, C, F = _scan(h, e, p_max, lambda hh, p: np.ones_like(hh * p))
+    k = int(np.argmin(ss))
+    return float(ps[k]), float(F[k]), math.sqrt(ss[k] / len(h))
+
+
 def bend_fit(h, e, q, p_max, confidence=CONFIDENCE):
     """Leading order with the next term ``h**(p+q)``, over four or more levels.
 
@@ -96,19 +126,8 @@ def bend_fit(h, e, q, p_max, confidence=CONFIDENCE):
     from scipy import stats
 
     h, e = np.asarray(h, float), np.asarray(e, float)
-    n, w = len(h), _weights(h)
-    ps = np.arange(0.01, p_max, 0.001)
-    a = h[None, :] ** ps[:, None] / e[None, :]          # (P, n): columns of the linear problem
-    b = a * h[None, :] ** q
-    sw = w[None, :]
-    aa, ab, bb = (sw * a * a).sum(1), (sw * a * b).sum(1), (sw * b * b).sum(1)
-    a1, b1 = (sw * a).sum(1), (sw * b).sum(1)
-    det = aa * bb - ab * ab
-    with np.errstate(divide="ignore", invalid="ignore"):
-        C = (a1 * bb - b1 * ab) / det
-        D = (aa * b1 - ab * a1) / det
-        ss = (sw * (C[:, None] * a + D[:, None] * b - 1.0) ** 2).sum(1)
-    ss[~np.isfinite(ss)] = np.inf
+    n = len(h)
+    ps, ss, C, D = _scan(h, e, p_max, lambda hh, p: hh ** (p + q))
     k = int(np.argmin(ss))
     bound = ss[k] * (1.0 + float(stats.f.ppf(confidence, 1, n - 3)) / (n - 3))
     inside = ps[ss <= max(bound, ss[k])]
@@ -124,18 +143,26 @@ _FALLING, _STALLED = 0.5, 0.2
 
 
 def find_floor(h, e, formal):
-    """Index of the first level of a floor, or None.
+    """``(j, F)``: the last level ``j`` before a floor and the floor's size, or None.
 
     A floor is a tail of levels over which the error no longer falls (its
     pair orders stay below a fifth of the formal order) after the error
-    fell at at least half the formal order on coarser levels: the model
-    ``e = C h**p + F`` with the constant ``F`` dominating the tail.
+    fell at at least half the formal order on coarser levels; or, with four
+    or more levels, a fit ``e = C h**p + F`` that explains the levels
+    (three times smaller rms residual than the power law) with ``F`` at
+    least a fifth of the finest error. Levels before the floor are those whose
+    error is more than four times ``F`` (at least the finest one is not).
     """
     h, e = np.asarray(h, float), np.asarray(e, float)
     q = np.log(e[:-1] / e[1:]) / np.log(h[:-1] / h[1:])
     j = len(q)
     while j > 0 and q[j - 1] < _STALLED * formal:
         j -= 1
-    if j == len(q) or not np.any(q[:j] >= _FALLING * formal):
-        return None
-    return j
+    if j < len(q) and np.any(q[:j] >= _FALLING * formal):
+        return j, float(np.median(e[j + 1:]))
+    if len(h) >= 4:
+        p, F, rms = floor_fit(h, e, max(8.0, 3.0 * formal))
+        if F >= 0.2 * e[-1] and rms * 3 < power_fit(h, e).rms and p >= _FALLING * formal:
+            before = np.nonzero(e > 4 * F)[0]
+            return (min(int(before[-1]), len(h) - 2) if before.size else -1), F
+    return None

@@ -12,6 +12,7 @@ levels support.
 """
 
 from collections.abc import Mapping
+import dataclasses
 from dataclasses import dataclass, field
 import math
 import multiprocessing
@@ -31,7 +32,7 @@ from .rules import check_rules, parse_rules, rule_for
 from .solvers import Case, check_solution, resolve_solver, solver_name
 from .verdict import check_rule, judge
 
-__all__ = ["LevelResult", "StudyResult", "plan_grids", "run_level", "run_study", "judged_norms", "MODES",
+__all__ = ["LevelResult", "StudyResult", "plan_grids", "run_level", "run_study", "judged_norms", "rejudge", "MODES",
            "NORMS_SOURCES"]
 
 MODES = ("combined", "space", "time")
@@ -306,6 +307,31 @@ def _verdicts(problem, results, formal, tol, judged, rules=(), mode="combined"):
             verdicts.append(one(q, "value", ok, [r.quantities[q]["error"] for r in ok],
                                 abs(ok[-1].quantities[q]["exact"]) or 1.0))
     return tuple(verdicts)
+
+
+def rejudge(result):
+    """The study with every verdict judged again from its stored errors, under the rule each verdict states.
+
+    A study read from a file keeps its errors, and its verdicts say which
+    order, tolerance and side they were judged by; judging again means a
+    file whose verdicts were edited, or written by an older release, cannot
+    pass on its word. Raises :class:`~mmsverify.errors.AnalysisError` for a
+    rule :func:`~mmsverify.verdict.check_rule` refuses.
+    """
+    size = "dt" if result.mode == "time" else "h"
+    fresh = []
+    for v in result.verdicts:
+        if v.norm == "value":
+            ok = [r for r in result.levels if r.ok and v.field in r.quantities]
+            errors = [r.quantities[v.field]["error"] for r in ok]
+            scale = abs(ok[-1].quantities[v.field].get("exact", 1.0)) or 1.0 if ok else 1.0
+        else:
+            ok = [r for r in result.levels if r.ok and v.field in r.errors]
+            errors = [r.errors[v.field][v.norm] for r in ok]
+            scale = max((r.scale.get(v.field, 1.0) for r in ok), default=1.0)
+        fresh.append(judge(v.field, v.norm, [r.h for r in ok], errors, v.formal, v.tolerance, scale=scale,
+                           levels=[r.level for r in ok], at_least=v.at_least, axis=size))
+    return dataclasses.replace(result, verdicts=tuple(fresh))
 
 
 def _stated(solver, name):

@@ -235,7 +235,7 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, 
     --------
     >>> v = judge("u", "L2", [0.1, 0.05, 0.025], [1e-2, 2.6e-3, 6.4e-4], 2, 0.1)
     >>> v.status, v.kind, round(v.observed, 2)
-    ('confirmed', 'formal order', 1.97)
+    ('confirmed', 'formal order', 1.99)
     """
     check_rule(formal, tolerance, f"{field} {norm}")
     formal, tolerance = float(formal), float(tolerance)
@@ -265,15 +265,15 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, 
         return verdict("inconclusive", f"{left_text}: too few levels left to measure an order{why}", "exact",
                        left=left)
     h, e, kept = h[keep], e[keep], [lv for lv, k in zip(levels, keep) if k]
-    j = find_floor(h, e, formal) if len(h) >= 3 else None
+    found = find_floor(h, e, formal) if len(h) >= 3 else None
     prefix = (left_text + ". ") if left_text else ""
-    if j is None:
+    if found is None:
         status, kind, p, interval, reason = _decide(h, e, kept, formal, tolerance, at_least)
         return verdict(status, prefix + reason, kind, p, interval, left)
     # a floor from level kept[j + 1] on: name it, judge the levels before it
-    tail = e[j:]
+    j, value = found
+    tail = e[max(j, 0):]
     grows = tail[-1] > 1.1 * tail.min() and e[-1] > e[-2]
-    value = float(np.median(e[j + 1:]))
     sizes = ", ".join(f"{x:g}" for x in h[j + 1:])
     if grows or value <= 1e3 * _EPS * max(float(scale), 1e-300):
         kind = "round-off floor"
@@ -283,7 +283,7 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, 
     else:
         kind = "frozen floor"
         other = "spatial error of the fixed grid" if axis == "dt" else "time error of the fixed time step"
-        what = (f"the errors stop falling at about {value:.2g} from level {kept[j + 1]} on, far above round-off: an "
+        what = (f"the errors level off at about {value:.2g} from level {kept[j + 1]} on, far above round-off: an "
                 f"error that does not shrink with {axis} is left, such as the {other} or, if the solver iterates, "
                 f"iteration error; remove it (refine the fixed resolution, or converge the iterations further) or "
                 f"drop the levels with {axis} = {sizes}")
@@ -294,6 +294,9 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, 
         if status in ("below", "above"):
             return verdict(status, f"{prefix}{reason}. Then {what}", "another order", p, interval, left)
         return verdict("inconclusive", f"{prefix}before the floor, {reason}; but {what}", kind, p, interval, left)
+    if len(pre) < 2:
+        return verdict("inconclusive", f"{prefix}no level lies clear of a floor, so no order can be judged: {what}",
+                       kind, None, None, left)
     p = power_fit(h[pre], e[pre]).p
     return verdict("inconclusive", f"{prefix}observed {_num(p)} on {_span(kept[:j + 1])} before a floor, too few "
                                    f"levels to judge: {what}", kind, p, None, left)
