@@ -48,6 +48,9 @@ _SMOOTH = 0.02      # rms of ln e below which the levels lie on one power law  #
 _EXPLAINED = 3.0    # the next term must cut the rms residual this many times to explain a bend
 _IN_RANGE = 2       # levels in the asymptotic range (the finest pair) needed to confirm from a bent sequence
 _EPS = np.finfo(float).eps
+#: A floor that grows under refinement is round-off only this small relative to the solution; round-off of a
+#: solve grows like cond(A) eps, about 1e-10 to 1e-8 for a million unknowns  # common practice
+_ROUNDOFF_GROWTH = 1e-7
 
 
 @dataclass(frozen=True)
@@ -275,7 +278,8 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, 
     tail = e[max(j, 0):]
     grows = tail[-1] > 1.1 * tail.min() and e[-1] > e[-2]
     sizes = ", ".join(f"{x:g}" for x in h[j + 1:])
-    if grows or value <= 1e3 * _EPS * max(float(scale), 1e-300):
+    size = max(float(scale), 1e-300)
+    if (grows and value <= _ROUNDOFF_GROWTH * size) or value <= 1e3 * _EPS * size:
         kind = "round-off floor"
         what = (f"the errors stop falling at about {value:.2g} and {'grow' if grows else 'stay'} as {axis} shrinks "
                 f"from level {kept[j + 1]} on: round-off, which grows with the number of unknowns; finer levels "
