@@ -149,7 +149,8 @@ def find_floor(h, e, formal):
     pair orders stay below a fifth of the formal order) after the error
     fell at at least half the formal order on coarser levels; or, with four
     or more levels, a fit ``e = C h**p + F`` that explains the levels
-    (three times smaller rms residual than the power law) with ``F`` at
+    (three times smaller rms residual than the power law, and smaller
+    than a fit with the next term) with ``F`` at
     least a fifth of the finest error. Levels before the floor are those whose
     error is more than four times ``F`` (at least the finest one is not).
     """
@@ -162,7 +163,9 @@ def find_floor(h, e, formal):
         return j, float(np.median(e[j + 1:]))
     if len(h) >= 4:
         p, F, rms = floor_fit(h, e, max(8.0, 3.0 * formal))
-        if F >= 0.2 * e[-1] and rms * 3 < power_fit(h, e).rms and p >= _FALLING * formal:
+        # the floor must explain the levels better than the power law and than a next term of the series
+        bend = min(bend_fit(h, e, q, max(8.0, 3.0 * formal)).rms for q in (1.0, 2.0))
+        if F >= 0.2 * e[-1] and rms * 3 < power_fit(h, e).rms and rms < bend and p >= _FALLING * formal:
             before = np.nonzero(e > 4 * F)[0]
             return (min(int(before[-1]), len(h) - 2) if before.size else -1), F
     return None

@@ -45,6 +45,9 @@ KINDS = ("formal order", "another order", "scattered", "pre-asymptotic", "round-
          "too few levels", "exact")
 
 _SMOOTH = 0.02      # rms of ln e below which the levels lie on one power law  # common practice (2 % error noise)
+#: Exponents q of the next term h^(p+q) tried: 1 and 2, as in the Taylor series of a scheme  # common practice
+_NEXT_TERMS = (1.0, 2.0)
+_RIVAL = 2.0        # a next term whose rms residual is within this factor of the best one fits as well
 _EXPLAINED = 3.0    # the next term must cut the rms residual this many times to explain a bend
 _IN_RANGE = 2       # levels in the asymptotic range (the finest pair) needed to confirm from a bent sequence
 _EPS = np.finfo(float).eps
@@ -135,7 +138,7 @@ def _decide(h, e, levels, formal, tol, at_least):
     bends = ()
     if n >= 4 and pf.rms > _SMOOTH:
         p_max = max(8.0, 3.0 * formal)
-        bends = tuple(bend_fit(h, e, q, p_max) for q in (1, 2))
+        bends = tuple(bend_fit(h, e, q, p_max) for q in _NEXT_TERMS)
         best = min(bends, key=lambda b: b.rms)
         if best.rms * _EXPLAINED < pf.rms:
             p, low, high, kind = best.p, best.low, best.high, "pre-asymptotic"
@@ -150,9 +153,10 @@ def _decide(h, e, levels, formal, tol, at_least):
         off_low, off_high = p < lo_band, p > hi_band
     else:
         off_low, off_high = high < lo_band, low > hi_band
-        if bends and kind == "pre-asymptotic":     # off only if neither next term can bring the formal order back
-            off_low = off_low and all(b.high < lo_band for b in bends)
-            off_high = off_high and all(b.low > hi_band for b in bends)
+        if bends and kind == "pre-asymptotic":     # off only if no next term that fits as well brings it back
+            rivals = [b for b in bends if b.rms <= _RIVAL * min(c.rms for c in bends)]
+            off_low = off_low and all(b.high < lo_band for b in rivals)
+            off_high = off_high and all(b.low > hi_band for b in rivals)
     edges = (lo_band, hi_band)
     shown = f"observed {_num(p, *edges)}" + (f" [{_num(low, *edges)}, {_num(high, *edges)}]"
                                              if interval else "") + f" ({note})"
