@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["PowerFit", "BendFit", "power_fit", "bend_fit", "floor_fit", "find_floor", "CONFIDENCE"]
+__all__ = ["PowerFit", "BendFit", "power_fit", "bend_fit", "fixed_fit", "floor_fit", "find_floor", "CONFIDENCE"]
 
 #: Confidence level of every interval of the observed order.
 CONFIDENCE = 0.95  # common practice
@@ -101,6 +101,16 @@ def _scan(h, e, p_max, second):
         ss = (sw * (C[:, None] * a + D[:, None] * b - 1.0) ** 2).sum(1)
     ss[~np.isfinite(ss)] = np.inf
     return ps, ss, C, D
+
+
+def fixed_fit(h, e, p, q):
+    """Relative rms residual of ``e = C h**p + D h**(p+q)`` with ``p`` given: how well the levels follow
+    a known leading order and the next term of its series."""
+    h, e = np.asarray(h, float), np.asarray(e, float)
+    w = _weights(h)
+    A = np.column_stack([h ** p / e, h ** (p + q) / e]) * np.sqrt(w)[:, None]
+    coef, *_ = np.linalg.lstsq(A, np.sqrt(w), rcond=None)
+    return math.sqrt(float(np.sum((A @ coef - np.sqrt(w)) ** 2)) / len(h))
 
 
 def floor_fit(h, e, p_max):

@@ -12,16 +12,22 @@ verdict is decided from error models fitted over all levels that succeeded
    other kind, or iteration error). The levels before it are judged; a floor
    leaves the verdict inconclusive unless those levels show the order is off.
 3. A weighted least-squares line of ``ln e`` on ``ln h`` gives the observed
-   order with a 95 % interval (Eca and Hoekstra 2014). With four or more
+   order with a 95 % interval (Eca and Hoekstra 2014); so does the same line
+   over the finest three levels alone, which, when they lie on one power
+   law, are taken as the asymptotic range (Roy 2005). With four or more
    levels that bend away from that line, a model with the next term,
    ``e = C h**p + D h**(p+q)`` for ``q`` = 1 and 2, gives the asymptotic order;
    levels where the next term still moves the local order by more than the
    tolerance are outside the asymptotic range (Roy 2005). Residuals that the
    next term does not explain are *scattered* (noise around a trend).
 4. The order is off (``below``/``above``) only when the interval lies
-   outside ``formal +- tolerance``; confirmed when the estimate lies within
-   it (for scattered levels: the interval holds the formal order and is
-   narrower than a quarter of it each side); otherwise inconclusive.
+   outside ``formal +- tolerance`` (and, for levels that bend, the intervals
+   of every next term that fits as well and of the finest three levels).
+   It is confirmed when the estimate lies within it (for scattered levels:
+   when the interval also holds the formal order and lies within a quarter
+   of it), or when the levels follow ``C h**formal + D h**(formal+q)`` to
+   2 % (converging to the formal order from outside the asymptotic range);
+   otherwise inconclusive.
 
 A rule may be one-sided (``at_least``): anything from ``formal - tolerance``
 up is confirmed, for superconvergent functionals and nodal sampling.
@@ -32,7 +38,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errormodel import CONFIDENCE, bend_fit, find_floor, power_fit
+from .errormodel import CONFIDENCE, bend_fit, find_floor, fixed_fit, power_fit
 from .errors import AnalysisError
 
 __all__ = ["Verdict", "judge", "check_rule", "ROUNDOFF", "KINDS"]
@@ -49,7 +55,6 @@ _SMOOTH = 0.02      # rms of ln e below which the levels lie on one power law  #
 _NEXT_TERMS = (1.0, 2.0)
 _RIVAL = 2.0        # a next term whose rms residual is within this factor of the best one fits as well
 _EXPLAINED = 3.0    # the next term must cut the rms residual this many times to explain a bend
-_IN_RANGE = 2       # levels in the asymptotic range (the finest pair) needed to confirm from a bent sequence
 _EPS = np.finfo(float).eps
 #: A floor that grows under refinement is round-off only this small relative to the solution; round-off of a
 #: solve grows like cond(A) eps, about 1e-10 to 1e-8 for a million unknowns  # common practice
@@ -136,15 +141,36 @@ def _decide(h, e, levels, formal, tol, at_least):
     pf = power_fit(h, e)
     p, low, high, kind, note = pf.p, pf.low, pf.high, "formal order", ""
     bends = ()
-    if n >= 4 and pf.rms > _SMOOTH:
+    fine = power_fit(h[-3:], e[-3:]) if n >= 4 else None    # the finest three levels: the asymptotic range
+    if fine is not None and fine.rms <= _SMOOTH and lo_band <= fine.p <= hi_band and not (
+            pf.rms <= _SMOOTH and lo_band <= pf.p <= hi_band):
+        return "confirmed", "formal order", fine.p, (fine.low, fine.high), (
+            f"observed {_num(fine.p, lo_band, hi_band)} [{_num(fine.low, lo_band, hi_band)}, "
+            f"{_num(fine.high, lo_band, hi_band)}] (weighted least squares over {_span(levels[-3:])}); "
+            + (f"formal {formal:g}, at least {lo_band:g}" if at_least else f"formal {formal:g} +- {tol:g}")
+            + f"; within the tolerance on the finest three levels, which lie on one power law (in the asymptotic "
+            f"range); over all {n} levels the order is {_num(pf.p)}, the coarser levels are not yet in that range")
+    if fine is not None and not (pf.rms <= _SMOOTH and lo_band <= pf.p <= hi_band):
+        follows = min((fixed_fit(h, e, formal, q), q) for q in _NEXT_TERMS)
+        if follows[0] <= _SMOOTH:
+            return "confirmed", "formal order", fine.p, (fine.low, fine.high), (
+                f"observed {_num(fine.p)} [{_num(fine.low)}, {_num(fine.high)}] on the finest three levels, "
+                f"{_num(pf.p)} over {_span(levels)} (weighted least squares); "
+                + (f"formal {formal:g}, at least {lo_band:g}" if at_least else f"formal {formal:g} +- {tol:g}")
+                + f"; converging to the formal order: the errors follow C h^{formal:g} + D h^{formal + follows[1]:g} "
+                f"to {100 * follows[0]:.2g} % (rms), so the levels approach it from outside the asymptotic range "
+                "(add a finer level to see it settle)")
+    if n >= 4 and (pf.rms > _SMOOTH or not lo_band <= pf.p <= hi_band):
         p_max = max(8.0, 3.0 * formal)
         bends = tuple(bend_fit(h, e, q, p_max) for q in _NEXT_TERMS)
         best = min(bends, key=lambda b: b.rms)
         if best.rms * _EXPLAINED < pf.rms:
             p, low, high, kind = best.p, best.low, best.high, "pre-asymptotic"
             note = f"a fit with the next term h^(p+{best.q:g}) over {_span(levels)}"
-        else:
+        elif pf.rms > _SMOOTH:
             kind = "scattered"
+        else:
+            bends = ()
     if not note:
         note = (f"weighted least squares over {_span(levels)}" if n > 2 else
                 f"{_span(levels)}; two levels give no interval")
@@ -157,6 +183,9 @@ def _decide(h, e, levels, formal, tol, at_least):
             rivals = [b for b in bends if b.rms <= _RIVAL * min(c.rms for c in bends)]
             off_low = off_low and all(b.high < lo_band for b in rivals)
             off_high = off_high and all(b.low > hi_band for b in rivals)
+        if fine is not None and kind == "pre-asymptotic":   # nor the finest three levels on their own
+            off_low = off_low and fine.high < lo_band
+            off_high = off_high and fine.low > hi_band
     edges = (lo_band, hi_band)
     shown = f"observed {_num(p, *edges)}" + (f" [{_num(low, *edges)}, {_num(high, *edges)}]"
                                              if interval else "") + f" ({note})"
@@ -186,19 +215,17 @@ def _decide(h, e, levels, formal, tol, at_least):
                                                    f"in ln error) and {why}; add levels to narrow it")
     if kind == "pre-asymptotic":
         best = min(bends, key=lambda b: b.rms)
-        in_range = 0
+        in_range = 0        # finest levels where the next term moves the local order by less than the tolerance
         for loc in reversed(best.local):
             if abs(loc - best.p) > tol:
                 break
             in_range += 1
-        if within and in_range >= _IN_RANGE:
-            return "confirmed", "formal order", p, interval, (f"{shown}; {rule}; converging to the formal order, "
-                                                              f"with the finest {in_range} levels in the "
-                                                              "asymptotic range")
+        where = (f"{'only ' if in_range < len(levels) else ''}the finest {in_range} of {len(levels)} levels "
+                 f"{'is' if in_range == 1 else 'are'} in the asymptotic range (the next term moves their order by "
+                 f"less than {tol:g})")
         return "inconclusive", kind, p, interval, (
-            f"{shown}; {rule}; only the finest {in_range} level{'s' if in_range != 1 else ''} "
-            f"{'are' if in_range != 1 else 'is'} in the asymptotic range (where the next term moves the order by "
-            f"less than {tol:g}) and {_IN_RANGE} are needed; the levels cannot decide yet: add a finer level")
+            f"{shown}; {rule}; {where}, and the levels follow neither the formal order with a next term nor "
+            "another order clearly enough to decide: add a finer level")
     if within:
         extra = ""
         if p > formal + tol:
