@@ -160,17 +160,15 @@ def _decide(h, e, levels, formal, tol, at_least):
                 + f"; converging to the formal order: the errors follow C h^{formal:g} + D h^{formal + follows[1]:g} "
                 f"to {100 * follows[0]:.2g} % (rms), so the levels approach it from outside the asymptotic range "
                 "(add a finer level to see it settle)")
-    if n >= 4 and (pf.rms > _SMOOTH or not lo_band <= pf.p <= hi_band):
+    if n >= 4 and pf.rms > _SMOOTH:
         p_max = max(8.0, 3.0 * formal)
         bends = tuple(bend_fit(h, e, q, p_max) for q in _NEXT_TERMS)
         best = min(bends, key=lambda b: b.rms)
         if best.rms * _EXPLAINED < pf.rms:
             p, low, high, kind = best.p, best.low, best.high, "pre-asymptotic"
             note = f"a fit with the next term h^(p+{best.q:g}) over {_span(levels)}"
-        elif pf.rms > _SMOOTH:
-            kind = "scattered"
         else:
-            bends = ()
+            kind = "scattered"
     if not note:
         note = (f"weighted least squares over {_span(levels)}" if n > 2 else
                 f"{_span(levels)}; two levels give no interval")
