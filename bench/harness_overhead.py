@@ -107,11 +107,12 @@ def _child(argv):
     import mmsverify.cli as cli
     import mmsverify.cli._run as run_cmd
     from importlib import import_module
-    # modules by full name: the package exports functions of the same names (mmsverify.derive, ...)
+    # modules by full name: the package exports functions of the same names (mmsverify.problem.derive, ...)
     cache_mod, derive_mod, problem_mod, study, progress_mod = (
-        import_module(f"mmsverify.{m}") for m in ("cache", "derive", "problem", "study", "progress"))
-    import_module("mmsverify.runner")  # imported by run_study on first use; not part of the timed run
-    files_mod = import_module("mmsverify.report.files")
+        import_module(f"mmsverify.{m}") for m in ("execute.cache", "problem.derive", "problem.record",
+                                                  "study.refinement", "cli.progress"))
+    import_module("mmsverify.execute.runner")  # imported by run_study on first use; not part of the timed run
+    files_mod = import_module("mmsverify.outputs.report.files")
     import solvers_demo.fd.poisson  # noqa: F401  (the solver's modules and libraries: their imports are not harness)
     import pyamg  # noqa: F401
     import scipy.fft  # noqa: F401

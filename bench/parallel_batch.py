@@ -10,7 +10,7 @@ Three batches, each run with one worker and with two, in interleaved rounds
    ``python -m mmsverify mistakes --workers N``, end to end in a new
    process (interpreter start and imports included);
 3. ``studies``: a batch of independent studies of bundled problems and
-   solvers through ``mmsverify.runner.run_studies(jobs, workers=N)``.
+   solvers through ``mmsverify.execute.runner.run_studies(jobs, workers=N)``.
 
 Next to the wall seconds: the CPU seconds of all processes (this one and
 its workers), which show how much work there was, and the best ratio the
@@ -73,7 +73,7 @@ def _command(workers, keys):
 
 
 def _studies(workers, jobs):
-    from mmsverify.runner import run_studies
+    from mmsverify.execute.runner import run_studies
     results = run_studies([dict(problem=p, solver=s, **kw) for p, s, kw in jobs], workers=workers)
     for (p, s, _), r in zip(jobs, results):
         if not r.passed:

@@ -8,11 +8,11 @@ import numpy as np
 import pytest
 
 from mmsverify import Solution, run_study
-from mmsverify.baseline import (Baseline, baseline_from_study, check_baseline, compare, load_baseline,
+from mmsverify.outputs.baseline import (Baseline, baseline_from_study, check_baseline, compare, load_baseline,
                                 save_baseline)
 from mmsverify.cli import main
 from mmsverify.errors import MMSError, ProblemError
-from mmsverify.problem import PROBLEM_DIR
+from mmsverify.problem.record import PROBLEM_DIR
 from solvers_demo.fd import poisson
 
 
@@ -46,7 +46,7 @@ def test_cli_check_passes_on_correct_solver_and_catches_seeded_mistake(tmp_path,
 def test_cli_check_reports_bad_input(tmp_path, capsys):
     assert main(["baseline", "check", str(tmp_path / "missing.json")]) == 2
     assert "no such baseline file" in capsys.readouterr().err
-    (tmp_path / "study.json").write_text('{"format": "mmsverify.study"}')
+    (tmp_path / "study.json").write_text('{"format": "mmsverify.study.refinement"}')
     assert main(["baseline", "check", str(tmp_path / "study.json")]) == 2
     assert "not an mmsverify baseline" in capsys.readouterr().err
 

@@ -1,4 +1,4 @@
-"""Tests of mmsverify.estimate: solution verification of quantities without an
+"""Tests of mmsverify.analysis.estimate: solution verification of quantities without an
 exact solution, level-table files, profile files and the planner."""
 
 import math
@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from mmsverify.errors import AnalysisError
-from mmsverify.estimate import (
+from mmsverify.analysis.estimate import (
     ACCEPTANCE_LEVEL,
     assess,
     assess_table,
@@ -17,7 +17,7 @@ from mmsverify.estimate import (
     plan,
     within_acceptance,
 )
-from mmsverify.gci import gci_profile
+from mmsverify.analysis.gci import gci_profile
 
 from _helpers import no_nan, printed
 

@@ -5,7 +5,7 @@ import json
 import pytest
 
 from mmsverify.cli import main
-from mmsverify.estimate import assess
+from mmsverify.analysis.estimate import assess
 
 from _helpers import write_profiles
 

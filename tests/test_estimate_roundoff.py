@@ -1,13 +1,13 @@
 """Quantities converged to round-off: no order or GCI from noise, the spread of
-the finest values as the band (mmsverify.estimate.assess, classify_convergence)."""
+the finest values as the band (mmsverify.analysis.estimate.assess, classify_convergence)."""
 
 import numpy as np
 import pytest
 
 from mmsverify.cli import main
-from mmsverify.convergence import ROUNDOFF_LEVEL, classify_convergence
+from mmsverify.analysis.convergence import ROUNDOFF_LEVEL, classify_convergence
 from mmsverify.errors import AnalysisError
-from mmsverify.estimate import assess
+from mmsverify.analysis.estimate import assess
 
 from _helpers import no_nan
 

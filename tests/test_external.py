@@ -14,8 +14,8 @@ import pytest
 
 import mmsverify
 from mmsverify import Case, SolverError, derive, plan_grids, run_study
-from mmsverify.export import write_export
-from mmsverify.external import ExternalSolver, ProgramFailed, expand_command, read_solution, write_case
+from mmsverify.outputs.export import write_export
+from mmsverify.execute.external import ExternalSolver, ProgramFailed, expand_command, read_solution, write_case
 
 REPO = Path(__file__).resolve().parent.parent
 PY = sys.executable

@@ -1,4 +1,4 @@
-"""Tests of mmsverify.gci: Richardson extrapolation and GCI against published
+"""Tests of mmsverify.analysis.gci: Richardson extrapolation and GCI against published
 worked examples, closed-form sequences, and refusal of invalid data."""
 
 import math
@@ -9,7 +9,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from mmsverify.errors import AnalysisError
-from mmsverify.gci import gci, gci_profile, plot_profile, representative_h
+from mmsverify.analysis.gci import gci, gci_profile, plot_profile, representative_h
 
 from _helpers import no_nan, printed
 

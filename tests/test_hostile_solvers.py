@@ -2,7 +2,7 @@
 
 Faults are injected per level. All levels of a run share one small grid
 and differ only in their level number, so one call of
-:func:`~mmsverify.runner.run_levels` exercises every fault of a kind, in
+:func:`~mmsverify.execute.runner.run_levels` exercises every fault of a kind, in
 this process and in worker processes; whole studies show that the others
 are still judged. Each test checks the reason recorded for each level.
 """
@@ -20,12 +20,12 @@ import numpy as np
 import pytest
 
 from mmsverify import Case, Solution, derive, run_study
-from mmsverify.external import ExternalSolver
-from mmsverify.grids import Grid
-from mmsverify.runner import run_levels
+from mmsverify.execute.external import ExternalSolver
+from mmsverify.execute.grids import Grid
+from mmsverify.execute.runner import run_levels
 from solvers_demo.fd.poisson import solve as fd_solve
 
-PROBLEM = "plate-poisson"  # 2-D Poisson on the unit square (problems/plate-poisson.toml)
+PROBLEM = "plate-poisson"  # 2-D Poisson on the unit square (mmsverify/problem/bundled/plate-poisson.toml)
 PY = sys.executable
 LIMIT = 0.5                # seconds per level where a fault hangs
 
@@ -355,8 +355,8 @@ def test_every_external_program_fault_is_recorded_against_its_level(tmp_path, ou
 
 
 def test_the_study_folder_holds_every_file_even_for_hostile_problem_names(tmp_path, monkeypatch):
-    from mmsverify.problem import problem_from_text
-    text = (Path(__file__).resolve().parent.parent / "problems" / "plate-poisson.toml").read_text()
+    from mmsverify.problem.record import problem_from_text
+    text = (Path(__file__).resolve().parent.parent / "mmsverify" / "problem" / "bundled" / "plate-poisson.toml").read_text()
     text = text.replace('name = "plate-poisson"', 'name = "../../../escaped/../../x"')
     problem = problem_from_text(text, "hostile-name.toml")
     monkeypatch.chdir(tmp_path)

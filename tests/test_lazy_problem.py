@@ -12,7 +12,7 @@ import sys
 import pytest
 import sympy as sp
 
-from mmsverify.problem import load_problem
+from mmsverify.problem.record import load_problem
 
 
 def _warm(tmp_path, monkeypatch, name="plate-poisson"):
@@ -80,7 +80,7 @@ def test_warm_study_never_builds_sympy_expressions(tmp_path):
     script = (
         "import sys\n"
         "from mmsverify import run_study\n"
-        "from mmsverify.problem import Problem\n"
+        "from mmsverify.problem.record import Problem\n"
         "built = []\n"
         "orig = Problem.__getattr__\n"
         "def spy(self, name):\n"

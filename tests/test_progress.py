@@ -6,9 +6,9 @@ import pytest
 
 from mmsverify import run_study
 from mmsverify.cli import build_parser
-from mmsverify.grids import Grid
-from mmsverify.progress import NORMAL, QUIET, VERBOSE, LevelProgress, interactive, verbosity
-from mmsverify.study import LevelResult
+from mmsverify.execute.grids import Grid
+from mmsverify.cli.progress import NORMAL, QUIET, VERBOSE, LevelProgress, interactive, verbosity
+from mmsverify.study.refinement import LevelResult
 
 
 class _Tty(io.StringIO):

@@ -86,7 +86,7 @@ _NOT_REPORTED = ("declared in the problem file but not reported by the solver: d
 
 def test_declared_quantities_the_solver_never_reports_are_one_note_not_a_failure(tmp_path):
     # common practice: a functional left out is a gap in the evidence, not a wrong order
-    from mmsverify.report.files import read_json, study_to_data, write_json
+    from mmsverify.outputs.report.files import read_json, study_to_data, write_json
     r = run_study("plate-poisson", _fields_only, levels=3)
     assert r.passed and r.quantities == ()
     assert r.missing_quantities == {"deflection": (0, 1, 2), "edge_slope": (0, 1, 2)}
@@ -142,7 +142,7 @@ _fields_only.name = "poisson2d-fields-only"    # what the study prints as the so
 
 def test_exact_values_are_kept_in_the_derivation_cache(monkeypatch):
     from mmsverify import _diskcache
-    from mmsverify.derive import Manufactured
+    from mmsverify.problem.derive import Manufactured
     first = derive("plate-poisson").exact_quantity("deflection")
     _diskcache.flush()
     monkeypatch.setattr(Manufactured, "_exact_quantity", lambda *a: pytest.fail("worked out again"))

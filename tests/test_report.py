@@ -13,15 +13,15 @@ import pytest
 
 from mmsverify import run_study
 from mmsverify.errors import MMSError
-from mmsverify.norms import NORMS
-from mmsverify.report import CAUTION, format_study, write_reports
-from mmsverify.report.files import (CSV_COLUMNS, csv_text, read_json, study_from_data, study_to_data,
+from mmsverify.execute.norms import NORMS
+from mmsverify.outputs.report import CAUTION, format_study, write_reports
+from mmsverify.outputs.report.files import (CSV_COLUMNS, csv_text, read_json, study_from_data, study_to_data,
                                     write_csv, write_json)
-from mmsverify.report.html import html_text
-from mmsverify.report.markdown import markdown_text, write_markdown
-from mmsverify.report.plots import (NORM_STYLE, OKABE_ITO, cost_figure, error_figure, error_map_figure,
+from mmsverify.outputs.report.html import html_text
+from mmsverify.outputs.report.markdown import markdown_text, write_markdown
+from mmsverify.outputs.report.plots import (NORM_STYLE, OKABE_ITO, cost_figure, error_figure, error_map_figure,
                                     figure_bytes, order_figure, study_figures)
-from mmsverify.report.pointwise import finest_error, pointwise_error
+from mmsverify.outputs.report.pointwise import finest_error, pointwise_error
 from solvers_demo.fd import poisson
 
 DOCS = Path(__file__).resolve().parents[1] / "docs"
@@ -202,7 +202,7 @@ def test_error_map_shows_the_boundary_mistake(good, bad):
 def test_error_map_one_dimensional_is_a_line(tmp_path):
     problem = tmp_path / "rod.toml"
     problem.write_text('[domain]\nx = [0, 1]\n[fields]\nu = "sin(2*x) + x"\n[operator]\nkind = "poisson"\n')
-    from mmsverify.grids import Grid
+    from mmsverify.execute.grids import Grid
     pw = pointwise_error(problem, poisson.solve, Grid(0, (0.0,), (1.0,), (16,)))
     line = _lines(error_map_figure(pw))["map-u"]
     assert np.allclose(np.sort(line.get_ydata()), np.sort(pw["u"].error))

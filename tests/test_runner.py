@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from mmsverify import Solution, SolverError, run_study
-from mmsverify.runner import run_studies
+from mmsverify.execute.runner import run_studies
 from solvers_demo.fd.poisson import solve as fd_solve
 
 PROBLEM = "plate-poisson"  # 2-D Poisson, second order; the bundled solver confirms it on 4 levels
@@ -140,7 +140,7 @@ def _thread_counts(_):
 def test_process_pool_workers_share_the_cores(monkeypatch):
     # common practice: N processes on C cores run at most C // N BLAS threads each, or they oversubscribe
     pytest.importorskip("threadpoolctl")
-    from mmsverify.runner import _cores, process_pool
+    from mmsverify.execute.runner import _cores, process_pool
     for v in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         monkeypatch.delenv(v, raising=False)
     share = max(1, _cores() // 2)

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from mmsverify import Grid, GridError, Solution, SolverError, refinement, run_study
-from mmsverify.grids import check_refinement
+from mmsverify.execute.grids import check_refinement
 
 
 @pytest.fixture(scope="module")
@@ -213,7 +213,7 @@ def test_a_stated_time_order_is_noted_where_it_was_used():
 
 def test_no_order_note_when_the_file_states_no_order():
     # a file without [order] holds defaults, not a claim the solver could contradict
-    from mmsverify.problem import load_problem, problem_from_text
+    from mmsverify.problem.record import load_problem, problem_from_text
     text = load_problem("plate-poisson").source
     with open(text, encoding="utf-8") as fh:
         body = fh.read()

@@ -10,8 +10,9 @@ import numpy as np
 import pytest
 
 from mmsverify.errors import AnalysisError
-from mmsverify.errormodel import bend_fit, power_fit
-from mmsverify.verdict import check_rule, judge
+from mmsverify.analysis.errormodel import bend_fit, power_fit
+from mmsverify.analysis.verdict import judge
+from mmsverify.problem.rules import check_rule
 
 H = [0.1, 0.05, 0.025, 0.0125, 0.00625]
 
