@@ -91,13 +91,13 @@ def _split(args, cache):
 
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--tiny", action="store_true", help="smoke run: demo with 3 levels")
+    ap.add_argument("--tiny", action="store_true", help="smoke run: demo with 4 levels")
     args = ap.parse_args(argv)
     demo = ["demo"]
     if args.tiny:
         helptext = subprocess.run([sys.executable, "-m", "mmsverify", "demo", "--help"], capture_output=True,
                                   text=True, cwd=ROOT).stdout
-        demo += ["--levels", "3"] if "--levels" in helptext else []
+        demo += ["--levels", "4"] if "--levels" in helptext else []
     rows, splits = [], {}
     with tempfile.TemporaryDirectory() as cache:
         for label in ("empty cache (first run)", "filled cache"):

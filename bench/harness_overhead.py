@@ -33,7 +33,7 @@ Children run with Python's default bytecode cache (``PYTHONDONTWRITEBYTECODE``
 removed from their environment), as a user's Python runs.
 
 Run: ``python bench/harness_overhead.py [--base 128] [--levels 4] [--repeats 2]``;
-``--tiny`` is a smoke run (base 8, 3 levels). The stage tables show the
+``--tiny`` is a smoke run (base 8, 4 levels). The stage tables show the
 fastest run per state; the spread table the harness share of every run
 (the solver's own time moves by 10-20 % between runs, and the share with it).
 """
@@ -212,10 +212,10 @@ def main(argv=None):
     ap.add_argument("--base", type=int, default=128, help="cells per direction on the coarsest level")
     ap.add_argument("--levels", type=int, default=4)
     ap.add_argument("--repeats", type=int, default=2, help="runs per cache state; the fastest total is shown")
-    ap.add_argument("--tiny", action="store_true", help="smoke run: base 8, 3 levels, 1 repeat")
+    ap.add_argument("--tiny", action="store_true", help="smoke run: base 8, 4 levels, 1 repeat")
     args = ap.parse_args(argv)
     if args.tiny:
-        args.base, args.levels, args.repeats = 8, 3, 1
+        args.base, args.levels, args.repeats = 8, 4, 1
     load0 = os.getloadavg()
     runs, shares = {}, {}
     with tempfile.TemporaryDirectory() as tmp:

@@ -43,8 +43,8 @@ JOBS = (  # longest first (seconds in one study on this machine), so the pool is
     ("fin-diffusion", "fd-diffusion", dict(levels=4, base_cells=64)),                           # ~0.7
     ("plume-advection", "fv-advection-unlimited", dict(levels=4, base_cells=24)),               # ~0.4
 )
-TINY_JOBS = (("plate-poisson", "poisson2d", dict(levels=3, base_cells=8)),
-             ("fin-diffusion", "fd-diffusion", dict(levels=3, base_cells=8)))
+TINY_JOBS = (("plate-poisson", "poisson2d", dict(levels=4, base_cells=8)),
+             ("fin-diffusion", "fd-diffusion", dict(levels=4, base_cells=8)))
 TINY_KEYS = ["fd-source-shifted", "ok-fd-poisson-2d", "ok-heat-crank-nicolson", "ok-adv-central"]
 
 

@@ -18,7 +18,7 @@ def test_demo_passes_the_correct_solver_and_catches_the_mistake(capsys):
 
 def test_run_writes_json_and_exit_code_reflects_verdict(tmp_path, capsys):
     out = tmp_path / "r.json"
-    assert main(["run", "plate-poisson", "poisson2d", "--levels", "3", "--json", str(out)]) == 0
+    assert main(["run", "plate-poisson", "poisson2d", "--levels", "4", "--json", str(out)]) == 0
     d = json.loads(out.read_text())
     assert d["passed"] and d["solver"] == "poisson2d"
     assert main(["run", "plate-poisson", "poisson2d-neumann1", "--levels", "3"]) == 1
@@ -61,7 +61,7 @@ def test_run_warns_ahead_of_a_study_whose_design_cannot_catch_mistakes(capsys):
 def test_quiet_run_prints_the_headline_and_json_reads_back(tmp_path, capsys):
     from mmsverify.outputs.report.files import read_json
     out = tmp_path / "q.json"
-    assert main(["run", "plate-poisson", "poisson2d", "--levels", "3", "--quiet", "--json", str(out)]) == 0
+    assert main(["run", "plate-poisson", "poisson2d", "--levels", "4", "--quiet", "--json", str(out)]) == 0
     assert capsys.readouterr().out.strip() == "PASS  plate-poisson  solved by  poisson2d"
     assert read_json(out).passed
 

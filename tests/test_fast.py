@@ -199,7 +199,7 @@ def test_first_run_of_a_new_problem_builds_no_sympy_expression(tmp_path):
     """A cold study of a problem the fast engine reads never imports sympy.tensor (sympy's first sum)."""
     script = ("import sys\n"
               "from mmsverify import run_study\n"
-              "r = run_study('plate-poisson', 'poisson2d', levels=3, base_cells=8)\n"
+              "r = run_study('plate-poisson', 'poisson2d', levels=4, base_cells=8)\n"
               "print(r.passed, 'sympy.tensor.tensor' in sys.modules)\n")
     env = {**os.environ, "MMSVERIFY_CACHE": str(tmp_path / "empty-cache")}
     res = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, env=env, timeout=120)

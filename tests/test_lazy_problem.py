@@ -88,7 +88,7 @@ def test_warm_study_never_builds_sympy_expressions(tmp_path):
         "        built.append(name)\n"
         "    return orig(self, name)\n"
         "Problem.__getattr__ = spy\n"
-        "r = run_study('plate-poisson', 'poisson2d', levels=3, base_cells=8)\n"
+        "r = run_study('plate-poisson', 'poisson2d', levels=4, base_cells=8)\n"
         "print(r.passed, built, 'sympy.tensor.tensor' in sys.modules)\n")
     env = {"MMSVERIFY_CACHE": str(tmp_path / "cache"), "PATH": "/usr/bin:/bin"}
     import os

@@ -50,9 +50,9 @@ _ADVICE = {
         "Richardson extrapolation and the GCI apply. Check that the observed order is near the formal "
         "order, and with four or more levels that the orders have settled (asymptotic_check)."),
     "oscillatory": (
-        "No GCI is valid for oscillatory convergence. Refine further until the sign pattern settles, "
-        "report the spread of the values as a band, or estimate from four or more levels by least squares "
-        "(Eca and Hoekstra 2014)."),
+        "The GCI of oscillatory convergence is to be used with caution (Celik et al. 2008). Refine further until "
+        "the sign pattern settles, report the spread of the values as a band, or estimate from four or more "
+        "levels by least squares (Eca and Hoekstra 2014)."),
     "divergent": (
         "The differences grow as the grid is refined: the grids are outside the asymptotic range or "
         "something is wrong (iterations not converged, inconsistent boundary data, a coding mistake). "

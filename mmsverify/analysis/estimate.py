@@ -257,8 +257,10 @@ def assess(values, h=None, cells=None, dim=None, volume=None, name="quantity", f
         warnings.append(f"over all {n} levels the convergence is {conv.kind} ({conv.detail}). {conv.advice}")
     if asym is not None and asym.floor is not None:
         warnings.append(asym.message)
-    if g.valid:
-        method = "two-grid GCI, assumed order" if g.status == "two-grid" else "GCI_fine21, Celik et al. 2008"
+    if g.valid and not (g.status == "oscillatory" and ls is not None):   # four levels and more: least squares
+        method = {"two-grid": "two-grid GCI, assumed order",
+                  "oscillatory": "GCI_fine21, Celik et al. 2008, oscillatory: with caution"}.get(
+                      g.status, "GCI_fine21, Celik et al. 2008")
         ext, p, u, rel = g.phi_ext21, g.p, g.u_fine21, g.gci_fine21
         if g.status != "two-grid" and _far_from_formal(p, formal_order):
             warnings.append(f"observed order {p:.3g} is far from the formal order {formal_order:g}: the grids may be "

@@ -7,8 +7,10 @@ of Roache (1998): 1.25 for three or more grids, 3 for two.
 
 Levels are given coarse to fine, as everywhere in mmsverify; records use
 Celik's numbering, 1 = finest, 3 = coarsest. Data that converge in an
-oscillatory way or diverge never get a GCI: the record says why, and the
-numbers the formulas would give are kept apart in ``formula``.
+oscillatory way get the procedure's numbers with a caution, as Celik et al.
+report them (Table 1, column 3); data that diverge never get a GCI: the
+record says why, and the numbers the formulas would give are kept apart in
+``formula``.
 
 The pointwise GCI of a profile or field (:func:`~mmsverify.analysis.profile.gci_profile`,
 :func:`~mmsverify.analysis.profile.plot_profile`) and the representative grid size
@@ -81,9 +83,11 @@ class GCIResult:
         Approximate relative errors ``|(phi1-phi2)/phi1|``, ``|(phi2-phi3)/phi2|``.
     status : str
         ``"monotone"`` (valid), ``"two-grid"`` (valid, assumed order),
-        ``"oscillatory"``, ``"divergent"`` or ``"no-order"`` (not valid).
+        ``"oscillatory"`` (valid, with a caution in ``warnings``),
+        ``"divergent"`` or ``"no-order"`` (not valid).
     valid : bool
-        Whether the numbers below are an uncertainty estimate.
+        Whether the numbers below are an uncertainty estimate (for
+        oscillatory convergence, one to use with the caution given).
     p : float or None
         Apparent (or, for two grids, assumed) order.
     phi_ext21, phi_ext32, e_ext21, e_ext32 : float or None
@@ -278,16 +282,22 @@ def gci(values, h=None, cells=None, dim=None, volume=None, formal_order=None, sa
         ext32, e_ext32, g32, _ = _richardson(phi2, phi3, r32, p, fs, e_a32)
         formula = FormulaValues(p, ext21, ext32, e_ext21, e_ext32, g21, gc21, g32,
                                 None if (g21 is None or g32 is None or g21 == 0) else g32 / (r21 ** p * g21))
-    if conv.kind == "monotone" and formula.p is not None:
-        status = "monotone"
+    if conv.kind in ("monotone", "oscillatory") and formula.p is not None:
+        status = conv.kind
     elif conv.kind in ("oscillatory", "divergent"):
         status = conv.kind
     else:
         status = "no-order"
-    valid = status == "monotone"
+    valid = status in ("monotone", "oscillatory")
     if status == "oscillatory":
-        warnings.append("oscillatory convergence (phi3-phi2 and phi2-phi1 differ in sign): no GCI is given. "
-                        + conv.advice)
+        # Celik et al. (2008) report the numbers of oscillatory data (Table 1, column 3), with a caution
+        warnings.append("oscillatory convergence (phi3-phi2 and phi2-phi1 differ in sign): the numbers follow the "
+                        "procedure of Celik et al. (2008), which reports them for oscillatory data too, but use "
+                        "them with caution: the apparent order comes from |eps32/eps21| and the extrapolation "
+                        "assumes the sign pattern holds. " + conv.advice)
+    elif conv.kind == "oscillatory":
+        warnings.append("oscillatory convergence (phi3-phi2 and phi2-phi1 differ in sign) and no positive apparent "
+                        "order: no GCI is given. " + conv.advice)
     elif status == "divergent":
         warnings.append(f"{conv.detail}: the differences grow with refinement; no GCI is given. " + conv.advice)
     elif status == "no-order":

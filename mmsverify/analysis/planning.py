@@ -186,12 +186,12 @@ def plan(h, values, times, target, *, kind="error", measure="error", cells=None,
         if n == 2 and formal_order is None:
             raise AnalysisError("two levels of a quantity need formal_order to predict anything; run a third level")
         g = gci(v[-3:], h=hs[-3:], formal_order=formal_order, safety_factor=safety_factor)
-        if g.valid:
+        if g.valid and g.status != "oscillatory":   # the caution of an oscillatory GCI forbids a prediction
             order = g.p
             const = abs(v[-1] - g.phi_ext21) / hs[-1] ** order
         else:
             reasons.append(f"no valid Richardson extrapolation ({g.status}); no error model")
-        if measure == "gci" and g.valid:
+        if measure == "gci" and order is not None:
             if g.phi_ext21 == 0:
                 raise AnalysisError("the extrapolated value is zero: a relative GCI target is undefined; use "
                                     "measure='error'")

@@ -4,9 +4,11 @@ Each command lives in its own module ``_<name>.py`` with a ``register``
 function that adds its sub-parser and sets ``func``. Exit codes:
 
 * 0: every verdict confirmed (or the command succeeded)
-* 1: a verdict failed (observed order off the formal order)
-* 2: bad input (problem file, solver, grid sequence, data), or a study in which no level ran
-* 3: inconclusive (levels failed or errors at round-off; nothing to judge)
+* 1: the evidence says an order is off (a fitted interval outside the tolerance), or a level failed
+* 2: bad input (problem file, solver, grid sequence, data, a tolerance at or above half the formal
+  order), or a study in which no level ran
+* 3: inconclusive: the levels cannot decide (an error floor, too few levels in the asymptotic range,
+  errors at round-off)
 
 Other installed packages may add commands through the entry-point group
 ``mmsverify.commands`` (name = "module:register"); the demo package adds

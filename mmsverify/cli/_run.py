@@ -19,7 +19,8 @@ def add_study_options(p):
     p.add_argument("--mode", choices=MODES, default="combined",
                    help="transient problems: refine space and time together, space only, or time only")
     p.add_argument("--base-steps", type=int, help="time steps on the coarsest level (transient problems)")
-    p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order (default: problem's)")
+    p.add_argument("--tolerance", type=float,
+                   help="allowed |observed - formal| order, below half the formal order (default: problem's)")
     p.add_argument("--formal-order", type=float, help="override the formal order (default: the solver's stated "
                                                       "order, else the problem's)")
     p.add_argument("--norms", metavar="LIST",

@@ -327,6 +327,8 @@ def compare(baseline, result, error_factor=None, tolerance=None, norms=None):
     """
     factor = float(baseline.error_factor if error_factor is None else error_factor)
     tol = float(baseline.tolerance if tolerance is None else tolerance)
+    from mmsverify.problem.rules import check_rule     # a band as wide as half the order would pass a wrong order
+    check_rule(baseline.formal_order, tol, f"baseline of {baseline.problem}, order rule")
     chosen = norms is not None
     norms = tuple(norms or NORMS)
     unknown = [n for n in norms if n not in NORMS]

@@ -31,7 +31,11 @@ is ever executed. The format, with every table but ``[fields]`` optional::
     [order]
     space = 2                           # formal order the scheme is built for
     time = 1                            # for transient problems
-    tolerance = 0.1                     # allowed |observed - formal|
+    tolerance = 0.1                     # allowed |observed - formal|, below half the order
+
+    [order.by]                          # rules of single fields, norms, quantities
+    drag = {at_least = true}            # any order from formal - tolerance up
+    "u Linf" = {tolerance = 0.3}        # also space, time (see mmsverify.problem.rules)
 
     [quantities]                        # functionals a solver may report too
     total_heat = {integral = "u"}       # integral over the domain
@@ -143,6 +147,9 @@ class Problem:
     equation_text : dict of str to str
         The equations of a custom operator as written in the file (empty for
         built-in operators), so their top-level terms can be examined.
+    order_rules : tuple of (str, OrderRule)
+        The ``[order.by]`` rules of single fields, norms and quantities
+        (see :mod:`mmsverify.problem.rules`).
     order_given : tuple of str or None
         The axes (``"space"``, ``"time"``) whose formal order the file's
         ``[order]`` states; the others hold defaults. None (a problem made in
@@ -172,6 +179,7 @@ class Problem:
     bounds: dict = field(default_factory=dict)
     equation_text: dict = field(default_factory=dict)
     order_given: tuple = None
+    order_rules: tuple = ()
 
     # The tables of sympy expressions. A problem read back from the derivation
     # cache holds them pickled and builds them on first use: a study whose
@@ -298,7 +306,8 @@ class Problem:
         return self.with_changes(name=name, source=source)
 
     #: Fields :meth:`with_changes` may change: none of them enters the content hash or a derived table.
-    _PLAIN = ("name", "description", "source", "space_order", "time_order", "tolerance", "study", "order_given")
+    _PLAIN = ("name", "description", "source", "space_order", "time_order", "tolerance", "study", "order_given",
+             "order_rules")
 
     def with_changes(self, **changes):
         """A copy with some plain fields changed (orders, tolerance, study defaults, name, source).
@@ -554,13 +563,14 @@ class _Reader:
         self.stage = None
         boundaries = self._boundaries(fields, axes)
         order = self.table("order")
-        self.known_keys("order", order, ("space", "time", "tolerance"))
+        self.known_keys("order", order, ("space", "time", "tolerance", "by"))
         space_order = self.number("order", "space", order.get("space", 2), int)
         time_order = self.number("order", "time", order["time"], int) if "time" in order else (1 if t is not None else None)
         tolerance = self.number("order", "tolerance", order.get("tolerance", 0.1))
         if not 1 <= space_order <= MAX_ORDER or not 1 <= (time_order or 1) <= MAX_ORDER or not tolerance > 0:
             raise ProblemError(f"{self.where('order')}: orders must be whole numbers from 1 to {MAX_ORDER} and the "
                                "tolerance positive")
+        order_rules = self._order_rules(order, space_order, time_order, tolerance)
         study = self._study(len(axes))
         quantities = self._quantities(with_fields, fields, fluxes, coords, box, axes)
         bounds = self._bounds({**with_fields, **parameters}, fields, parameters)
@@ -574,7 +584,26 @@ class _Reader:
                        t_range=box.get("t"), constants=constants, fields=fields, operator=kind,
                        parameters=parameters, equations=equations, fluxes=fluxes, boundaries=boundaries,
                        space_order=space_order, time_order=time_order, tolerance=tolerance, study=study,
-                       source=self.source, order_given=tuple(a for a in ("space", "time") if a in order))
+                       source=self.source, order_given=tuple(a for a in ("space", "time") if a in order),
+                       order_rules=order_rules)
+
+    def _order_rules(self, order, space_order, time_order, tolerance):
+        """The [order.by] rules, and every tolerance below half its order (mmsverify.problem.rules)."""
+        from mmsverify.errors import AnalysisError
+        from mmsverify.problem.rules import check_rule, parse_rules, rule_for
+        try:
+            rules = parse_rules(order.get("by", {}), f"{self.where('order')}.by")
+            for axis, p in (("space", space_order), ("time", time_order)):
+                if p is None:
+                    continue
+                check_rule(p, tolerance, f"{self.where('order', 'tolerance')} ({axis} order {p})")
+                for sel, _ in rules:
+                    for norm in (sel, "value") if " " not in sel else (sel.split(" ", 1)[1],):
+                        q, t, _ = rule_for(rules, sel.split(" ", 1)[0], norm, p, tolerance, axis)
+                        check_rule(q, t, f"{self.where('order')}.by {sel!r} ({axis})")
+        except AnalysisError as exc:
+            raise ProblemError(str(exc)) from None
+        return rules
 
     def check_size(self, section, key, expr, what):
         """Refuse a derived expression whose tree has more than MAX_EQUATION_NODES nodes."""

@@ -12,6 +12,7 @@ levels support.
 """
 
 from collections.abc import Mapping
+import dataclasses
 from dataclasses import dataclass, field
 import math
 import multiprocessing
@@ -29,8 +30,9 @@ from mmsverify.analysis.order import observed_orders
 from mmsverify.problem.record import get_problem
 from mmsverify.execute.solvers import Case, check_solution, resolve_solver, solver_name
 from mmsverify.analysis.verdict import judge
+from mmsverify.problem.rules import check_rule, check_rules, parse_rules, rule_for
 
-__all__ = ["LevelResult", "StudyResult", "plan_grids", "run_level", "run_study", "judged_norms", "MODES",
+__all__ = ["LevelResult", "StudyResult", "plan_grids", "run_level", "run_study", "judged_norms", "rejudge", "MODES",
            "NORMS_SOURCES"]
 
 MODES = ("combined", "space", "time")
@@ -104,6 +106,7 @@ class StudyResult:
     order_conflicts: tuple = ()
     judged_norms: dict = field(default_factory=dict)
     norms_source: str = "default"
+    rules: tuple = ()
     warnings: tuple = ()
 
     @property
@@ -180,13 +183,16 @@ class StudyResult:
             "order_conflicts": [dict(c) for c in self.order_conflicts],
             "judged_norms": {f: list(n) for f, n in self.judged_norms.items()},
             "norms_source": self.norms_source,
+            "rules": {sel: r.to_dict() for sel, r in self.rules},
             "notes": list(self.notes),
             "quantity_orders": {q: [None if not np.isfinite(p) else float(p) for p in self.quantity_orders(q)]
                                 for q in self.quantities},
             "orders": {f: {n: [None if not np.isfinite(p) else float(p) for p in self.orders(f, n)]
                            for n in NORMS} for f in self.fields},
             "verdicts": [{"field": v.field, "norm": v.norm, "status": v.status, "observed": v.observed,
-                          "formal": v.formal, "tolerance": v.tolerance, "reason": v.reason}
+                          "formal": v.formal, "tolerance": v.tolerance, "reason": v.reason, "kind": v.kind,
+                          "interval": None if v.interval is None else list(v.interval),
+                          "at_least": v.at_least, "left_out": list(v.left_out)}
                          for v in self.verdicts],
         }
 
@@ -326,22 +332,53 @@ def _check_levels(results, mode, wheres):
     return results, tuple(warnings)
 
 
-def _verdicts(problem, results, formal, tol, judged):
+def _verdicts(problem, results, formal, tol, judged, rules=(), mode="combined"):
     """One verdict per field and judged norm (``judged``: field -> norms, as :func:`judged_norms` gives),
-    then one per reported quantity."""
+    then one per reported quantity, each under its rule (``rules``: see :mod:`mmsverify.problem.rules`)."""
+    axis = "time" if mode == "time" else "space"
+    size = "dt" if mode == "time" else "h"
+
+    def one(name, norm, ok, errors, scale):
+        p, t, at_least = rule_for(rules, name, norm, formal, tol, axis)
+        return judge(name, norm, [r.h for r in ok], errors, p, t, scale=scale, levels=[r.level for r in ok],
+                     at_least=at_least, axis=size)
+
     verdicts = []
     for f in problem.field_names:
         ok = [r for r in results if r.ok and f in r.errors]
         for n in judged.get(f, NORMS) if ok else ():
-            verdicts.append(judge(f, n, [r.h for r in ok], [r.errors[f][n] for r in ok], formal, tol,
-                                  scale=max(r.scale[f] for r in ok), levels=[r.level for r in ok]))
+            verdicts.append(one(f, n, ok, [r.errors[f][n] for r in ok], max(r.scale[f] for r in ok)))
     for q in problem.names("quantities"):
         ok = [r for r in results if r.ok and q in r.quantities]
         if ok:
-            verdicts.append(judge(q, "value", [r.h for r in ok], [r.quantities[q]["error"] for r in ok], formal,
-                                  tol, scale=abs(ok[-1].quantities[q]["exact"]) or 1.0,
-                                  levels=[r.level for r in ok]))
+            verdicts.append(one(q, "value", ok, [r.quantities[q]["error"] for r in ok],
+                                abs(ok[-1].quantities[q]["exact"]) or 1.0))
     return tuple(verdicts)
+
+
+def rejudge(result):
+    """The study with every verdict judged again from its stored errors, under the rule each verdict states.
+
+    A study read from a file keeps its errors, and its verdicts say which
+    order, tolerance and side they were judged by; judging again means a
+    file whose verdicts were edited, or written by an older release, cannot
+    pass on its word. Raises :class:`~mmsverify.errors.AnalysisError` for a
+    rule :func:`~mmsverify.problem.rules.check_rule` refuses.
+    """
+    size = "dt" if result.mode == "time" else "h"
+    fresh = []
+    for v in result.verdicts:
+        if v.norm == "value":
+            ok = [r for r in result.levels if r.ok and v.field in r.quantities]
+            errors = [r.quantities[v.field]["error"] for r in ok]
+            scale = abs(ok[-1].quantities[v.field].get("exact", 1.0)) or 1.0 if ok else 1.0
+        else:
+            ok = [r for r in result.levels if r.ok and v.field in r.errors]
+            errors = [r.errors[v.field][v.norm] for r in ok]
+            scale = max((r.scale.get(v.field, 1.0) for r in ok), default=1.0)
+        fresh.append(judge(v.field, v.norm, [r.h for r in ok], errors, v.formal, v.tolerance, scale=scale,
+                           levels=[r.level for r in ok], at_least=v.at_least, axis=size))
+    return dataclasses.replace(result, verdicts=tuple(fresh))
 
 
 def _stated(solver, name):
@@ -555,7 +592,7 @@ def _run_level(solver, case, where):
 
 def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode="combined", base_steps=None,
               grids=None, tolerance=None, formal_order=None, executor=None, options=None,
-              progress=None, workers=None, timeout=None, cache_dir=None, resume=True, norms=None):
+              progress=None, workers=None, timeout=None, cache_dir=None, resume=True, norms=None, rules=None):
     """Run a manufactured-solution study and judge the observed orders.
 
     Parameters
@@ -607,6 +644,11 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
         solvers in all of L1, L2, Linf (see :func:`judged_norms`). Every
         norm is still measured and reported; a field judged in fewer says
         so in ``notes`` (data in ``judged_norms`` and ``norms_source``).
+    rules : dict, optional
+        Order rules for single fields, norms or quantities, e.g.
+        ``{"drag": {"at_least": True}, "u Linf": {"tolerance": 0.3}}``; they
+        add to (and for the same selector replace) the problem's
+        ``[order.by]`` table (see :mod:`mmsverify.problem.rules`).
 
     Returns
     -------
@@ -643,10 +685,13 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
         formal, order_source = formal_order, "caller"
     formal = float(formal)
     tol = float(tolerance if tolerance is not None else problem.tolerance)
-    if not formal > 0 or not tol > 0:
-        raise AnalysisError(f"the formal order and the tolerance must be positive, got {formal:g} and {tol:g}")
+    check_rule(formal, tol, f"problem {problem.name}, the order rule" + (" (--tolerance)" if tolerance is not None
+                                                                          else ""))
     name = solver_name(solver)
     judged, norms_source = judged_norms(problem, stating, norms, who=solver_name(stating))
+    rules = tuple(dict({**dict(getattr(problem, "order_rules", ())), **dict(parse_rules(rules))}).items())
+    check_rules(rules, {**judged, **{q: ("value",) for q in problem.names("quantities")}}, NORMS + ("value",),
+                formal, tol, "time" if mode == "time" else "space", f"problem {problem.name}, order rules")
     opts = dict(options or {}, mode=mode)
     cases = [Case(g, mms, opts) for g in grids]
     wheres = [_level_where(problem.name, name, c.grid) for c in cases]
@@ -654,9 +699,9 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
                          cache=cache_dir, resume=resume, progress=progress)
     results, warnings = _check_levels(results, mode, wheres)
-    verdicts = _verdicts(problem, results, formal, tol, judged)
+    verdicts = _verdicts(problem, results, formal, tol, judged, rules, mode)
     conflicts = _order_conflicts(problem, stating, mode, caller=formal_order is not None, planned=planned,
                                  base_steps=base_steps)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
                        problem.content_hash(), problem.source, order_source,
-                       _missing_quantities(problem, results), conflicts, judged, norms_source, warnings)
+                       _missing_quantities(problem, results), conflicts, judged, norms_source, rules, warnings)

@@ -18,9 +18,10 @@ OUTCOMES = ("pass", "fail", "inconclusive")
 def outcome(result):
     """``"pass"``, ``"fail"`` or ``"inconclusive"`` for a study.
 
-    ``fail`` when an observed order is off the formal order (below or
-    above), ``inconclusive`` when nothing could be judged (too few levels
-    succeeded, or errors at round-off). Matches the command-line exit codes.
+    ``fail`` when the fitted evidence says an order is off the formal order
+    (below or above) or a level failed, ``inconclusive`` when the levels
+    cannot decide (an error floor, too few levels in the asymptotic range,
+    errors at round-off). Matches the command-line exit codes.
     """
     if result.passed:
         return "pass"
@@ -138,8 +139,10 @@ def extra_cautions(result):
     """Cautions that depend on this study's numbers, beyond the general one."""
     notes = []
     if any(v.status == "above" for v in result.verdicts):
-        notes.append("An observed order above the formal order usually means the coarse levels are not in the "
-                     "asymptotic range or errors cancel by chance; it is not a better scheme. Add a finer level.")
+        notes.append("An observed order above the formal order over all levels, beyond what a next term of the "
+                     "series explains, is superconvergence (functionals, nodal values), errors that cancel by "
+                     "chance, or an understated formal order; where it is expected, state the rule as at least "
+                     "the formal order ([order.by]).")
     if any(v.status == "inconclusive" for v in result.verdicts):
         notes.append("Inconclusive checks confirm nothing: the reasons above say what to change.")
     if result.failed_levels:

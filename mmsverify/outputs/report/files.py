@@ -20,7 +20,7 @@ from pathlib import Path
 from mmsverify.errors import MMSError
 from mmsverify.execute.grids import Grid
 from mmsverify.execute.norms import NORMS
-from mmsverify.study.refinement import NORMS_SOURCES, LevelResult, StudyResult
+from mmsverify.study.refinement import NORMS_SOURCES, LevelResult, StudyResult, rejudge
 from mmsverify.analysis.verdict import Verdict
 from mmsverify.outputs.report._common import level_rows, outcome
 from mmsverify.outputs.report._quantities import quantity_rows
@@ -118,13 +118,23 @@ def study_from_data(data, where="study data"):
                                   int(d.get("n_points", 0)), dict(d.get("scale", {})), d.get("message", ""),
                                   quantities={q: dict(v) for q, v in d.get("quantities", {}).items()},
                                   info=dict(d.get("info", {}))))
+    # the stored verdicts give only what was judged and by which rule: the statuses are judged again
+    # from the stored errors (study.rejudge), never taken on the file's word
     known = {f.name for f in dataclasses.fields(Verdict)}
+    needed = ("field", "norm", "formal", "tolerance")
     verdicts = []
     for i, v in enumerate(_need(data, "verdicts", where)):
-        missing = known - set(v)
+        missing = [k for k in needed if k not in v]
         if missing:
-            raise MMSError(f"{where}, verdict entry {i}: missing {sorted(missing)}")
-        verdicts.append(Verdict(**{k: v[k] for k in known}))
+            raise MMSError(f"{where}, verdict entry {i}: missing {missing}")
+        try:
+            formal, tol = float(v["formal"]), float(v["tolerance"])
+        except (TypeError, ValueError):
+            raise MMSError(f"{where}, verdict entry {i}: formal and tolerance must be numbers") from None
+        kept = {k: v[k] for k in known if k in v and k not in ("interval", "left_out")}
+        kept.update(formal=formal, tolerance=tol, at_least=bool(v.get("at_least", False)),
+                    observed=v.get("observed"), status=v.get("status", ""), reason=v.get("reason", ""))
+        verdicts.append(Verdict(**kept))
     conflicts = []
     for i, c in enumerate(data.get("order_conflicts", [])):
         w = f"{where}, order_conflicts entry {i}"
@@ -132,10 +142,12 @@ def study_from_data(data, where="study data"):
                           "problem": float(_need(c, "problem", w)), "used_for": str(_need(c, "used_for", w))})
     missing = {str(q): tuple(int(k) for k in lv) for q, lv in data.get("missing_quantities", {}).items()}
     judged, norms_source = _judged_norms(data, where)
-    return StudyResult(_need(data, "problem", where), _need(data, "solver", where), _need(data, "mode", where),
+    from mmsverify.problem.rules import parse_rules
+    rules = parse_rules(data.get("rules", {}), f"{where}, rules")
+    return rejudge(StudyResult(_need(data, "problem", where), _need(data, "solver", where), _need(data, "mode", where),
                        float(_need(data, "formal_order", where)), float(_need(data, "tolerance", where)),
                        tuple(levels), tuple(verdicts), data.get("problem_hash", ""), data.get("source", ""),
-                       data.get("order_source", "problem"), missing, tuple(conflicts), judged, norms_source)
+                       data.get("order_source", "problem"), missing, tuple(conflicts), judged, norms_source, rules))
 
 
 def _judged_norms(data, where):
