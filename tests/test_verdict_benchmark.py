@@ -106,6 +106,10 @@ def _cases():
     return cases
 
 
+def _failing(result):
+    return ", ".join(f"{v.field} {v.norm} {v.status}" for v in result.verdicts if not v.ok)
+
+
 def _alarms_in_l1_l2(result):
     return [f"{v.field} {v.norm} {v.status}" for v in result.verdicts if v.norm in ("L1", "L2") and not v.ok]
 
@@ -117,7 +121,8 @@ def test_verdict_benchmark(capsys):
     for c in cases:
         code, result = c.run()
         outcomes.append((c, code, result))
-    false_alarms = [f"{c.group}: {c.key}" for c, code, _ in outcomes if c.correct and code == 1]
+    false_alarms = [f"{c.group}: {c.key}" + (f": {_failing(r)}" if r is not None else "")
+                    for c, code, r in outcomes if c.correct and code == 1]
     misses = [f"{c.group}: {c.key}" for c, code, _ in outcomes if not c.correct and code == 0]
     refused = [f"{c.group}: {c.key}" for c, code, _ in outcomes if code == 2]
     unsettled = [f"{c.group}: {c.key}: {', '.join(_alarms_in_l1_l2(r))}" for c, code, r in outcomes
