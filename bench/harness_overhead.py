@@ -146,7 +146,7 @@ def _child(argv):
     problem_mod.get_problem = clock.wrap("derive", problem_mod.get_problem)
     study.derive = clock.wrap("derive", study.derive)
     study.check_solution = clock.wrap("check", study.check_solution)
-    study._magnitude_norms = clock.wrap("norms", study._magnitude_norms)
+    study.magnitude_norms = clock.wrap("norms", study.magnitude_norms)
     for name in ("key", "load", "store"):
         setattr(cache_mod.LevelCache, name, clock.wrap("cache", getattr(cache_mod.LevelCache, name)))
     files_mod.write_json = clock.wrap("report", files_mod.write_json)

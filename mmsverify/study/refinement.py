@@ -25,7 +25,7 @@ from mmsverify import _diskcache
 from mmsverify.problem.derive import derive
 from mmsverify.errors import AnalysisError, GridError, MMSError, SolverError
 from mmsverify.execute.grids import Grid, check_refinement, refinement
-from mmsverify.execute.norms import NORMS, _magnitude_norms
+from mmsverify.execute.norms import NORMS, magnitude_norms
 from mmsverify.analysis.order import observed_orders
 from mmsverify.problem.record import get_problem
 from mmsverify.execute.solvers import Case, check_solution, resolve_solver, solver_name
@@ -518,7 +518,7 @@ def _run_level(solver, case, where):
             own = exact.flags.owndata and exact.shape == v.shape and not any(
                 np.may_share_memory(exact, a) for a in (v, *points))
             magnitude = np.subtract(v, exact, out=exact if own else None)
-            errors[name] = _magnitude_norms(np.abs(magnitude, out=magnitude), weights)
+            errors[name] = magnitude_norms(np.abs(magnitude, out=magnitude), weights)
         quantities = {}
         for name, q in sol.quantities.items():
             exact = mms.exact_quantity(name, t=t)
