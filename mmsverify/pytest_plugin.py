@@ -26,8 +26,8 @@ def pytest_addoption(parser):
 
 
 def _record(request, result):
-    from mmsverify.outputs.report._common import headline, outcome
-    request.node.user_properties.append(("mmsverify", f"{outcome(result)}: {result.problem} with "
+    from mmsverify.outputs.report.wording import headline
+    request.node.user_properties.append(("mmsverify", f"{result.outcome}: {result.problem} with "
                                                       f"{result.solver}: {headline(result)}"))
     folder = request.config.getoption("mmsverify_reports")
     if folder:

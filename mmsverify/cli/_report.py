@@ -6,7 +6,7 @@ from pathlib import Path
 from mmsverify.errors import MMSError
 from mmsverify.cli.progress import QUIET, progress_for, verbosity
 from mmsverify.outputs.report import FORMATS, write_reports
-from mmsverify.outputs.report._common import headline, outcome
+from mmsverify.outputs.report.wording import headline
 from mmsverify.cli import EXIT_INPUT, comma_choices
 from mmsverify.cli._run import add_study_options, exit_code, study_from_args
 
@@ -45,7 +45,7 @@ def _report(args):
     output = args.output or (Path(args.source).parent if args.source else _DEFAULT_OUTPUT)
     written = write_reports(result, output, formats, pointwise, stem=args.name)
     if verbosity(args) == QUIET:
-        print(f"{outcome(result).upper()}: {headline(result)}")
+        print(f"{result.outcome.upper()}: {headline(result)}")
     else:
         print(result)
         print()

@@ -125,6 +125,21 @@ class StudyResult:
         return self.orders_confirmed and not self.failed_levels
 
     @property
+    def outcome(self):
+        """``"pass"``, ``"fail"`` or ``"inconclusive"``: what the study shows, as the exit codes say it.
+
+        ``fail`` when the fitted evidence says an order is off the formal
+        order (below or above) or a level failed, ``inconclusive`` when the
+        levels cannot decide (an error floor, too few levels in the
+        asymptotic range, errors at round-off).
+        """
+        if self.passed:
+            return "pass"
+        if any(v.status in ("below", "above") for v in self.verdicts) or self.failed_levels:
+            return "fail"
+        return "inconclusive"
+
+    @property
     def failed_levels(self):
         return tuple(lv for lv in self.levels if not lv.ok)
 

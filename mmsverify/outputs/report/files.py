@@ -22,7 +22,7 @@ from mmsverify.execute.grids import Grid
 from mmsverify.execute.norms import NORMS
 from mmsverify.study.refinement import NORMS_SOURCES, LevelResult, StudyResult, rejudge
 from mmsverify.analysis.verdict import Verdict
-from mmsverify.outputs.report._common import level_rows, outcome
+from mmsverify.outputs.report.wording import level_rows
 from mmsverify.outputs.report._quantities import quantity_rows
 from mmsverify.outputs.report.text import CAUTION
 
@@ -72,7 +72,7 @@ def study_to_data(result):
         box (``lower``, ``upper``, ``t_start``, ``t_end``) and ``scale``.
     """
     data = {"format": FORMAT, "format_version": FORMAT_VERSION, "mmsverify_version": _version(),
-            "outcome": outcome(result)}
+            "outcome": result.outcome}
     data.update(result.to_dict())
     for out, lv in zip(data["levels"], result.levels):
         g = lv.grid

@@ -11,8 +11,8 @@ from html import escape
 from pathlib import Path
 
 from mmsverify.execute.norms import NORMS
-from mmsverify.outputs.report._common import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
-                      notes, outcome, study_facts)
+from mmsverify.outputs.report.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
+                      notes, study_facts)
 from mmsverify.outputs.report._quantities import quantity_table
 from mmsverify.outputs.report.text import CAUTION
 
@@ -76,7 +76,7 @@ def html_text(result, pointwise=None, fmt="svg", figures=True):
     if fmt not in _MIME:
         raise ValueError(f"figure format {fmt!r} is not supported; use 'svg' or 'png'")
     from mmsverify import __version__
-    kind = outcome(result)
+    kind = result.outcome
     size = axis_name(result)
     title = f"Order verification: {result.problem} solved by {result.solver}"
     body = [f"<h1>{escape(title)}</h1>",

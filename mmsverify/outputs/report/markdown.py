@@ -8,8 +8,8 @@ report (``<name>_figures/``), so the pair can be committed or attached.
 from pathlib import Path
 
 from mmsverify.execute.norms import NORMS
-from mmsverify.outputs.report._common import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
-                      notes, outcome, study_facts)
+from mmsverify.outputs.report.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
+                      notes, study_facts)
 from mmsverify.outputs.report._quantities import quantity_table
 from mmsverify.outputs.report.text import CAUTION
 
@@ -41,7 +41,7 @@ def markdown_text(result, images=None):
     -------
     str
     """
-    kind = outcome(result)
+    kind = result.outcome
     size = axis_name(result)
     out = [f"# Order verification: {result.problem} solved by {result.solver}", "",
            f"**Verdict: {kind.upper()}.** {headline(result)}", ""]

@@ -17,7 +17,7 @@ import io
 import numpy as np
 
 from mmsverify.execute.norms import NORMS
-from mmsverify.outputs.report._common import axis_name
+from mmsverify.outputs.report.wording import axis_name
 
 __all__ = ["OKABE_ITO", "NORM_STYLE", "error_figure", "order_figure", "cost_figure", "error_map_figure",
            "study_figures", "figure_bytes", "save_figure"]
