@@ -1,10 +1,10 @@
 """Groundwork shared by the grid-refinement analyses (Celik et al. 2008).
 
 Every analysis takes levels coarse to fine with strictly decreasing sizes
-(:func:`_as_levels`); sizes may come as cell counts, turned into a
+(:func:`as_levels`); sizes may come as cell counts, turned into a
 representative size by Celik et al. (2008), Eq. (1) (:func:`representative_h`,
-:func:`_sizes`); three levels give the apparent order of Eqs. (3a)-(3c)
-(:func:`_apparent_order`); and the GCI takes the safety factors of Roache
+:func:`grid_sizes`); three levels give the apparent order of Eqs. (3a)-(3c)
+(:func:`apparent_order`); and the GCI takes the safety factors of Roache
 (1998). :func:`representative_h` is public as ``mmsverify.analysis.gci.representative_h``.
 """
 
@@ -14,12 +14,12 @@ import numpy as np
 
 from mmsverify.errors import AnalysisError
 
-__all__ = ["representative_h"]
+__all__ = ["representative_h", "as_levels", "grid_sizes", "apparent_order", "FS2", "FS3"]
 
-_FS3, _FS2 = 1.25, 3.0  # Roache (1998) safety factors for >= 3 grids and for 2 grids
+FS3, FS2 = 1.25, 3.0  # Roache (1998) safety factors for >= 3 grids and for 2 grids
 
 
-def _as_levels(h, y, name="e", need=2):
+def as_levels(h, y, name="e", need=2):
     """Validate ``h`` (strictly decreasing, positive) and ``y`` of equal length."""
     try:
         h = np.asarray(h, dtype=float)
@@ -83,7 +83,7 @@ def representative_h(cells, dim, volume=None):
     return (V / N) ** (1.0 / dim)
 
 
-def _sizes(h, cells, dim, volume, n):
+def grid_sizes(h, cells, dim, volume, n):
     """One place that turns h or (cells, dim, volume) into grid sizes."""
     if h is not None and cells is not None:
         raise AnalysisError("give either h (grid sizes) or cells (with dim), not both")
@@ -98,7 +98,7 @@ def _sizes(h, cells, dim, volume, n):
     return h
 
 
-def _apparent_order(r21, r32, eps21, eps32, tol=1e-13, maxiter=1000):
+def apparent_order(r21, r32, eps21, eps32, tol=1e-13, maxiter=1000):
     """Apparent order of Celik et al. (2008), Eqs. (3a)-(3c), by fixed-point iteration.
 
     ``p = |ln|eps32/eps21| + q(p)| / ln r21`` with

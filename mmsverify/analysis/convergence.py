@@ -15,8 +15,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mmsverify.analysis.celik import _apparent_order, _as_levels
-from mmsverify.analysis.text import _fmt, _table
+from mmsverify.analysis.celik import apparent_order, as_levels
+from mmsverify.analysis.text import fmt_num, fmt_table
 from mmsverify.errors import AnalysisError
 
 __all__ = [
@@ -25,6 +25,7 @@ __all__ = [
     "ConvergenceClass",
     "asymptotic_check",
     "AsymptoticCheck",
+    "far_from_formal",
 ]
 
 _EPS = np.finfo(float).eps
@@ -105,10 +106,10 @@ class ConvergenceClass:
     advice: str
 
     def __str__(self):
-        rows = [(f"{k}-{k + 2}", _fmt(r, ".4g"), f"{lim:.4g}", t)
+        rows = [(f"{k}-{k + 2}", fmt_num(r, ".4g"), f"{lim:.4g}", t)
                 for k, (r, lim, t) in enumerate(zip(self.ratios, self.limits, self.triplets))]
         return (f"convergence: {self.kind} ({self.detail})\n"
-                + _table(("levels", "R", "R limit", "type"), rows) + f"\nadvice: {self.advice}")
+                + fmt_table(("levels", "R", "R limit", "type"), rows) + f"\nadvice: {self.advice}")
 
 
 def classify_convergence(phi, h=None, tol=None, *, noise=None):
@@ -162,7 +163,7 @@ def classify_convergence(phi, h=None, tol=None, *, noise=None):
     if not np.all(np.isfinite(phi)):
         raise AnalysisError(f"values must be finite numbers, got {phi.tolist()}")
     if h is not None:
-        h, _ = _as_levels(h, phi, "phi", need=3)
+        h, _ = as_levels(h, phi, "phi", need=3)
         lh = np.log(h[:-1] / h[1:])
         limits = lh[1:] / lh[:-1]
     else:
@@ -229,7 +230,7 @@ _HEALTHY, _STALLED = 0.5, 0.2  # fractions of the reference order: falling / sto
 _FAR_FROM_FORMAL = 0.25  # common practice: flag an observed order more than 25 % away from the formal order
 
 
-def _far_from_formal(order, formal_order):
+def far_from_formal(order, formal_order):
     """Whether an observed order is more than 25 % away from the formal order (False if either is None)."""
     return order is not None and formal_order is not None and abs(order - formal_order) > _FAR_FROM_FORMAL * formal_order
 
@@ -281,11 +282,11 @@ class AsymptoticCheck:
 
     def __str__(self):
         label = "pair" if self.kind == "error" else "triplet"
-        rows = [(f"{self.h[k]:.4g} -> {self.h[k + (1 if self.kind == 'error' else 2)]:.4g}", _fmt(p, ".4g"))
+        rows = [(f"{self.h[k]:.4g} -> {self.h[k + (1 if self.kind == 'error' else 2)]:.4g}", fmt_num(p, ".4g"))
                 for k, p in enumerate(self.orders)]
         lines = [f"asymptotic check ({self.kind} values, {label} orders)",
-                 _table(("levels (h)", "order"), rows),
-                 f"spread of finest orders: {_fmt(self.spread, '.3g')}   settled: {_yesno(self.settled)}"
+                 fmt_table(("levels (h)", "order"), rows),
+                 f"spread of finest orders: {fmt_num(self.spread, '.3g')}   settled: {_yesno(self.settled)}"
                  + (f"   near formal order {self.formal_order:g}: {_yesno(self.near_formal)}"
                     if self.formal_order is not None else ""),
                  f"floor: {self.floor or 'none detected'}"
@@ -344,7 +345,7 @@ def asymptotic_check(h, e_or_phi, formal_order=None, *, kind="error", scale=None
     if kind not in ("error", "solution"):
         raise AnalysisError(f"kind must be 'error' or 'solution', got {kind!r}")
     need = 3 if kind == "error" else 4
-    h, v = _as_levels(h, e_or_phi, "e_or_phi", need=need)
+    h, v = as_levels(h, e_or_phi, "e_or_phi", need=need)
     n = len(h)
     if kind == "error":
         if np.any(v < 0):
@@ -357,7 +358,7 @@ def asymptotic_check(h, e_or_phi, formal_order=None, *, kind="error", scale=None
         for k in range(n - 2):
             lim = math.log(h[k + 1] / h[k + 2]) / math.log(h[k] / h[k + 1])
             ok = d[k] != 0 and d[k + 1] != 0 and 0 < d[k + 1] / d[k] < lim  # monotone convergence only
-            p = _apparent_order(h[k + 1] / h[k + 2], h[k] / h[k + 1], -d[k + 1], -d[k])[0] if ok else None
+            p = apparent_order(h[k + 1] / h[k + 2], h[k] / h[k + 1], -d[k + 1], -d[k])[0] if ok else None
             orders.append(p)
         proxy, first_level = np.abs(d), 1
         S = float(np.max(np.abs(v))) if scale is None else float(scale)

@@ -18,9 +18,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mmsverify.analysis.celik import _as_levels, _sizes
-from mmsverify.analysis.text import _fmt, _kv, _pct, _table
-from mmsverify.analysis.convergence import ROUNDOFF_LEVEL, _far_from_formal, asymptotic_check, classify_convergence
+from mmsverify.analysis.celik import as_levels, grid_sizes
+from mmsverify.analysis.text import fmt_num, fmt_kv, fmt_pct, fmt_table
+from mmsverify.analysis.convergence import ROUNDOFF_LEVEL, far_from_formal, asymptotic_check, classify_convergence
 from mmsverify.errors import AnalysisError
 from mmsverify.analysis.gci import gci
 from mmsverify.analysis.gridvalues import LevelTable, load_levels, load_profile
@@ -118,17 +118,17 @@ class Assessment:
 
     def __str__(self):
         rows = [(f"{h:.6g}", f"{v:.8g}") for h, v in zip(self.h, self.values)]
-        order = _fmt(self.order, ".3g") + ("" if self.formal_order is None else f" (formal {self.formal_order:g})")
+        order = fmt_num(self.order, ".3g") + ("" if self.formal_order is None else f" (formal {self.formal_order:g})")
         unc = "n/a" if self.uncertainty is None else \
-            f"+/- {self.uncertainty:.3g} ({_pct(self.relative_uncertainty)} of the finest value)"
+            f"+/- {self.uncertainty:.3g} ({fmt_pct(self.relative_uncertainty)} of the finest value)"
         info = [("convergence", "n/a (two levels)" if self.convergence is None else self.convergence.kind),
                 ("observed order", order),
                 ("finest value", f"{self.values[-1]:.8g}"),
-                ("extrapolated value", _fmt(self.extrapolated, ".8g")),
+                ("extrapolated value", fmt_num(self.extrapolated, ".8g")),
                 ("uncertainty of finest value", unc),
                 ("method", self.method or "none valid")]
-        text = (f"quantity {self.name!r}: {len(self.h)} levels, coarse to fine\n" + _table(("h", "value"), rows)
-                + "\n" + _kv(info) + f"\nverdict: {self.verdict}")
+        text = (f"quantity {self.name!r}: {len(self.h)} levels, coarse to fine\n" + fmt_table(("h", "value"), rows)
+                + "\n" + fmt_kv(info) + f"\nverdict: {self.verdict}")
         if self.warnings:
             text += "\n" + "\n".join("warning: " + w for w in self.warnings)
         return text
@@ -139,10 +139,10 @@ def _verdict(rel, method, name):
         return f"no valid discretization-error estimate for {name!r}; see the warnings"
     level = ACCEPTANCE_LEVEL
     if within_acceptance(rel):
-        return (f"{name!r}: the discretization uncertainty is {_pct(rel)} of the finest value ({method}), below "
-                f"{_pct(level, '.2g')} (a common default; the limit that matters is your application's)")
-    return (f"{name!r}: the discretization uncertainty is {_pct(rel)} of the finest value ({method}), above "
-            f"{_pct(level, '.2g')} (a common default; the limit that matters is your application's): refine "
+        return (f"{name!r}: the discretization uncertainty is {fmt_pct(rel)} of the finest value ({method}), below "
+                f"{fmt_pct(level, '.2g')} (a common default; the limit that matters is your application's)")
+    return (f"{name!r}: the discretization uncertainty is {fmt_pct(rel)} of the finest value ({method}), above "
+            f"{fmt_pct(level, '.2g')} (a common default; the limit that matters is your application's): refine "
             "further (the planner, plan() in Python, predicts the grid needed)")
 
 
@@ -171,7 +171,7 @@ def _roundoff_assessment(name, hs, phi, formal_order, level, conv):
         acceptable = None
     else:
         verdict = (f"{name!r}: converged to round-off; the finest value {phi[-1]:.10g} carries at most "
-                   f"+/- {u:.3g} ({_pct(rel)}) of discretization and round-off error")
+                   f"+/- {u:.3g} ({fmt_pct(rel)}) of discretization and round-off error")
         acceptable = within_acceptance(rel)
     return Assessment(name, tuple(hs.tolist()), tuple(phi.tolist()), formal_order, g, conv, None, None, method,
                       None, None, u, rel, acceptable, verdict, tuple(warnings))
@@ -231,7 +231,7 @@ def assess(values, h=None, cells=None, dim=None, volume=None, name="quantity", f
         phi = np.asarray(values, dtype=float)
         if phi.ndim != 1 or len(phi) < 2:
             raise AnalysisError(f"needs values on at least two grids (three or more recommended), got {phi.size}")
-        hs, phi = _as_levels(_sizes(h, cells, dim, volume, len(phi)), phi, "values", need=2)
+        hs, phi = as_levels(grid_sizes(h, cells, dim, volume, len(phi)), phi, "values", need=2)
         if np.all(phi == phi[0]):
             raise AnalysisError(
                 f"all {len(phi)} values are equal ({phi[0]:g}): the quantity does not change with the grid at "
@@ -262,7 +262,7 @@ def assess(values, h=None, cells=None, dim=None, volume=None, name="quantity", f
                   "oscillatory": "GCI_fine21, Celik et al. 2008, oscillatory: with caution"}.get(
                       g.status, "GCI_fine21, Celik et al. 2008")
         ext, p, u, rel = g.phi_ext21, g.p, g.u_fine21, g.gci_fine21
-        if g.status != "two-grid" and _far_from_formal(p, formal_order):
+        if g.status != "two-grid" and far_from_formal(p, formal_order):
             warnings.append(f"observed order {p:.3g} is far from the formal order {formal_order:g}: the grids may be "
                             "outside the asymptotic range, or the scheme is not performing to its design")
     elif ls is not None:
@@ -302,14 +302,14 @@ class AssessmentTable:
         return self.records[key]
 
     def __str__(self):
-        rows = [(r.name, f"{r.values[-1]:.8g}", _fmt(r.extrapolated, ".8g"), _fmt(r.order, ".3g"),
-                 _fmt(r.uncertainty, ".3g"), _pct(r.relative_uncertainty),
+        rows = [(r.name, f"{r.values[-1]:.8g}", fmt_num(r.extrapolated, ".8g"), fmt_num(r.order, ".3g"),
+                 fmt_num(r.uncertainty, ".3g"), fmt_pct(r.relative_uncertainty),
                  "n/a" if r.convergence is None else r.convergence.kind,
                  {True: "yes", False: "NO", None: "n/a"}[r.acceptable], str(len(r.warnings)))
                 for r in self.records]
         text = (f"discretization error of {len(self.records)} quantities from {self.source}\n"
-                + _table(("quantity", "finest", "extrapolated", "p", "+/-", "relative", "convergence",
-                          f"within {_pct(ACCEPTANCE_LEVEL, '.2g')}", "warnings"), rows))
+                + fmt_table(("quantity", "finest", "extrapolated", "p", "+/-", "relative", "convergence",
+                          f"within {fmt_pct(ACCEPTANCE_LEVEL, '.2g')}", "warnings"), rows))
         for r in self.records:
             for w in r.warnings:
                 text += f"\n{r.name}: warning: {w}"

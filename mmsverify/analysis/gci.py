@@ -22,8 +22,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mmsverify.analysis.celik import _FS2, _FS3, _apparent_order, _as_levels, _sizes, representative_h
-from mmsverify.analysis.text import _fmt, _pct, _table
+from mmsverify.analysis.celik import FS2, FS3, apparent_order, as_levels, grid_sizes, representative_h
+from mmsverify.analysis.text import fmt_num, fmt_pct, fmt_table
 from mmsverify.analysis.convergence import classify_convergence
 from mmsverify.errors import AnalysisError
 from mmsverify.analysis.profile import ProfileGCI, gci_profile, plot_profile
@@ -64,7 +64,7 @@ class FormulaValues:
     asymptotic_ratio: object = None
 
     def __str__(self):
-        return _table(("formula value", "number"), [(k, _fmt(getattr(self, k), ".6g")) for k in self.__annotations__])
+        return fmt_table(("formula value", "number"), [(k, fmt_num(getattr(self, k), ".6g")) for k in self.__annotations__])
 
 
 @dataclass(frozen=True)
@@ -145,26 +145,26 @@ class GCIResult:
     def __str__(self):
         n = len(self.h)
         names = ["3 (coarse)", "2", "1 (fine)"][-n:] if n == 3 else ["2 (coarse)", "1 (fine)"]
-        levels = _table(("grid", "h", "phi"), [(nm, f"{h:.6g}", f"{v:.8g}") for nm, h, v in zip(names, self.h, self.phi)])
+        levels = fmt_table(("grid", "h", "phi"), [(nm, f"{h:.6g}", f"{v:.8g}") for nm, h, v in zip(names, self.h, self.phi)])
         why = "" if self.valid else f"not given: {self.status} convergence" if self.status != "no-order" \
             else "not given: no apparent order"
-        val = (lambda x, spec=".6g": _fmt(x, spec) if self.valid else why)
-        pc = (lambda x: _pct(x) if self.valid else why)
-        rows = [("r21, r32", f"{self.r21:.4g}, {_fmt(self.r32, '.4g')}"),
+        val = (lambda x, spec=".6g": fmt_num(x, spec) if self.valid else why)
+        pc = (lambda x: fmt_pct(x) if self.valid else why)
+        rows = [("r21, r32", f"{self.r21:.4g}, {fmt_num(self.r32, '.4g')}"),
                 ("convergence", self.status if self.convergence is None else
-                 f"{self.convergence.kind} (R = {_fmt(self.convergence.ratios[-1], '.4g')})"),
+                 f"{self.convergence.kind} (R = {fmt_num(self.convergence.ratios[-1], '.4g')})"),
                 ("apparent order p" if self.status != "two-grid" else "assumed order p", val(self.p, ".4g")),
                 ("phi_ext21", val(self.phi_ext21, ".8g")),
-                ("e_a21", _pct(self.e_a21)),
+                ("e_a21", fmt_pct(self.e_a21)),
                 ("e_ext21", pc(self.e_ext21)),
                 (f"GCI_fine21 (Fs = {self.safety_factor:g})", pc(self.gci_fine21)),
                 ("uncertainty of phi1 (absolute)", val(self.u_fine21, ".3g"))]
         if n == 3:
             rows += [("GCI_coarse21", pc(self.gci_coarse21)), ("phi_ext32", val(self.phi_ext32, ".8g")),
-                     ("e_a32", _pct(self.e_a32)), ("GCI_fine32", pc(self.gci_fine32)),
+                     ("e_a32", fmt_pct(self.e_a32)), ("GCI_fine32", pc(self.gci_fine32)),
                      ("GCI_fine32 / (r21^p GCI_fine21) (= phi1/phi2)", val(self.asymptotic_ratio, ".4g"))]
         head = f"Richardson extrapolation and GCI (Celik et al. 2008), {n} grids: {'VALID' if self.valid else 'NOT VALID'}"
-        text = head + "\n" + levels + "\n" + _table(("quantity", "value"), rows)
+        text = head + "\n" + levels + "\n" + fmt_table(("quantity", "value"), rows)
         if self.warnings:
             text += "\n" + "\n".join("warning: " + w for w in self.warnings)
         return text
@@ -230,8 +230,8 @@ def gci(values, h=None, cells=None, dim=None, volume=None, formal_order=None, sa
         raise AnalysisError(f"values must be numbers, got {values!r}") from None
     if phi_all.ndim != 1 or len(phi_all) < 2:
         raise AnalysisError(f"a GCI needs values on at least two grids (three recommended), got {phi_all.size}")
-    h_all = _sizes(h, cells, dim, volume, len(phi_all))
-    h_all, phi_all = _as_levels(h_all, phi_all, "values", need=2)
+    h_all = grid_sizes(h, cells, dim, volume, len(phi_all))
+    h_all, phi_all = as_levels(h_all, phi_all, "values", need=2)
     warnings = []
     if len(phi_all) > 3:
         warnings.append(f"{len(phi_all)} levels given; the GCI uses the finest three (see eca_hoekstra for all levels)")
@@ -255,7 +255,7 @@ def gci(values, h=None, cells=None, dim=None, volume=None, formal_order=None, sa
                                 "or better, run a third grid so the order can be measured")
         if formal_order <= 0:
             raise AnalysisError(f"formal_order must be positive, got {formal_order}")
-        fs = _FS2 if safety_factor is None else float(safety_factor)
+        fs = FS2 if safety_factor is None else float(safety_factor)
         p = float(formal_order)
         phi_ext, e_ext, g, gc = _richardson(phi1, phi2, r21, p, fs, e_a21)
         warnings.append(f"two grids: the order is assumed equal to the formal order {p:g} and Fs = {fs:g}; "
@@ -265,7 +265,7 @@ def gci(values, h=None, cells=None, dim=None, volume=None, formal_order=None, sa
                          None, e_ext, None, g, gc, None, fs * abs(eps21) / (r21 ** p - 1), None, fs, None, None, formula,
                          tuple(warnings))
 
-    fs = _FS3 if safety_factor is None else float(safety_factor)
+    fs = FS3 if safety_factor is None else float(safety_factor)
     phi3 = ph[0]
     r32 = hh[0] / hh[1]
     eps32 = phi3 - phi2
@@ -275,7 +275,7 @@ def gci(values, h=None, cells=None, dim=None, volume=None, formal_order=None, sa
             "no order can be computed; check the coarse grid, output more digits, or add a grid")
     e_a32 = _rel(phi2 - phi3, phi2)
     conv = classify_convergence(ph, h=hh)
-    p, it = _apparent_order(r21, r32, eps21, eps32)
+    p, it = apparent_order(r21, r32, eps21, eps32)
     formula = FormulaValues()
     if p is not None and p > 0:
         ext21, e_ext21, g21, gc21 = _richardson(phi1, phi2, r21, p, fs, e_a21)

@@ -35,7 +35,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from mmsverify.analysis.celik import representative_h
-from mmsverify.analysis.text import _fmt, _table
+from mmsverify.analysis.text import fmt_num, fmt_table
 from mmsverify.errors import AnalysisError
 
 __all__ = ["load_levels", "LevelTable", "load_profile"]
@@ -87,11 +87,11 @@ class LevelTable:
         return self.columns[self.names.index(name)]
 
     def __str__(self):
-        rows = [(_fmt(s, ".8g"), f"{h:.6g}", *(_fmt(c[i], ".8g") for c in self.columns))
+        rows = [(fmt_num(s, ".8g"), f"{h:.6g}", *(fmt_num(c[i], ".8g") for c in self.columns))
                 for i, (s, h) in enumerate(zip(self.sizes, self.h))]
         head = (self.size_column, "h") if self.size_column == "cells" else ("h", "h (same)")
         note = " (listed fine to coarse in the file; reordered)" if self.reversed else ""
-        return f"{self.path}: {len(self.h)} levels, coarse to fine{note}\n" + _table(head + self.names, rows)
+        return f"{self.path}: {len(self.h)} levels, coarse to fine{note}\n" + fmt_table(head + self.names, rows)
 
 
 def _read_text(path, what):

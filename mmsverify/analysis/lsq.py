@@ -11,8 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mmsverify.analysis.celik import _as_levels
-from mmsverify.analysis.text import _fmt, _pct, _table
+from mmsverify.analysis.celik import as_levels
+from mmsverify.analysis.text import fmt_num, fmt_pct, fmt_table
 from mmsverify.errors import AnalysisError
 
 __all__ = ["eca_hoekstra", "LeastSquaresUncertainty"]
@@ -122,12 +122,12 @@ class LeastSquaresUncertainty:
             f"  behaviour: {self.behaviour}",
             f"  fit used: {self.fit_used} ({'weighted' if self.weighted else 'unweighted'}), "
             f"sigma = {self.sigma:.4g}, data range = {self.data_range:.4g}, Fs = {self.safety_factor:g}",
-            f"  observed order p = {_fmt(self.p, '.4g')}   extrapolated value phi0 = {self.phi0:.8g}",
+            f"  observed order p = {fmt_num(self.p, '.4g')}   extrapolated value phi0 = {self.phi0:.8g}",
         ]
         rows = [(f"{h:.6g}", f"{v:.8g}", f"{e:.3g}", f"{u:.3g}",
-                 _pct(None if v == 0 else u / abs(v)))
+                 fmt_pct(None if v == 0 else u / abs(v)))
                 for h, v, e, u in zip(self.h, self.phi, self.error, self.uncertainty)]
-        return "\n".join(head) + "\n" + _table(("h", "phi", "error", "U", "U/|phi|"), rows)
+        return "\n".join(head) + "\n" + fmt_table(("h", "phi", "error", "U", "U/|phi|"), rows)
 
 
 def eca_hoekstra(h, phi, p_max=8.0):
@@ -174,7 +174,7 @@ def eca_hoekstra(h, phi, p_max=8.0):
     # and the p < 0.5 fallback to the smallest-sigma of p = 1, p = 2 and h + h^2.
     # from memory: the normalisation of sigma (n_g - n_params), the p >= 2 branch,
     # treating non-monotone data as anomalous, and requiring four or more levels.
-    h, phi = _as_levels(h, phi, "phi", need=4)
+    h, phi = as_levels(h, phi, "phi", need=4)
     n = len(h)
     d = np.diff(phi)
     if np.all(d == 0):

@@ -20,8 +20,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mmsverify.analysis.celik import _as_levels
-from mmsverify.analysis.text import _table
+from mmsverify.analysis.celik import as_levels
+from mmsverify.analysis.text import fmt_table
 from mmsverify.analysis.convergence import AsymptoticCheck, ConvergenceClass, asymptotic_check, classify_convergence
 from mmsverify.errors import AnalysisError
 from mmsverify.analysis.lsq import LeastSquaresUncertainty, eca_hoekstra
@@ -119,7 +119,7 @@ class OrderFit:
             ("rms residual of ln(error)", f"{self.residual_rms:.3g}"),
             ("levels", str(self.levels)),
         ]
-        return _table(("quantity", "value"), rows)
+        return fmt_table(("quantity", "value"), rows)
 
 
 def fit_order(h, e, confidence=0.95):
@@ -151,7 +151,7 @@ def fit_order(h, e, confidence=0.95):
     >>> round(fit.p_low, 9), round(fit.p_high, 9)
     (2.0, 2.0)
     """
-    h, e = _as_levels(h, e, "e", need=2)
+    h, e = as_levels(h, e, "e", need=2)
     if not 0.0 < confidence < 1.0:
         raise AnalysisError(f"confidence must lie between 0 and 1 (e.g. 0.95), got {confidence}")
     bad = np.nonzero(e <= 0)[0]

@@ -11,9 +11,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mmsverify.analysis.celik import _FS3, _as_levels, _sizes
-from mmsverify.analysis.text import _fmt, _kv, _pct
-from mmsverify.analysis.convergence import _far_from_formal, asymptotic_check
+from mmsverify.analysis.celik import FS3, as_levels, grid_sizes
+from mmsverify.analysis.text import fmt_num, fmt_kv, fmt_pct
+from mmsverify.analysis.convergence import far_from_formal, asymptotic_check
 from mmsverify.errors import AnalysisError
 from mmsverify.analysis.gci import gci
 from mmsverify.analysis.order import fit_order
@@ -71,17 +71,17 @@ class Plan:
     advice: str
 
     def __str__(self):
-        tgt = _pct(self.target) if self.measure == "gci" else f"{self.target:.3g}"
+        tgt = fmt_pct(self.target) if self.measure == "gci" else f"{self.target:.3g}"
         rows = [("target", f"{tgt} ({self.measure})"),
                 (f"{self.measure} model", "n/a" if self.order is None else f"{self.constant:.4g} h^{self.order:.3g}"),
-                ("h needed", _fmt(self.h_needed, ".4g")),
+                ("h needed", fmt_num(self.h_needed, ".4g")),
                 ("refinement from finest level", "n/a" if self.refinement is None else f"{self.refinement:.3g}x in h"),
-                ("cells needed", _fmt(self.cells_needed, ".4g")),
+                ("cells needed", fmt_num(self.cells_needed, ".4g")),
                 (f"run time model (vs {self.time_model})",
                  "n/a" if self.time_exponent is None else f"exponent {self.time_exponent:.3g}"),
-                ("predicted run time", _fmt(self.time_needed, ".3g")),
+                ("predicted run time", fmt_num(self.time_needed, ".3g")),
                 ("prediction reliable", "yes" if self.reliable else "NO")]
-        text = _kv(rows) + f"\nadvice: {self.advice}"
+        text = fmt_kv(rows) + f"\nadvice: {self.advice}"
         return text + "".join(f"\nreason: {r}" for r in self.reasons)
 
 
@@ -96,7 +96,7 @@ def _loglog(x, y):
 
 
 def plan(h, values, times, target, *, kind="error", measure="error", cells=None, dim=None, volume=None,
-         formal_order=None, safety_factor=_FS3, time_unit="time units"):
+         formal_order=None, safety_factor=FS3, time_unit="time units"):
     """Predict the grid size and run time needed to reach a target error.
 
     Parameters
@@ -156,8 +156,8 @@ def plan(h, values, times, target, *, kind="error", measure="error", cells=None,
     if not (isinstance(target, (int, float)) and math.isfinite(target) and target > 0):
         raise AnalysisError(f"target must be a positive number, got {target!r}")
     v = np.asarray(values, dtype=float)
-    sizes = h if (h is not None and cells is not None) else _sizes(h, cells, dim, volume, len(v))
-    hs, v = _as_levels(sizes, v, "values", need=2)
+    sizes = h if (h is not None and cells is not None) else grid_sizes(h, cells, dim, volume, len(v))
+    hs, v = as_levels(sizes, v, "values", need=2)
     t = np.asarray(times, dtype=float)
     if t.shape != v.shape or not np.all(np.isfinite(t)) or np.any(t <= 0):
         raise AnalysisError(f"times must be positive, one per level ({len(v)}), got {np.atleast_1d(t).tolist()}")
@@ -196,7 +196,7 @@ def plan(h, values, times, target, *, kind="error", measure="error", cells=None,
                 raise AnalysisError("the extrapolated value is zero: a relative GCI target is undefined; use "
                                     "measure='error'")
             const = safety_factor * const / abs(g.phi_ext21)
-    if _far_from_formal(order, formal_order):
+    if far_from_formal(order, formal_order):
         reasons.append(f"observed order {order:.3g} is far from the formal order {formal_order:g}")
     # run-time model
     tail = slice(max(0, n - 3), n)

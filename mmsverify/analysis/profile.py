@@ -12,8 +12,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mmsverify.analysis.celik import _FS3, _apparent_order, _as_levels, _sizes
-from mmsverify.analysis.text import _fmt, _pct, _table
+from mmsverify.analysis.celik import FS3, apparent_order, as_levels, grid_sizes
+from mmsverify.analysis.text import fmt_num, fmt_pct, fmt_table
 from mmsverify.errors import AnalysisError
 
 __all__ = ["gci_profile", "ProfileGCI", "plot_profile"]
@@ -93,7 +93,7 @@ class ProfileGCI:
     def __str__(self):
         n = len(self.status)
         inside = n - self.count("outside")
-        rows = [(s, str(self.count(s)), _pct(self.count(s) / inside if inside else None))
+        rows = [(s, str(self.count(s)), fmt_pct(self.count(s) / inside if inside else None))
                 for s in ("monotone", "oscillatory", "divergent", "equal")]
         rows.append(("outside coarser grids", str(self.count("outside")), ""))
         mono = self.p_local[np.isfinite(self.p_local)]
@@ -102,13 +102,13 @@ class ProfileGCI:
                  f"r32 = {self.r32:.4g}, Fs = {self.safety_factor:g}, {self.interpolation} interpolation"
                  + ("" if self.interpolation_effect is None else
                     f" (cubic vs linear: {self.interpolation_effect:.2g} of the grid differences)"),
-                 _table(("points", "count", "share"), rows),
-                 f"average apparent order (monotone points): {_fmt(self.p_average, '.4g')}"
+                 fmt_table(("points", "count", "share"), rows),
+                 f"average apparent order (monotone points): {fmt_num(self.p_average, '.4g')}"
                  + (f"   local range {mono.min():.3g} .. {mono.max():.3g}" if mono.size else ""),
                  f"error bars from the {self.order} order at {g.size} points"
-                 + (f"; GCI_fine21 median {_pct(float(np.median(g)))}, max {_pct(float(g.max()))}" if g.size else "")]
+                 + (f"; GCI_fine21 median {fmt_pct(float(np.median(g)))}, max {fmt_pct(float(g.max()))}" if g.size else "")]
         if self.share_oscillatory > 0:
-            lines.append(f"warning: {_pct(self.share_oscillatory)} of the points converge in an oscillatory way"
+            lines.append(f"warning: {fmt_pct(self.share_oscillatory)} of the points converge in an oscillatory way"
                          + ("; they have no error bar" if self.order == "local" else
                             "; their bars rest on the average order only"))
         lines += ["warning: " + w for w in self.warnings]
@@ -162,7 +162,7 @@ def _pointwise_order(r21, r32, eps21, eps32):
                 break
         bad = ~(np.isfinite(p) & done)
     for i in np.nonzero(bad)[0]:
-        q, _ = _apparent_order(r21, r32, eps21[i], eps32[i])
+        q, _ = apparent_order(r21, r32, eps21[i], eps32[i])
         p[i] = np.nan if q is None else q
     return p
 
@@ -180,7 +180,7 @@ def _as_points(pts, label):
     return a
 
 
-def gci_profile(points, values, h=None, cells=None, dim=None, volume=None, safety_factor=_FS3, order="local",
+def gci_profile(points, values, h=None, cells=None, dim=None, volume=None, safety_factor=FS3, order="local",
                 interpolation="cubic"):
     """Pointwise GCI of a profile (1-D line) or field (N-D scattered points) on three grids.
 
@@ -245,8 +245,8 @@ def gci_profile(points, values, h=None, cells=None, dim=None, volume=None, safet
         vals.append(a)
     if len({p.shape[1] for p in pts}) != 1:
         raise AnalysisError("the three grids' points have different numbers of coordinates")
-    hs = _sizes(h, cells, dim, volume, 3)
-    hs, _ = _as_levels(hs, [0.0, 0.0, 0.0], "points, values", need=3)
+    hs = grid_sizes(h, cells, dim, volume, 3)
+    hs, _ = as_levels(hs, [0.0, 0.0, 0.0], "points, values", need=3)
     counts = [p.shape[0] for p in pts]
     if counts[0] > counts[1] > counts[2]:
         raise AnalysisError(f"the grids have {counts[0]}, {counts[1]} and {counts[2]} points from first to last while "
@@ -362,8 +362,8 @@ def plot_profile(result, path, *, label="phi", title=None):
         ax.plot(x[osc], result.phi1[osc], "x", color="C3", ms=7, label="oscillatory convergence")
     ax.set_xlabel("x" if line else "point index")
     ax.set_ylabel(label)
-    ax.set_title(title or f"{label}: p_ave = {_fmt(result.p_average, '.3g')}, "
-                          f"oscillatory {_pct(result.share_oscillatory)}")
+    ax.set_title(title or f"{label}: p_ave = {fmt_num(result.p_average, '.3g')}, "
+                          f"oscillatory {fmt_pct(result.share_oscillatory)}")
     ax.legend(fontsize="small")
     fig.tight_layout()
     fig.savefig(path)

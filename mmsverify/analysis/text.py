@@ -8,13 +8,13 @@ prints a missing number the same way (``n/a``).
 
 import math
 
-__all__ = []
+__all__ = ["fmt_num", "fmt_pct", "fmt_table", "fmt_kv"]
 
 
-def _fmt(x, spec=".6g"):
+def fmt_num(x, spec=".6g"):
     """Format a number for a report; ``None`` and NaN print as ``n/a``.
 
-    >>> _fmt(None), _fmt(float("nan")), _fmt(2.0 / 3.0, ".3g"), _fmt("text")
+    >>> fmt_num(None), fmt_num(float("nan")), fmt_num(2.0 / 3.0, ".3g"), fmt_num("text")
     ('n/a', 'n/a', '0.667', 'text')
     """
     if x is None:
@@ -28,19 +28,19 @@ def _fmt(x, spec=".6g"):
     return format(xf, spec)
 
 
-def _pct(x, spec=".3g"):
+def fmt_pct(x, spec=".3g"):
     """Format a fraction as a percentage; ``None`` prints as ``n/a``.
 
-    >>> _pct(0.0224), _pct(None)
+    >>> fmt_pct(0.0224), fmt_pct(None)
     ('2.24 %', 'n/a')
     """
     return "n/a" if x is None or (isinstance(x, float) and math.isnan(x)) else format(100.0 * x, spec) + " %"
 
 
-def _table(header, rows):
+def fmt_table(header, rows):
     """Plain-text table with columns padded to their widest cell.
 
-    >>> print(_table(("h", "value"), [("0.1", "4e-3"), ("0.05", "1e-3")]))
+    >>> print(fmt_table(("h", "value"), [("0.1", "4e-3"), ("0.05", "1e-3")]))
        h  value
     ----  -----
      0.1   4e-3
@@ -53,10 +53,10 @@ def _table(header, rows):
     return "\n".join(lines)
 
 
-def _kv(rows):
+def fmt_kv(rows):
     """Label-value lines with the labels padded to one width.
 
-    >>> print(_kv([("order", "2"), ("finest value", "6.063")]))
+    >>> print(fmt_kv([("order", "2"), ("finest value", "6.063")]))
     order         2
     finest value  6.063
     """

@@ -59,10 +59,9 @@ def add_execution_options(p):
 
 def exit_code(result):
     """0 confirmed, 1 an order missed, 3 inconclusive; 2 when no level ran (a set-up the solver refuses)."""
-    from mmsverify.outputs.report._common import outcome
     if result.levels and not any(lv.ok for lv in result.levels):
         return EXIT_INPUT
-    return {"pass": EXIT_OK, "fail": EXIT_FAIL}.get(outcome(result), EXIT_INCONCLUSIVE)
+    return {"pass": EXIT_OK, "fail": EXIT_FAIL}.get(result.outcome, EXIT_INCONCLUSIVE)
 
 
 def _param(text):
@@ -210,7 +209,7 @@ def _run(args):
     if args.target_error is not None and not quiet:
         print_plans(result, args.target_error)
     if args.json:
-        from mmsverify.outputs.report.files import write_json
+        from mmsverify.outputs.studyfile import write_json
         write_json(result, args.json)
         if not quiet:
             print(f"\nwrote {args.json}")

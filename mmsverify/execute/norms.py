@@ -17,7 +17,7 @@ import string
 
 import numpy as np
 
-__all__ = ["NORMS", "error_norms"]
+__all__ = ["NORMS", "error_norms", "magnitude_norms"]
 
 NORMS = ("L1", "L2", "Linf")
 
@@ -31,7 +31,7 @@ def _sum_of_products(*arrays):
     return np.einsum(",".join([axes] * len(arrays)) + "->", *arrays)
 
 
-def _magnitude_norms(e, weights=None):
+def magnitude_norms(e, weights=None):
     """The norms of :func:`error_norms` for a float array ``e`` that already holds ``|error|``."""
     if weights is None:
         n = e.size
@@ -65,4 +65,4 @@ def error_norms(error, weights=None):
     >>> error_norms([1.0, -3.0], [3.0, 1.0])
     {'L1': 1.5, 'L2': 1.7320508075688772, 'Linf': 3.0}
     """
-    return _magnitude_norms(np.abs(np.asarray(error, dtype=float)), weights)
+    return magnitude_norms(np.abs(np.asarray(error, dtype=float)), weights)

@@ -25,7 +25,7 @@ from mmsverify import _diskcache
 from mmsverify.problem.derive import derive
 from mmsverify.errors import AnalysisError, GridError, MMSError, SolverError
 from mmsverify.execute.grids import Grid, check_refinement, refinement
-from mmsverify.execute.norms import NORMS, _magnitude_norms
+from mmsverify.execute.norms import NORMS, magnitude_norms
 from mmsverify.analysis.order import observed_orders
 from mmsverify.problem.record import get_problem
 from mmsverify.execute.solvers import Case, check_solution, resolve_solver, solver_name
@@ -130,6 +130,21 @@ class StudyResult:
         return self.orders_confirmed and not self.failed_levels
 
     @property
+    def outcome(self):
+        """``"pass"``, ``"fail"`` or ``"inconclusive"``: what the study shows, as the exit codes say it.
+
+        ``fail`` when the fitted evidence says an order is off the formal
+        order (below or above) or a level failed, ``inconclusive`` when the
+        levels cannot decide (an error floor, too few levels in the
+        asymptotic range, errors at round-off).
+        """
+        if self.passed:
+            return "pass"
+        if any(v.status in ("below", "above") for v in self.verdicts) or self.failed_levels:
+            return "fail"
+        return "inconclusive"
+
+    @property
     def failed_levels(self):
         return tuple(lv for lv in self.levels if not lv.ok)
 
@@ -197,7 +212,7 @@ class StudyResult:
         }
 
     def __str__(self):
-        from mmsverify.outputs.report.text import format_study
+        from mmsverify.render.text import format_study
         return format_study(self)
 
 
@@ -570,7 +585,7 @@ def _run_level(solver, case, where):
             own = exact.flags.owndata and exact.shape == v.shape and not any(
                 np.may_share_memory(exact, a) for a in (v, *points))
             magnitude = np.subtract(v, exact, out=exact if own else None)
-            errors[name] = _magnitude_norms(np.abs(magnitude, out=magnitude), weights)
+            errors[name] = magnitude_norms(np.abs(magnitude, out=magnitude), weights)
         quantities = {}
         for name, q in sol.quantities.items():
             exact = mms.exact_quantity(name, t=t)

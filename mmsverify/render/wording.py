@@ -1,4 +1,4 @@
-"""Pieces every report format shares: the outcome, the headline, the tables.
+"""Wording every report format shares: the headline, the tables, the cautions.
 
 Kept free of any output syntax, so the text, Markdown, HTML and CSV
 writers say the same thing in the same order: verdict, evidence, cautions.
@@ -8,31 +8,12 @@ import numpy as np
 
 from mmsverify.execute.norms import NORMS
 
-__all__ = ["outcome", "headline", "level_rows", "axis_name", "fmt_num", "fmt_order", "study_facts", "CAPTIONS",
-           "TITLES", "extra_cautions", "OUTCOMES", "notes"]
-
-#: Words of the overall outcome, in the order of severity.
-OUTCOMES = ("pass", "fail", "inconclusive")
-
-
-def outcome(result):
-    """``"pass"``, ``"fail"`` or ``"inconclusive"`` for a study.
-
-    ``fail`` when the fitted evidence says an order is off the formal order
-    (below or above) or a level failed, ``inconclusive`` when the levels
-    cannot decide (an error floor, too few levels in the asymptotic range,
-    errors at round-off). Matches the command-line exit codes.
-    """
-    if result.passed:
-        return "pass"
-    if any(v.status in ("below", "above") for v in result.verdicts) or result.failed_levels:
-        return "fail"
-    return "inconclusive"
-
+__all__ = ["headline", "level_rows", "axis_name", "fmt_num", "fmt_order", "study_facts", "CAPTIONS",
+           "TITLES", "extra_cautions", "notes"]
 
 def headline(result):
     """One sentence stating the verdict, for the top of every report."""
-    kind = outcome(result)
+    kind = result.outcome
     p = f"{result.formal_order:g}"
     n = len(result.verdicts)
     failed = [str(lv.level) for lv in result.failed_levels]
@@ -116,7 +97,7 @@ def study_facts(result):
     return facts
 
 
-#: Caption of each figure of :func:`mmsverify.outputs.report.plots.study_figures`.
+#: Caption of each figure of :func:`mmsverify.render.plots.study_figures`.
 CAPTIONS = {
     "error": ("Error norms against the grid size on log-log axes. Dashed lines have the slope of the formal "
               "order and pass through the finest point of each norm; data parallel to them converge at the "

@@ -5,7 +5,7 @@ import textwrap
 import numpy as np
 
 from mmsverify.execute.norms import NORMS
-from mmsverify.outputs.report._common import notes, outcome
+from mmsverify.render.wording import notes
 
 __all__ = ["format_study", "CAUTION"]
 
@@ -33,7 +33,7 @@ def format_study(result, caution=True):
     prints several studies and the caution once).
     """
     lines = []
-    overall = outcome(result).upper()
+    overall = result.outcome.upper()
     failed = [str(lv.level) for lv in result.failed_levels]
     none_ran = bool(result.levels) and len(failed) == len(result.levels)
     if none_ran:
