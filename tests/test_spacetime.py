@@ -193,7 +193,10 @@ def test_only_polluted_studies_failing_is_inconclusive():
     from mmsverify.study.spacetime import SpaceTimeResult
 
     class Study:
-        def __init__(self, passed):
-            self.passed = passed
-    assert SpaceTimeResult(Study(False), Study(True), Study(True), polluted=("space",)).outcome == "inconclusive"
-    assert SpaceTimeResult(Study(False), Study(False), Study(True), polluted=("space",)).outcome == "fail"
+        def __init__(self, outcome):
+            self.outcome, self.passed = outcome, outcome == "pass"
+    fail, ok, unsure = Study("fail"), Study("pass"), Study("inconclusive")
+    assert SpaceTimeResult(fail, ok, ok, polluted=("space",)).outcome == "inconclusive"
+    assert SpaceTimeResult(fail, fail, ok, polluted=("space",)).outcome == "fail"
+    assert SpaceTimeResult(ok, unsure, ok).outcome == "inconclusive"
+    assert SpaceTimeResult(ok, ok, ok).outcome == "pass"

@@ -60,13 +60,13 @@ class SpaceTimeResult:
 
     @property
     def outcome(self):
-        """``"pass"``; ``"fail"`` when a study fails on its own evidence; ``"inconclusive"`` when the only
-        failing studies are those (named in :attr:`polluted`) whose errors the other direction's error swamps."""
+        """``"pass"``; ``"fail"`` when a study fails on its own evidence; ``"inconclusive"`` otherwise: a study
+        that cannot decide, or one (named in :attr:`polluted`) whose errors the other direction's swamps."""
         if self.passed:
             return "pass"
-        failed = [label for label, r in (("time", self.time), ("space", self.space), ("combined", self.combined))
-                  if not r.passed]
-        return "inconclusive" if set(failed) <= set(self.polluted) else "fail"
+        studies = (("time", self.time), ("space", self.space), ("combined", self.combined))
+        failed = [label for label, r in studies if r.outcome == "fail" and label not in self.polluted]
+        return "fail" if failed else "inconclusive"
 
     def summary(self):
         """One line per study: what was fixed, what was refined, verdicts."""
