@@ -108,19 +108,12 @@ class Operator:
 
 
 def _d(expr, *spec):
-    """Derivative through the expression's own method: sympy and symengine expressions alike."""
-    return expr.diff(*spec) if hasattr(expr, "diff") else sp.diff(expr, *spec)
+    return sp.diff(expr, *spec)
 
 
 def _sum(terms):
-    """Sum of a list of sympy or symengine expressions (sympy: one flattening ``Add``)."""
-    terms = list(terms)
-    if not any(type(term).__module__.startswith("symengine") for term in terms):
-        return sp.Add(*terms)
-    out = 0
-    for term in terms:
-        out = term + out
-    return out
+    """Sum of a list of expressions as one flattening ``Add``."""
+    return sp.Add(*terms)
 
 
 def _grad(u, X):

@@ -14,13 +14,11 @@ levels support.
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 import math
-import multiprocessing
 import time
 import traceback
 
 import numpy as np
 
-from . import _diskcache
 from .derive import derive
 from .errors import AnalysisError, GridError, MMSError, SolverError
 from .grids import Grid, check_refinement, refinement
@@ -453,12 +451,7 @@ def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combi
 
 def run_level(solver, case, where):
     """Run one level and measure its errors; never raises for solver faults."""
-    try:
-        return _run_level(solver, case, where)
-    finally:
-        if multiprocessing.parent_process() is not None:
-            # a worker process ends without running exit handlers: write the cache entries it made now
-            _diskcache.flush()
+    return _run_level(solver, case, where)
 
 
 def _run_level(solver, case, where):
