@@ -51,8 +51,9 @@ is ever executed. The format, with every table but ``[fields]`` optional::
     base_steps = 8                      # time steps of the coarsest level
 
 Limits (each a :class:`~mmsverify.errors.ProblemError` naming the file and
-the place, never a hang): files of at most ``MAX_FILE_CHARS`` characters;
-the limits of the expression parser (:mod:`mmsverify.expr`); at most
+the place, never a hang): files of at most ``MAX_FILE_CHARS`` characters,
+keys of at most ``MAX_KEY_PARTS`` dotted parts and tables of at most
+``MAX_TABLE_ENTRIES`` entries; the limits of the expression parser (:mod:`mmsverify.expr`); at most
 ``MAX_EQUATION_NODES`` nodes in the expression tree of each derived source
 term or flux. All of them are counts, so the same file gets the same answer
 on every machine. Numbers are finite; orders are whole numbers from 1 to
@@ -72,10 +73,11 @@ import sympy as sp
 
 from .errors import ProblemError, MMSError
 from .expr import canonical_form, parse_expression
-from .operators import OPERATORS, get_operator, derivative_functions
+from .operators import OPERATORS, DerivativeTooLarge, derivation_budget, derivative_functions, get_operator
 
 __all__ = ["Problem", "load_problem", "problem_from_text", "bundled_problems", "get_problem",
-           "SIDES", "PROBLEM_DIR", "MAX_FILE_CHARS", "MAX_EQUATION_NODES", "MAX_ORDER"]
+           "SIDES", "PROBLEM_DIR", "MAX_FILE_CHARS", "MAX_KEY_PARTS", "MAX_TABLE_ENTRIES", "MAX_EQUATION_NODES",
+           "MAX_ORDER"]
 
 PROBLEM_DIR = Path(__file__).resolve().parent.parent / "problems"
 SPACE = ("x", "y", "z")
@@ -86,6 +88,10 @@ MAX_FILE_CHARS = 1_000_000
 #: Largest expression tree (nodes) of one derived source term or flux;
 #: the 3-D compressible Navier-Stokes energy equation has about 8 000.
 MAX_EQUATION_NODES = 100_000
+#: Most dotted parts of one key or table name (``[operator.equations]`` has two).
+MAX_KEY_PARTS = 16
+#: Most entries in one table ([constants], [fields], [quantities], ...).
+MAX_TABLE_ENTRIES = 200
 #: Largest formal order accepted in [order].
 MAX_ORDER = 20
 _STUDY_KEYS = {"levels": (2, 30), "base_cells": (1, 10**9), "ratio": None, "base_steps": (1, 10**9)}
@@ -272,6 +278,9 @@ class _Reader:
             raise ProblemError(f"{self.source}: missing [{name}] table; add it (see `mmsverify list --format`)")
         if not isinstance(value, dict):
             raise ProblemError(f"{self.source}: [{name}] must be a table of key = value lines")
+        if len(value) > MAX_TABLE_ENTRIES:
+            raise ProblemError(f"{self.source}: [{name}] has {len(value)} entries; a problem file holds at most "
+                               f"{MAX_TABLE_ENTRIES} per table")
         return value
 
     def known_keys(self, section, table, allowed):
@@ -371,6 +380,9 @@ class _Reader:
         equations, fluxes, parameters = {}, {}, {}
         if kind == "custom":
             eqs = op_tab.pop("equations", None)
+            if isinstance(eqs, dict) and len(eqs) > MAX_TABLE_ENTRIES:
+                raise ProblemError(f"{self.source}: [operator.equations] has {len(eqs)} entries; a problem file "
+                                   f"holds at most {MAX_TABLE_ENTRIES} per table")
             if not isinstance(eqs, dict) or not eqs:
                 raise ProblemError(f"{self.where('operator')}: a custom operator needs an [operator.equations] "
                                    "table with one equation per field, e.g. u = \"-lap(u)\"")
@@ -380,7 +392,8 @@ class _Reader:
             for k, v in eqs.items():
                 if k not in fields:
                     self.fail("operator.equations", k, f"names no field; fields are {', '.join(fields)}")
-                equations[k] = self.expression("operator.equations", k, v, {**with_fields, **parameters}, fns)
+                with derivation_budget():
+                    equations[k] = self.expression("operator.equations", k, v, {**with_fields, **parameters}, fns)
             missing = set(fields) - set(equations)
             if missing:
                 raise ProblemError(f"{self.where('operator.equations')}: no equation for field(s) "
@@ -404,8 +417,14 @@ class _Reader:
                           f"not a parameter of {kind}; its parameters are {', '.join(op.parameters)}")
             for k, default in op.parameters.items():
                 parameters[k] = self.expression("operator", k, op_tab.get(k, default), with_fields)
-            equations = op.residuals(fields, coords, t, parameters)
-            fluxes = op.fluxes(fields, coords, parameters)
+            try:
+                with derivation_budget():
+                    equations = op.residuals(fields, coords, t, parameters)
+                    fluxes = op.fluxes(fields, coords, parameters)
+            except DerivativeTooLarge as exc:
+                self.fail("operator", "kind", f"{exc} while deriving the source terms; use fewer or simpler terms in "
+                                              "the fields (each factor of a product multiplies the size of every "
+                                              "derivative)")
         for k, e in equations.items():
             self.check_size("operator.equations" if kind == "custom" else "operator", k if kind == "custom"
                             else "kind", e, f"the source term of equation {k!r}")
@@ -561,6 +580,10 @@ def problem_from_text(text, source="<text>"):
     if len(text) > MAX_FILE_CHARS:
         raise ProblemError(f"{source}: the file has {len(text)} characters; problem files are limited to "
                            f"{MAX_FILE_CHARS} (define long expressions with fewer terms)")
+    for number, line in enumerate(text.splitlines(), 1):
+        if line.split("=", 1)[0].count(".") > MAX_KEY_PARTS:    # the TOML reader is slow on such keys
+            raise ProblemError(f"{source}, line {number}: a key of more than {MAX_KEY_PARTS} dotted parts; problem "
+                               "files use tables at most two levels deep, such as [operator.equations]")
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
