@@ -5,6 +5,7 @@ import contextlib
 import importlib
 import io
 import re
+import sys
 
 import pytest
 

@@ -21,7 +21,7 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from mmsverify import derive, load_problem
+from mmsverify import derive, load_problem, problem_from_text
 from mmsverify._evaluate import BLOCK, Evaluator, build_program
 from mmsverify.derive import _Programs
 

@@ -15,4 +15,4 @@ def test_design_warnings_are_printed_ahead_of_the_table(monkeypatch, capsys):
     monkeypatch.setattr(design, "design_warnings", lambda *a, **k: ["design: a seeded warning"])
     code = cli.console(["run", "plate-poisson", "poisson2d", "--levels", "2"])
     err, out = capsys.readouterr()[::-1]
-    assert code in (0, 3) and "warning: design: a seeded warning" in err and "plate-poisson" in out
+    assert code != 2 and "warning: design: a seeded warning" in err and "plate-poisson" in out   # the study ran
