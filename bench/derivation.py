@@ -1,6 +1,6 @@
 """Cold derivation of compressible Navier-Stokes sources, each in a fresh process.
 
-For problems/compressible-2d.toml and compressible-3d.toml: reading the
+For mmsverify/problem/bundled/compressible-2d.toml and compressible-3d.toml: reading the
 file, differentiating (sources, fluxes), the content hash, then generating
 the evaluator code (CSE, hoisting, printing) of every source term and exact
 field. Imports (mmsverify, sympy, NumPy) are timed apart from derivation.

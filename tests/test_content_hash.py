@@ -16,7 +16,7 @@ from mmsverify import bundled_problems, derive, load_problem, problem_from_text
 
 ROOT = Path(__file__).resolve().parent.parent
 
-# The value for problems/plate-poisson.toml, worked out once from the canonical form of its tables.
+# The value for the bundled plate-poisson.toml, worked out once from the canonical form of its tables.
 # A change here is a change of every baseline and cache key: make it only on purpose (a new format).
 PLATE_POISSON = "a9eeb1370ffd3cf0ed38f371b882afeda2ec8177e2295a2fa616d0d5d953ad8d"
 

@@ -22,8 +22,8 @@ import pytest
 import sympy as sp
 
 from mmsverify import derive, load_problem, problem_from_text
-from mmsverify._evaluate import BLOCK, Evaluator, build_program
-from mmsverify.derive import _Programs
+from mmsverify.problem.evaluate import BLOCK, Evaluator, build_program
+from mmsverify.problem.derive import _Programs
 
 ROOT = Path(__file__).resolve().parent.parent
 

@@ -1,6 +1,7 @@
 """The ``mmsverify run`` command checks the solver's name before any other work."""
 
-from mmsverify import cli, design
+from mmsverify import cli
+from mmsverify.design import checks as design
 
 
 def test_a_bad_solver_name_fails_before_the_design_checks(monkeypatch, capsys):
