@@ -109,7 +109,7 @@ def _child(argv):
         import_module(f"mmsverify.{m}") for m in ("execute.cache", "problem.derive", "problem.record",
                                                   "study.refinement", "cli.progress"))
     import_module("mmsverify.execute.runner")  # imported by run_study on first use; not part of the timed run
-    files_mod = import_module("mmsverify.outputs.report.files")
+    files_mod = import_module("mmsverify.outputs.studyfile")
     import solvers_demo.fd.poisson  # noqa: F401  (the solver's modules and libraries: their imports are not harness)
     import pyamg  # noqa: F401
     import scipy.fft  # noqa: F401

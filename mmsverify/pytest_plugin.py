@@ -26,12 +26,12 @@ def pytest_addoption(parser):
 
 
 def _record(request, result):
-    from mmsverify.outputs.report.wording import headline
+    from mmsverify.render.wording import headline
     request.node.user_properties.append(("mmsverify", f"{result.outcome}: {result.problem} with "
                                                       f"{result.solver}: {headline(result)}"))
     folder = request.config.getoption("mmsverify_reports")
     if folder:
-        from mmsverify.outputs.report import write_reports
+        from mmsverify.outputs.reports import write_reports
         stem = re.sub(r"[^A-Za-z0-9_.-]+", "_", request.node.nodeid).strip("_")
         count = sum(1 for k, _ in request.node.user_properties if k == "mmsverify")
         write_reports(result, folder, ("html", "json"), stem=f"{stem}_{count}" if count > 1 else stem)

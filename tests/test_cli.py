@@ -59,7 +59,7 @@ def test_run_warns_ahead_of_a_study_whose_design_cannot_catch_mistakes(capsys):
 
 
 def test_quiet_run_prints_the_headline_and_json_reads_back(tmp_path, capsys):
-    from mmsverify.outputs.report.files import read_json
+    from mmsverify.outputs.studyfile import read_json
     out = tmp_path / "q.json"
     assert main(["run", "plate-poisson", "poisson2d", "--levels", "4", "--quiet", "--json", str(out)]) == 0
     assert capsys.readouterr().out.strip() == "PASS  plate-poisson  solved by  poisson2d"

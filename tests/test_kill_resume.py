@@ -22,7 +22,7 @@ import time
 import pytest
 
 from mmsverify import run_study
-from mmsverify.outputs.report.files import read_json
+from mmsverify.outputs.studyfile import read_json
 
 REPO = Path(__file__).resolve().parent.parent
 PROBLEM, LEVELS, BASE = "plate-poisson", 4, 4

@@ -8,7 +8,7 @@ from mmsverify import run_study
 from mmsverify.problem.origin import problem_of_record
 from mmsverify.errors import ProblemError
 from mmsverify.problem.record import PROBLEM_DIR, load_problem
-from mmsverify.outputs.report.pointwise import finest_error
+from mmsverify.render.pointwise import finest_error
 
 _TEMPLATE = "{source} | {name} | {hash} | {recorded}"
 

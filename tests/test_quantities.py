@@ -88,7 +88,7 @@ _NOT_REPORTED = ("declared in the problem file but not reported by the solver: d
 
 def test_declared_quantities_the_solver_never_reports_are_one_note_not_a_failure(tmp_path):
     # common practice: a functional left out is a gap in the evidence, not a wrong order
-    from mmsverify.outputs.report.files import read_json, study_to_data, write_json
+    from mmsverify.outputs.studyfile import read_json, study_to_data, write_json
     r = run_study("plate-poisson", _fields_only, levels=3)
     assert r.passed and r.quantities == ()
     assert r.missing_quantities == {"deflection": (0, 1, 2), "edge_slope": (0, 1, 2)}

@@ -14,14 +14,15 @@ import pytest
 from mmsverify import run_study
 from mmsverify.errors import MMSError
 from mmsverify.execute.norms import NORMS
-from mmsverify.outputs.report import CAUTION, format_study, write_reports
-from mmsverify.outputs.report.files import (CSV_COLUMNS, csv_text, read_json, study_from_data, study_to_data,
+from mmsverify.outputs.reports import write_reports
+from mmsverify.render.text import CAUTION, format_study
+from mmsverify.outputs.studyfile import (CSV_COLUMNS, csv_text, read_json, study_from_data, study_to_data,
                                     write_csv, write_json)
-from mmsverify.outputs.report.html import html_text
-from mmsverify.outputs.report.markdown import markdown_text, write_markdown
-from mmsverify.outputs.report.plots import (NORM_STYLE, OKABE_ITO, cost_figure, error_figure, error_map_figure,
+from mmsverify.render.html import html_text
+from mmsverify.render.markdown import markdown_text, write_markdown
+from mmsverify.render.plots import (NORM_STYLE, OKABE_ITO, cost_figure, error_figure, error_map_figure,
                                     figure_bytes, order_figure, study_figures)
-from mmsverify.outputs.report.pointwise import finest_error, pointwise_error
+from mmsverify.render.pointwise import finest_error, pointwise_error
 from solvers_demo.fd import poisson
 
 DOCS = Path(__file__).resolve().parents[1] / "docs"

@@ -9,7 +9,7 @@ from mmsverify import run_study
 from mmsverify.cli import main
 from mmsverify.errors import AnalysisError, MMSError, ProblemError
 from mmsverify.execute.solvers import resolve_solver
-from mmsverify.outputs.report.files import read_json, write_json
+from mmsverify.outputs.studyfile import read_json, write_json
 from mmsverify.problem.record import PROBLEM_DIR, problem_from_text
 
 PLATE = (PROBLEM_DIR / "plate-poisson.toml").read_text()

@@ -1,6 +1,6 @@
 """``mmsverify demo``: the bundled demonstration, no configuration needed."""
 
-from mmsverify.outputs.report.text import CAUTION, format_study
+from mmsverify.render.text import CAUTION, format_study
 from mmsverify.study.refinement import run_study
 from mmsverify.cli import EXIT_FAIL, EXIT_OK
 

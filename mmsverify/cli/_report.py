@@ -5,8 +5,8 @@ from pathlib import Path
 
 from mmsverify.errors import MMSError
 from mmsverify.cli.progress import QUIET, progress_for, verbosity
-from mmsverify.outputs.report import FORMATS, write_reports
-from mmsverify.outputs.report.wording import headline
+from mmsverify.outputs.reports import FORMATS, write_reports
+from mmsverify.render.wording import headline
 from mmsverify.cli import EXIT_INPUT, comma_choices
 from mmsverify.cli._run import add_study_options, exit_code, study_from_args
 
@@ -25,7 +25,7 @@ def _report(args):
         if args.problem or args.solver:
             print("mmsverify report: give either --from FILE or PROBLEM SOLVER, not both", file=sys.stderr)
             return EXIT_INPUT
-        from mmsverify.outputs.report.files import read_json
+        from mmsverify.outputs.studyfile import read_json
         result = read_json(args.source)
         want_map = args.map
     else:
@@ -37,7 +37,7 @@ def _report(args):
         want_map = not args.no_map
     pointwise = None
     if want_map and {"md", "html"} & set(formats):
-        from mmsverify.outputs.report.pointwise import finest_error
+        from mmsverify.render.pointwise import finest_error
         try:
             pointwise = finest_error(result, solver=args.solver or None, problem=args.problem or None)
         except MMSError as exc:  # the reports are still worth writing without the map

@@ -156,7 +156,7 @@ def _run(args):
     if args.target_error is not None and not quiet:
         print_plans(result, args.target_error)
     if args.json:
-        from mmsverify.outputs.report.files import write_json
+        from mmsverify.outputs.studyfile import write_json
         write_json(result, args.json)
         if not quiet:
             print(f"\nwrote {args.json}")

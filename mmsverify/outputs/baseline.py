@@ -218,7 +218,7 @@ def baseline_from_study(result, error_factor=DEFAULT_ERROR_FACTOR, tolerance=Non
 
 def save_baseline(result, path, **kwargs):
     """Write :func:`baseline_from_study` of ``result`` to ``path`` (JSON); returns the Baseline."""
-    from mmsverify.outputs.report.files import write_atomic
+    from mmsverify.fileio import write_atomic
     base = baseline_from_study(result, **kwargs)
     write_atomic(path, json.dumps(base.to_data(Path(path).parent), indent=2, allow_nan=False) + "\n")
     return base
@@ -226,7 +226,7 @@ def save_baseline(result, path, **kwargs):
 
 def load_baseline(path):
     """Read a baseline file."""
-    from mmsverify.outputs.report.files import load_json_file
+    from mmsverify.fileio import load_json_file
     path = Path(path)
     data = load_json_file(path, "baseline file", "; make one with `mmsverify baseline save`")
     return Baseline.from_data(data, str(path), path.parent)

@@ -205,7 +205,7 @@ class StudyResult:
         }
 
     def __str__(self):
-        from mmsverify.outputs.report.text import format_study
+        from mmsverify.render.text import format_study
         return format_study(self)
 
 

@@ -1,13 +1,13 @@
 """Rows of a reported quantity's evidence table, shared by the Markdown, HTML and CSV writers.
 
-Mirrors :func:`mmsverify.outputs.report.wording.level_rows` for the functionals a
+Mirrors :func:`mmsverify.render.wording.level_rows` for the functionals a
 solver reports under ``Solution.quantities`` (declared under
 ``[quantities]``): one value, its exact value and the error per level.
 """
 
 import numpy as np
 
-from mmsverify.outputs.report.wording import fmt_num, fmt_order
+from mmsverify.render.wording import fmt_num, fmt_order
 
 __all__ = ["quantity_rows", "quantity_table"]
 

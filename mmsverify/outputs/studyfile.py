@@ -18,16 +18,17 @@ import math
 from pathlib import Path
 
 from mmsverify.errors import MMSError
+from mmsverify.fileio import load_json_file, write_atomic
 from mmsverify.execute.grids import Grid
 from mmsverify.execute.norms import NORMS
 from mmsverify.study.refinement import NORMS_SOURCES, LevelResult, StudyResult, rejudge
 from mmsverify.analysis.verdict import Verdict
-from mmsverify.outputs.report.wording import level_rows
-from mmsverify.outputs.report._quantities import quantity_rows
-from mmsverify.outputs.report.text import CAUTION
+from mmsverify.render.wording import level_rows
+from mmsverify.render._quantities import quantity_rows
+from mmsverify.render.text import CAUTION
 
 __all__ = ["FORMAT", "FORMAT_VERSION", "CSV_COLUMNS", "study_to_data", "study_from_data", "write_json",
-           "read_json", "write_csv", "csv_text", "write_atomic"]
+           "read_json", "write_csv", "csv_text"]
 
 FORMAT = "mmsverify.study.refinement"
 FORMAT_VERSION = 1
@@ -86,7 +87,7 @@ def study_to_data(result):
 def _need(data, key, where):
     if key not in data:
         raise MMSError(f"{where}: missing key {key!r}; the file is not a complete mmsverify study "
-                       f"(write it with `mmsverify report ... --json` or mmsverify.outputs.report.files.write_json)")
+                       f"(write it with `mmsverify report ... --json` or mmsverify.outputs.studyfile.write_json)")
     return data[key]
 
 
@@ -168,30 +169,9 @@ def _judged_norms(data, where):
     return out, source
 
 
-def write_atomic(path, text):
-    """Write text to ``path`` through a temporary file, creating folders; returns the Path."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(text, encoding="utf-8")
-    tmp.replace(path)
-    return path
-
-
 def write_json(result, path):
     """Write the study as JSON (see ``docs/json-schema.md``); returns the Path."""
     return write_atomic(path, json.dumps(study_to_data(result), indent=2, allow_nan=False) + "\n")
-
-
-def load_json_file(path, what="file", missing_hint=""):
-    """Parsed JSON of a file; a missing or unreadable file is an MMSError naming it."""
-    path = Path(path)
-    try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise MMSError(f"{path}: no such {what}{missing_hint}") from None
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise MMSError(f"{path}: cannot read it as JSON ({exc})") from None
 
 
 def read_json(path):

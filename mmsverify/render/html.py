@@ -11,10 +11,10 @@ from html import escape
 from pathlib import Path
 
 from mmsverify.execute.norms import NORMS
-from mmsverify.outputs.report.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
+from mmsverify.render.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
                       notes, study_facts)
-from mmsverify.outputs.report._quantities import quantity_table
-from mmsverify.outputs.report.text import CAUTION
+from mmsverify.render._quantities import quantity_table
+from mmsverify.render.text import CAUTION
 
 __all__ = ["html_text", "write_html", "data_uri"]
 
@@ -110,7 +110,7 @@ def html_text(result, pointwise=None, fmt="svg", figures=True):
         body.append(_table(header, rows, numeric=tuple(range(2, 8)),
                            row_class=["" if good else "failed" for good in ok]))
     if figures:
-        from mmsverify.outputs.report.plots import figure_bytes, study_figures
+        from mmsverify.render.plots import figure_bytes, study_figures
         for name, fig in study_figures(result, pointwise).items():
             uri = data_uri(figure_bytes(fig, fmt), fmt)
             body.append(f'<figure id="figure-{name}"><img alt="{escape(TITLES.get(name, name))}" src="{uri}">'
@@ -132,5 +132,5 @@ def html_text(result, pointwise=None, fmt="svg", figures=True):
 
 def write_html(result, path, pointwise=None, fmt="svg"):
     """Write :func:`html_text` to ``path``; returns the Path."""
-    from mmsverify.outputs.report.files import write_atomic
+    from mmsverify.fileio import write_atomic
     return write_atomic(Path(path), html_text(result, pointwise, fmt))

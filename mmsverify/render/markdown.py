@@ -8,10 +8,10 @@ report (``<name>_figures/``), so the pair can be committed or attached.
 from pathlib import Path
 
 from mmsverify.execute.norms import NORMS
-from mmsverify.outputs.report.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
+from mmsverify.render.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
                       notes, study_facts)
-from mmsverify.outputs.report._quantities import quantity_table
-from mmsverify.outputs.report.text import CAUTION
+from mmsverify.render._quantities import quantity_table
+from mmsverify.render.text import CAUTION
 
 __all__ = ["markdown_text", "write_markdown"]
 
@@ -90,15 +90,15 @@ def write_markdown(result, path, pointwise=None, fmt="png"):
     path : path-like
         The ``.md`` file; figures go to ``<stem>_figures/`` beside it.
     pointwise : dict, optional
-        Pointwise errors for the error map (see :func:`~mmsverify.outputs.report.pointwise.finest_error`).
+        Pointwise errors for the error map (see :func:`~mmsverify.render.pointwise.finest_error`).
     fmt : {"png", "svg"}
 
     Returns
     -------
     Path
     """
-    from mmsverify.outputs.report.files import write_atomic
-    from mmsverify.outputs.report.plots import save_figure, study_figures
+    from mmsverify.fileio import write_atomic
+    from mmsverify.render.plots import save_figure, study_figures
     path = Path(path)
     folder = path.parent / f"{path.stem}_figures"
     images = {}

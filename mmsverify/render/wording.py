@@ -97,7 +97,7 @@ def study_facts(result):
     return facts
 
 
-#: Caption of each figure of :func:`mmsverify.outputs.report.plots.study_figures`.
+#: Caption of each figure of :func:`mmsverify.render.plots.study_figures`.
 CAPTIONS = {
     "error": ("Error norms against the grid size on log-log axes. Dashed lines have the slope of the formal "
               "order and pass through the finest point of each norm; data parallel to them converge at the "

@@ -3,7 +3,7 @@
 A study keeps only norms. :func:`pointwise_error` runs the solver once more
 on one grid (by default the finest level that succeeded) and returns the
 discrete minus the exact solution at the solver's own points, for the
-error maps of :mod:`mmsverify.outputs.report.plots`.
+error maps of :mod:`mmsverify.render.plots`.
 """
 
 from dataclasses import dataclass

@@ -5,7 +5,7 @@ import textwrap
 import numpy as np
 
 from mmsverify.execute.norms import NORMS
-from mmsverify.outputs.report.wording import notes
+from mmsverify.render.wording import notes
 
 __all__ = ["format_study", "CAUTION"]
 

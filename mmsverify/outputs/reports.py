@@ -1,16 +1,14 @@
-"""Reports of studies: terminal text, Markdown, HTML, JSON, CSV and figures.
+"""Report files of a study: Markdown, HTML, JSON and CSV in one folder.
 
 Every report states the verdict first, then the evidence, then the cautions.
 :func:`write_reports` writes any set of formats into one folder; the
-modules ``text``, ``markdown``, ``html``, ``files`` (JSON, CSV), ``plots``
-and ``pointwise`` do one format or task each.
+views are drawn by :mod:`mmsverify.render` (text, Markdown, HTML, figures,
+error maps) and the data files by :mod:`mmsverify.outputs.studyfile`.
 """
 
 from pathlib import Path
 
-from mmsverify.outputs.report.text import CAUTION, format_study
-
-__all__ = ["format_study", "CAUTION", "FORMATS", "write_reports"]
+__all__ = ["FORMATS", "write_reports"]
 
 #: File formats :func:`write_reports` knows, by suffix.
 FORMATS = ("md", "html", "json", "csv")
@@ -45,15 +43,15 @@ def write_reports(result, folder, formats=FORMATS, pointwise=None, stem=None):
     for fmt in formats:
         path = folder / f"{stem}.{fmt}"
         if fmt == "md":
-            from mmsverify.outputs.report.markdown import write_markdown
+            from mmsverify.render.markdown import write_markdown
             written[fmt] = write_markdown(result, path, pointwise)
         elif fmt == "html":
-            from mmsverify.outputs.report.html import write_html
+            from mmsverify.render.html import write_html
             written[fmt] = write_html(result, path, pointwise)
         elif fmt == "json":
-            from mmsverify.outputs.report.files import write_json
+            from mmsverify.outputs.studyfile import write_json
             written[fmt] = write_json(result, path)
         else:
-            from mmsverify.outputs.report.files import write_csv
+            from mmsverify.outputs.studyfile import write_csv
             written[fmt] = write_csv(result, path)
     return written

@@ -17,7 +17,7 @@ import io
 import numpy as np
 
 from mmsverify.execute.norms import NORMS
-from mmsverify.outputs.report.wording import axis_name
+from mmsverify.render.wording import axis_name
 
 __all__ = ["OKABE_ITO", "NORM_STYLE", "error_figure", "order_figure", "cost_figure", "error_map_figure",
            "study_figures", "figure_bytes", "save_figure"]
@@ -197,7 +197,7 @@ def error_map_figure(pointwise, title=None):
     Parameters
     ----------
     pointwise : dict of str to PointwiseError
-        From :func:`mmsverify.outputs.report.pointwise.finest_error`.
+        From :func:`mmsverify.render.pointwise.finest_error`.
     title : str, optional
 
     Returns
