@@ -140,12 +140,3 @@ def _fields_only(case):
 
 
 _fields_only.name = "poisson2d-fields-only"    # what the study prints as the solver's name
-
-
-def test_exact_values_are_kept_in_the_derivation_cache(monkeypatch):
-    from mmsverify import _diskcache
-    from mmsverify.problem.derive import Manufactured
-    first = derive("plate-poisson").exact_quantity("deflection")
-    _diskcache.flush()
-    monkeypatch.setattr(Manufactured, "_exact_quantity", lambda *a: pytest.fail("worked out again"))
-    assert derive("plate-poisson").exact_quantity("deflection") == first   # a new bundle: read back

@@ -16,7 +16,6 @@ Other installed packages may add commands through the entry-point group
 """
 
 import argparse
-import gc
 import importlib
 import sys
 
@@ -75,27 +74,14 @@ def build_parser():
     return parser
 
 
-def main(argv=None, *, own_process=False):
-    """Run the command line; returns the exit code.
-
-    ``own_process=True`` says that this process runs this one command and
-    then exits (the ``mmsverify`` program, ``python -m mmsverify``): every
-    object made before the work starts (modules, the problem, the solver's
-    module) lives until the exit, so it is frozen out of the garbage
-    collector (:func:`gc.freeze`). Otherwise a full collection walks them
-    all once, at a moment set by allocation counts, in the middle of a
-    study: about 25 ms here. In-process callers (tests, notebooks) leave it
-    False, so nothing of theirs is kept from the collector.
-    """
+def main(argv=None):
+    """Run the command line; returns the exit code."""
     argv = sys.argv[1:] if argv is None else list(argv)
     parser = build_parser()
     args = parser.parse_args(argv)
     if not getattr(args, "func", None):
         parser.print_help()
         return EXIT_INPUT
-    args.own_process = own_process
-    if own_process:
-        gc.freeze()   # a study command freezes again once the problem and the solver's module are loaded
     from mmsverify.cli.progress import configure_logging, verbosity
     configure_logging(verbosity(args))
     try:
@@ -113,5 +99,5 @@ def main(argv=None, *, own_process=False):
 
 
 def console(argv=None):
-    """Entry of the ``mmsverify`` program and of ``python -m mmsverify``: :func:`main` in a process of its own."""
-    return main(argv, own_process=True)
+    """Entry of the ``mmsverify`` program and of ``python -m mmsverify``."""
+    return main(argv)

@@ -1,6 +1,5 @@
 """``mmsverify run PROBLEM SOLVER``: a manufactured-solution study."""
 
-import gc
 import shlex
 import sys
 from pathlib import Path
@@ -111,24 +110,6 @@ def _dask_client(address, workers):
     return distributed.Client(address)
 
 
-def settle(args):
-    """In a process of its own (see :func:`mmsverify.cli.main`): load the solver's module, then freeze.
-
-    The module and its libraries are imported now rather than inside the
-    study, so that they are frozen out of the garbage collector with
-    everything else made so far. A name that cannot be imported fails here,
-    before any work. Cheap to repeat. In ``run`` this comes before the
-    design checks start: a solver module that starts threads when imported
-    makes them run in this process instead of a forked child (see
-    :mod:`._designbg`).
-    """
-    if not getattr(args, "own_process", False):
-        return
-    if getattr(args, "solver", None) is not None and not getattr(args, "external", None):
-        resolve_solver(args.solver)
-    gc.freeze()
-
-
 def _frozen_refused(args, problem, solver):
     """The GridError for ``--mode time|space`` on a transient problem with the frozen resolution not given.
 
@@ -158,7 +139,6 @@ def _frozen_refused(args, problem, solver):
 
 
 def study_from_args(args, problem, solver, progress=None):
-    settle(args)
     refused = _frozen_refused(args, problem, solver)
     if refused is not None:
         raise refused
@@ -193,18 +173,16 @@ def _run(args):
     from mmsverify.cli.progress import progress_for
     quiet = getattr(args, "quiet", False)
     problem = get_problem(args.problem)  # read once: the design checks and the study share it
-    settle(args)
-    pending = None if quiet else print_design_warnings(args, problem)
+    if args.solver is not None and not args.external:
+        resolve_solver(args.solver)      # a name that cannot be imported fails here, before any work
+    if not quiet:
+        print_design_warnings(args, problem)
     label = args.solver or args.external
     progress = progress_for(args, label=f"{args.problem} / {label}")
-    if pending is not None:
-        progress = _Announcing(progress, pending)
     try:
         result = study_from_args(args, problem, args.solver, progress)
     finally:
         getattr(progress, "close", lambda: None)()  # end a live progress line before the table
-        if pending is not None:
-            pending.finish()
     print(str(result).splitlines()[0] if quiet else result)
     if args.target_error is not None and not quiet:
         print_plans(result, args.target_error)
@@ -234,28 +212,18 @@ def print_plans(result, target):
 
 
 def print_design_warnings(args, problem=None):
-    """Warn where the manufactured solution cannot catch mistakes (see :mod:`._designbg`).
-
-    The warnings of a problem seen before come from the derivation cache and
-    are printed at once; otherwise they are worked out beside the study and
-    the pending work is returned (None when printed already).
-    """
-    from mmsverify.cli._designbg import start_design_warnings
-    return start_design_warnings(args, problem)
-
-
-class _Announcing:
-    """A progress callback that also prints design warnings worked out beside the study, once ready."""
-
-    def __init__(self, progress, pending):
-        self.progress, self.pending = progress, pending
-
-    def __call__(self, level_result):
-        self.pending.poll(before=getattr(self.progress, "close", None))
-        return self.progress(level_result)
-
-    def close(self):
-        return getattr(self.progress, "close", lambda: None)()
+    """Warn, ahead of the study, where the manufactured solution cannot catch mistakes (:mod:`mmsverify.design`)."""
+    import warnings
+    from mmsverify.design.checks import design_warnings
+    from mmsverify.problem.record import get_problem
+    order = getattr(args, "formal_order", None)
+    orders = {"time_order": order} if getattr(args, "mode", None) == "time" else {"formal_order": order}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")   # numerical warnings of the samples; a failed check says so itself
+        found = design_warnings(get_problem(args.problem if problem is None else problem), **orders)
+    for w in found:
+        print(f"warning: {w}", file=sys.stderr)
+    sys.stderr.flush()
 
 
 def register(sub):

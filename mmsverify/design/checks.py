@@ -671,16 +671,9 @@ def design_warnings(problem, formal_order=None, time_order=None):
 
     Fast: coarse samples and two optimisation starts per limit. Never raises;
     a check that cannot run becomes a warning saying so.
-    :func:`mmsverify._designcache.cached_design_warnings` keeps the result in
-    the derivation cache, as ``mmsverify run`` does.
     """
-    return _fast_warnings(problem, formal_order, time_order)[1]
-
-
-def _fast_warnings(problem, formal_order, time_order):
-    """``(checked, warnings)`` of :func:`design_warnings`; ``checked`` is False when a check could not run."""
     try:
         a = audit(problem, formal_order, time_order, starts=2)
     except Exception as exc:  # the study must go on; say why the design was not checked
-        return False, [f"design checks could not run: {type(exc).__name__}: {exc}"]
-    return True, [f"design: {w}" for w in a.warnings]
+        return [f"design checks could not run: {type(exc).__name__}: {exc}"]
+    return [f"design: {w}" for w in a.warnings]

@@ -5,20 +5,17 @@
 compiled lazily, once per process, into generated NumPy code
 (common-subexpression elimination, lower-dimensional parts hoisted, block
 evaluation with bounded temporaries; see :mod:`mmsverify.problem.evaluate`). The
-generated code of a problem is kept in the on-disk cache
-(:mod:`mmsverify._diskcache`) next to the derived problem, so a second run
-of the same problem content neither differentiates nor generates code
-again. A bundle pickles to worker processes as the problem alone.
+programs of a problem are kept in memory by its content hash, so the levels
+of a study and a second bundle of the same problem share them. A bundle
+pickles to worker processes as the problem alone.
 """
 
 from collections import OrderedDict
 from functools import lru_cache
-import threading
 
 import numpy as np
 import sympy as sp
 
-from mmsverify import _diskcache
 from mmsverify.problem.evaluate import Evaluator, build_program
 from mmsverify.errors import ProblemError
 from mmsverify.problem.record import Problem, get_problem
@@ -57,35 +54,26 @@ def compile_expression(expr, args):
 
 
 class _Programs:
-    """Generated programs of one problem: in memory, then on disk, else built."""
+    """Evaluators of the problems of this process, by content hash: built once, kept for the last 64 problems."""
 
-    _lock = threading.Lock()
     _memory = OrderedDict()          # (content hash, args) -> {key: Evaluator}
 
     @staticmethod
     def ident(problem, args):
         """What identifies the generated programs of a problem."""
-        return problem.content_hash(), tuple(str(a) for a in args), problem.parameters_hash()
+        return problem.content_hash(), tuple(str(a) for a in args)
 
     @classmethod
     def evaluator(cls, ident, args, key, make_expr):
-        with cls._lock:
-            table = cls._memory.get(ident)
-            if table is None:
-                stored = _diskcache.load("programs", _diskcache.make_key(*ident))
-                table = {k: Evaluator(v) for k, v in (stored or {}).items()} if isinstance(stored, dict) else {}
-                cls._memory[ident] = table
-                while len(cls._memory) > 64:
-                    cls._memory.popitem(last=False)
-            found = table.get(key)
-        if found is not None:
-            return found
-        program = build_program(make_expr(), args)
-        with cls._lock:
-            table[key] = Evaluator(program)
-            snapshot = {k: e.program for k, e in table.items()}
-        _diskcache.store("programs", _diskcache.make_key(*ident), snapshot)
-        return table[key]
+        table = cls._memory.get(ident)
+        if table is None:
+            table = cls._memory[ident] = {}
+            while len(cls._memory) > 64:
+                cls._memory.popitem(last=False)
+        found = table.get(key)
+        if found is None:
+            found = table[key] = Evaluator(build_program(make_expr(), args))
+        return found
 
 
 class Manufactured:
@@ -96,8 +84,7 @@ class Manufactured:
     transient problems the time ``t`` as a keyword. Axis arrays are the
     cheapest input; full ``np.meshgrid`` arrays are recognised and treated
     alike. Large arrays are evaluated in blocks, so temporary memory stays
-    near the size of the result; ``MMSVERIFY_THREADS=2`` spreads the blocks
-    over two threads.
+    near the size of the result.
 
     Examples
     --------
@@ -139,7 +126,7 @@ class Manufactured:
         return self._ident
 
     def _check_field(self, name, table="fields", what="field"):
-        known = self.problem.names(table)   # names only: the expressions are built when code is generated
+        known = self.problem.names(table)
         if name not in known:
             raise ProblemError(f"{self.problem.name}: no {what} {name!r}; known: {', '.join(known)}")
 
@@ -158,12 +145,12 @@ class Manufactured:
     def exact(self, name, *coords, t=None):
         """Exact value of a field."""
         self._check_field(name)
-        return self._eval(f"exact_{name}", lambda: self.problem.code_table("fields")[name], coords, t)
+        return self._eval(f"exact_{name}", lambda: self.problem.fields[name], coords, t)
 
     def source(self, name, *coords, t=None):
         """Manufactured source term of an equation (named after its field)."""
         self._check_field(name, "equations", "equation")
-        return self._eval(f"source_{name}", lambda: self.problem.code_table("equations")[name], coords, t)
+        return self._eval(f"source_{name}", lambda: self.problem.equations[name], coords, t)
 
     def initial(self, name, *coords):
         """Initial value of a field at the start of the time interval."""
@@ -187,16 +174,11 @@ class Manufactured:
         self._check_field(name)
         return sign * sp.diff(self.problem.fields[name], self.problem.coords[axis])
 
-    def _normal_derivative_code(self, name, side):
-        # the same in the form code is generated from (symengine for a problem the fast engine read)
-        axis, sign = self._side(side)
-        return sign * self.problem.code_table("fields")[name].diff(self.problem.code_symbols()[0][axis])
-
     def normal_derivative(self, name, side, *coords, t=None):
         """Outward normal derivative ``grad(u) . n`` of a field on a side."""
         self._side(side)
         self._check_field(name)
-        return self._eval(f"dudn_{name}_{side}", lambda: self._normal_derivative_code(name, side), coords, t)
+        return self._eval(f"dudn_{name}_{side}", lambda: self.normal_derivative_expr(name, side), coords, t)
 
     def normal_flux_expr(self, name, side):
         """Outward normal flux of a field on a side, as a sympy expression."""
@@ -215,13 +197,12 @@ class Manufactured:
         self._side(side)
         if name not in self.problem.names("fluxes"):
             self._normal_flux(name, side, {})   # raises: no flux for this field
-        code = lambda: self._normal_flux(name, side, self.problem.code_table("fluxes"))  # noqa: E731
-        return self._eval(f"flux_{name}_{side}", code, coords, t)
+        return self._eval(f"flux_{name}_{side}", lambda: self.normal_flux_expr(name, side), coords, t)
 
     def parameter(self, name, *coords, t=None):
         """An operator parameter (coefficient) evaluated with the exact fields."""
         self._check_field(name, "parameters", "parameter")
-        return self._eval(f"parameter_{name}", lambda: self.problem.code_table("parameters")[name], coords, t)
+        return self._eval(f"parameter_{name}", lambda: self.problem.parameters[name], coords, t)
 
     def exact_quantity(self, name, t=None):
         """Exact value of a functional declared under ``[quantities]``.
@@ -237,21 +218,13 @@ class Manufactured:
             t = p.t_range[1]
         key = (name, None if t is None else float(t))
         if key not in self._quantities:
-            # one derivation-cache entry per problem holds every value worked out for it
-            disk = _diskcache.make_key(*self._programs_ident())
-            stored = _diskcache.load("quantities", disk)
-            stored = stored if isinstance(stored, dict) else {}
-            value = stored.get(key)
-            if not isinstance(value, float):
-                value = stored[key] = self._exact_quantity(name, t)
-                _diskcache.store("quantities", disk, stored)
-            self._quantities[key] = value
+            self._quantities[key] = self._exact_quantity(name, t)
         return self._quantities[key]
 
     def _exact_quantity(self, name, t):
         p = self.problem
         kind, where, _ = p.quantity_info(name)
-        expr = lambda: p.code_table("quantities")[name][1]  # noqa: E731  (built only when no code is cached)
+        expr = lambda: p.quantities[name][1]  # noqa: E731
         if kind == "point":
             return float(self._eval(f"quantity_{name}", expr, where, t))
         axes = list(range(p.dim))

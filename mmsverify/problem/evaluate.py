@@ -4,10 +4,7 @@ A sympy expression becomes a :class:`Program`: straight-line Python code
 after common-subexpression elimination, in which every subexpression that
 depends on fewer coordinates than its parent is hoisted into its own line
 (``sin(pi*x)`` inside a term in ``x`` and ``y``). A Program is plain text
-and numbers, so it pickles to the disk cache and to worker processes. A
-symengine expression (the fast derivation path) goes through the same
-steps with symengine's CSE and a small printer of its own, and never builds
-a sympy expression (symengine is imported only then).
+and numbers, so it pickles to worker processes.
 
 An :class:`Evaluator` runs a Program on coordinate arrays that broadcast
 together:
@@ -20,16 +17,12 @@ together:
   elements at a time, and each block is written into the one result array;
   temporaries are deleted after their last use. Peak temporary memory is
   thus the result plus a few blocks, whatever the size of the mesh.
-* Blocks may run on several threads (NumPy releases the GIL inside its
-  loops): ``threads`` argument or the ``MMSVERIFY_THREADS`` variable.
 """
 
 import ast
-from concurrent.futures import ThreadPoolExecutor
 import functools
 import itertools
 import math
-import os
 
 import numpy as np
 import sympy as sp
@@ -130,10 +123,7 @@ def build_program(expr, args):
 
     Parameters
     ----------
-    expr : sympy or symengine expression
-        A symengine expression (the fast derivation path) is printed by
-        :mod:`mmsverify._codegen_se` without building any sympy expression;
-        its symbols are matched to ``args`` by name.
+    expr : sympy.Expr
     args : sequence of sympy.Symbol
         The arguments ``_a0, _a1, ...`` of the program, in order.
 
@@ -147,9 +137,6 @@ def build_program(expr, args):
         A symbol that is not an argument, a number that is not finite in
         double precision, or an operation with no NumPy counterpart.
     """
-    if type(expr).__module__.startswith("symengine"):
-        from mmsverify._codegen_se import build_symengine
-        return build_symengine(expr, args)
     expr = sp.sympify(expr)
     names = [sp.Symbol(f"_a{i}") for i in range(len(args))]
     extra = expr.free_symbols - set(args)
@@ -304,16 +291,6 @@ def _live_peak(lines, params, result):
     return max(peak, len(live) + _registers(result[0]))
 
 
-def _thread_count(threads):
-    if threads is None:
-        threads = os.environ.get("MMSVERIFY_THREADS", "1")
-    try:
-        n = int(threads)
-    except ValueError:
-        n = 1
-    return max(1, min(n, os.cpu_count() or 1)) if n > 0 else (os.cpu_count() or 1)
-
-
 def _compact(a):
     """An axis array equal to ``a`` broadcast, when ``a`` varies along one axis only."""
     if a.ndim < 2 or a.size <= BLOCK:
@@ -379,16 +356,16 @@ class _Plan:
 class Evaluator:
     """Callable that evaluates a :class:`Program` on broadcasting arrays."""
 
-    def __init__(self, program, block=BLOCK, threads=None):
-        self.program, self.block_size, self.threads = program, int(block), threads
+    def __init__(self, program, block=BLOCK):
+        self.program, self.block_size = program, int(block)
         self._whole = None
         self._plans, self._partitions = {}, {}
 
     def __getstate__(self):
-        return {"program": self.program, "block": self.block_size, "threads": self.threads}
+        return {"program": self.program, "block": self.block_size}
 
     def __setstate__(self, state):
-        self.__init__(state["program"], state["block"], state["threads"])
+        self.__init__(state["program"], state["block"])
 
     def _whole_function(self):
         if self._whole is None:
@@ -431,19 +408,9 @@ class Evaluator:
         inputs = [a for a in arrays] + [np.asarray(h, dtype=float).reshape(
             (1,) * (len(eshape) - np.ndim(h)) + np.shape(h)) for h in handed]
         out = np.empty(eshape)
-
-        def run(index):
+        # about two result arrays of temporaries at most
+        block = min(self.block_size, max(256, 2 * size // plan.live))
+        for index in _blocks(eshape, block):
             parts = [a[tuple(s if n > 1 else slice(None) for s, n in zip(index, a.shape))] for a in inputs]
             out[index] = plan.block(*parts)
-
-        n = _thread_count(self.threads)
-        # about two result arrays of temporaries at most, over all threads
-        block = min(self.block_size, max(256, 2 * size // (plan.live * n)))
-        blocks = _blocks(eshape, block)
-        if n > 1 and len(blocks) > 1:
-            with ThreadPoolExecutor(n) as pool:
-                list(pool.map(run, blocks))
-        else:
-            for index in blocks:
-                run(index)
         return out

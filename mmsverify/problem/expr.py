@@ -17,24 +17,14 @@ Limits (each a refusal, never a silent truncation):
   before sympy evaluates the power, so ``10**10**10`` fails at once.
 * ``MAX_NUMBER_BITS``: bits of exact numbers, and of ``b**|numerator|`` for a
   rational power of a number (sympy computes it to extract roots).
-* ``MAX_BUILD_SECONDS``: safety net (sympy's root extraction on products of
-  large radicals is slow; realistic expressions take milliseconds).  A hard
-  limit by ``SIGALRM`` is used in the main thread when no timer is running;
-  otherwise the clock is checked between syntax nodes only.  The limit nests
-  inside a longer one of this module (the whole-file budget of
-  :mod:`mmsverify.problem.record`) and never outlasts it.
 * Results are real: the imaginary unit and constants that are not real
   (``sqrt(-1)``, ``asin(2)``, ``(-8)**(1/3)``) are refused, since the
   evaluators compute in real floating point.
 """
 
 import ast
-import contextlib
 import difflib
 import inspect
-import signal
-import threading
-import time
 import warnings
 from decimal import Decimal, InvalidOperation
 from types import MappingProxyType
@@ -45,9 +35,9 @@ import sympy
 from mmsverify.errors import ExpressionError
 
 __all__ = [
-    "ALLOWED_FUNCTIONS", "ExpressionError", "MAX_BUILD_SECONDS", "MAX_DECIMAL_EXPONENT",
+    "ALLOWED_FUNCTIONS", "ExpressionError", "MAX_DECIMAL_EXPONENT",
     "MAX_DEPTH", "MAX_EXPONENT", "MAX_INTEGER", "MAX_NODES", "MAX_NUMBER_BITS",
-    "MAX_TEXT_LENGTH", "parse_expression",
+    "MAX_TEXT_LENGTH", "parse_expression", "canonical_form",
 ]
 
 MAX_TEXT_LENGTH = 10_000
@@ -57,7 +47,6 @@ MAX_INTEGER = 10**15
 MAX_DECIMAL_EXPONENT = 100
 MAX_EXPONENT = 64
 MAX_NUMBER_BITS = 512
-MAX_BUILD_SECONDS = 1.0
 
 #: Functions always available, by name (``atan2(y, x)``; ``log(x, b)`` is base b).
 ALLOWED_FUNCTIONS = MappingProxyType({
@@ -87,17 +76,12 @@ _CONSTRUCTS = {
 _BAD = (sympy.zoo, sympy.nan, sympy.oo, -sympy.oo)
 
 
-class _Timeout(BaseException):
-    """Raised when the build time is up; a BaseException so no except clause hides it."""
-
-
 class _Ctx:
     """State of one parse: text for locating nodes, namespaces, deadline."""
 
     def __init__(self, original, flat, shift, names, functions, where):
         self.original, self.flat, self.shift = original, flat, shift
         self.names, self.functions, self.where = names, functions, where
-        self.deadline = time.monotonic() + MAX_BUILD_SECONDS
 
     def at(self, node):
         """1-based location of an AST node (byte column) in the original text."""
@@ -172,15 +156,9 @@ def parse_expression(text: str, names: Mapping[str, sympy.Basic], *,
     tree = _parse(ctx, text, body)
     _check_size(ctx, tree)
     try:
-        with _time_limit(MAX_BUILD_SECONDS):
-            result = _build(ctx, tree.body)
+        result = _build(ctx, tree.body)
     except (RecursionError, MemoryError):
         raise ExpressionError(f"{where}: expression is too complex to build") from None
-    except _Timeout:
-        if _outer_expired():
-            raise  # the budget of an enclosing limit is spent: that limit reports it
-        raise ExpressionError(f"{where}: expression took longer than {MAX_BUILD_SECONDS} s "
-                              "to build; simplify it or split it into named constants") from None
     if not isinstance(result, sympy.Expr):
         raise ExpressionError(f"{where}: result is a {type(result).__name__}, not an expression")
     if result.has(*_BAD):
@@ -193,75 +171,6 @@ def parse_expression(text: str, names: Mapping[str, sympy.Basic], *,
                               "real number (check square roots, logarithms and inverse functions of "
                               "constants); fields and coefficients must be real")
     return result
-
-
-# Deadlines (time.monotonic) of the hard limits armed now in the main thread, outermost first.
-_ARMED = []
-
-
-# Seconds between repeated alarms once a limit is due, should code under the limit swallow the first.
-_REPEAT = 0.05
-
-
-def _raise_timeout(signum, frame):
-    # Raise only when the innermost limit is due: an alarm handled late, after its limit was left,
-    # does nothing, and one that comes early waits for the rest. A due limit keeps ringing every
-    # _REPEAT s, so an exception swallowed on the way (an `except BaseException` somewhere, a
-    # callback whose errors are only printed) cannot let the work run on unbounded.
-    if not _ARMED:
-        return
-    if time.monotonic() < _ARMED[-1]:
-        _arm(_ARMED[-1])
-        return
-    signal.setitimer(signal.ITIMER_REAL, _REPEAT)
-    raise _Timeout
-
-
-def _outer_expired():
-    """True when an enclosing hard limit has run out (after the inner one was left)."""
-    return bool(_ARMED) and time.monotonic() >= _ARMED[-1]
-
-
-def _arm(deadline):
-    signal.setitimer(signal.ITIMER_REAL, max(deadline - time.monotonic(), 1e-4))
-
-
-@contextlib.contextmanager
-def _time_limit(seconds):
-    """Hard time limit through SIGALRM where that disturbs nobody; else a no-op.
-
-    Raises :class:`_Timeout` in the main thread when ``seconds`` have passed.
-    Limits nest: an inner limit ends no later than the enclosing one, and on
-    leaving it the enclosing limit is armed again (an expired one fires at
-    once). A timer or SIGALRM handler that is not this module's is left alone.
-    """
-    if not (hasattr(signal, "setitimer") and threading.current_thread() is threading.main_thread()):
-        yield
-        return
-    nested = bool(_ARMED) and signal.getsignal(signal.SIGALRM) is _raise_timeout
-    if not nested and not (signal.getsignal(signal.SIGALRM) == signal.SIG_DFL
-                           and signal.getitimer(signal.ITIMER_REAL) == (0.0, 0.0)):
-        yield
-        return
-    deadline = time.monotonic() + seconds
-    if nested:
-        deadline = min(deadline, _ARMED[-1])
-        old = None
-    else:
-        old = signal.signal(signal.SIGALRM, _raise_timeout)
-    _ARMED.append(deadline)
-    try:
-        _arm(deadline)
-        yield
-    finally:
-        # First, without a call (a pending alarm is handled at calls): leave the limit, so an alarm
-        # handled from here on finds it gone and cannot cut this clean-up short.
-        del _ARMED[-1]
-        signal.setitimer(signal.ITIMER_REAL, 0)
-        if nested:
-            _arm(_ARMED[-1])
-        else:
-            signal.signal(signal.SIGALRM, old)
 
 
 def parse_quietly(body):
@@ -315,12 +224,27 @@ def _check_size(ctx, tree):
 
 
 def _build(ctx, node):
-    if time.monotonic() > ctx.deadline:
-        raise _Timeout
     result = _build_node(ctx, node)
-    if isinstance(result, sympy.Rational) and _bits(result) > MAX_NUMBER_BITS:
+    if _largest_number(result) > MAX_NUMBER_BITS:
         raise ctx.fail(f"number exceeds {MAX_NUMBER_BITS} bits", node)
     return result
+
+
+def _largest_number(expr):
+    """Bits of the largest exact number at the top of ``expr``: itself, or the base of a power, in a product.
+
+    sympy combines powers of numbers in a product (``a**(1/64) * b**(1/64)``
+    becomes ``(a*b)**(1/64)``) and extracts roots of the result, which takes
+    ever longer as the numbers grow; refusing a base beyond the limit at
+    every node keeps each step small.
+    """
+    parts = expr.args if isinstance(expr, sympy.Mul) else (expr,)
+    most = 0
+    for part in parts:
+        base = part.base if isinstance(part, sympy.Pow) else part
+        if isinstance(base, sympy.Rational):
+            most = max(most, _bits(base))
+    return most
 
 
 def _bits(rational):
@@ -464,3 +388,53 @@ def _call(ctx, node):
         raise
     except Exception as exc:  # sympy or an extra function refused its arguments
         raise ctx.fail(f"{name}() failed ({type(exc).__name__}: {exc})", node) from exc
+
+
+def canonical_form(value):
+    """A number or expression text as a plain nested list, the same for every spelling of one syntax tree.
+
+    Written from the syntax tree by the rules of this module, not by sympy,
+    so it depends neither on sympy's version nor on how sympy orders or
+    simplifies terms: names stay names, numbers become exact decimal text
+    (``"0.70"`` and ``"7e-1"`` are both ``"7/10"``), spaces, parentheses and
+    unary plus leave no trace. Only text that :func:`parse_expression`
+    accepted is given here. Keys content hashes of problems
+    (:meth:`mmsverify.problem.record.Problem.content_hash`).
+
+    Examples
+    --------
+    >>> canonical_form("sin(0.70*pi*x) + -y")
+    ['+', ['call', 'sin', ['*', ['*', '7/10', ['name', 'pi']], ['name', 'x']]], ['neg', ['name', 'y']]]
+    >>> canonical_form(2.5)
+    '2.5'
+    """
+    if isinstance(value, bool):
+        raise TypeError("a truth value is not a number")
+    if isinstance(value, int):
+        return str(value)
+    if isinstance(value, float):
+        return repr(value)      # the shortest text that reads back as this double
+    flat = value.replace("\r", " ").replace("\n", " ").replace("\t", " ").strip()
+    return _canonical_node(parse_quietly(flat).body, flat)
+
+
+_CANONICAL_OPS = {ast.Add: "+", ast.Sub: "-", ast.Mult: "*", ast.Div: "/", ast.Pow: "**"}
+
+
+def _canonical_node(node, flat):
+    if isinstance(node, ast.Constant):
+        if isinstance(node.value, int):
+            return str(node.value)
+        literal = (ast.get_source_segment(flat, node) or repr(node.value)).replace("_", "")
+        p, q = Decimal(literal).as_integer_ratio()
+        return str(p) if q == 1 else f"{p}/{q}"
+    if isinstance(node, ast.Name):
+        return ["name", node.id]
+    if isinstance(node, ast.UnaryOp):
+        inner = _canonical_node(node.operand, flat)
+        return ["neg", inner] if isinstance(node.op, ast.USub) else inner
+    if isinstance(node, ast.BinOp):
+        return [_CANONICAL_OPS[type(node.op)], _canonical_node(node.left, flat), _canonical_node(node.right, flat)]
+    if isinstance(node, ast.Call):
+        return ["call", node.func.id, *(_canonical_node(a, flat) for a in node.args)]
+    raise ExpressionError(f"no canonical form for {type(node).__name__}")  # refused by parse_expression first

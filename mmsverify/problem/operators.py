@@ -39,6 +39,7 @@ Sign conventions (documented once, used everywhere):
   ``d(expr, x, 2)``, ``d(expr, x, y)`` and ``lap(expr)``.
 """
 
+import contextlib
 from dataclasses import dataclass
 from types import MappingProxyType
 
@@ -46,7 +47,7 @@ import sympy as sp
 
 from mmsverify.errors import ProblemError
 
-__all__ = ["Operator", "OPERATORS", "get_operator", "derivative_functions"]
+__all__ = ["derivation_budget", "DerivativeTooLarge", "MAX_DERIVATIVE_WORK", "MAX_DERIVATIVE_NODES", "Operator", "OPERATORS", "get_operator", "derivative_functions"]
 
 
 @dataclass(frozen=True)
@@ -107,20 +108,91 @@ class Operator:
         return split(q, X, t, par)
 
 
+#: Most expression-tree nodes that one derivation may produce in all its derivatives together, and in
+#: one derivative; both are counts, so a file whose derivatives explode is refused quickly and the same
+#: way on every machine (the bundled problems produce at most 3 000 in all and 160 in one).
+MAX_DERIVATIVE_WORK = 200_000
+MAX_DERIVATIVE_NODES = 20_000
+
+
+class DerivativeTooLarge(ProblemError):
+    """The derivatives of a problem outgrow :data:`MAX_DERIVATIVE_NODES` or :data:`MAX_DERIVATIVE_WORK`."""
+
+
+class _Work:
+    """Nodes produced by the derivatives of the derivation now running (see :func:`derivation_budget`)."""
+    left = None
+
+
+@contextlib.contextmanager
+def derivation_budget():
+    """Count the derivatives made inside against :data:`MAX_DERIVATIVE_WORK` (one derivation)."""
+    _Work.left = MAX_DERIVATIVE_WORK
+    try:
+        yield
+    finally:
+        _Work.left = None
+
+
+def _nodes(expr, limit):
+    n = 0
+    for n, _ in enumerate(sp.preorder_traversal(expr), 1):
+        if n > limit:
+            break
+    return n
+
+
+def _size(e, memo):
+    n = memo.get(e)
+    if n is None:
+        n = memo[e] = 1 + sum(_size(a, memo) for a in e.args)
+    return n
+
+
+def _derivative_size(e, var, memo, sizes):
+    """Nodes of the tree of ``d e / d var`` by the product and chain rules, before simplification (an estimate)."""
+    n = memo.get(e)
+    if n is not None:
+        return n
+    if var not in e.free_symbols:
+        n = 0
+    elif e.is_Symbol:
+        n = 1
+    elif e.is_Add:
+        n = 1 + sum(_derivative_size(a, var, memo, sizes) for a in e.args)
+    else:   # a product, power or function: one term per argument that depends on var, the rest copied
+        whole = _size(e, sizes)
+        n = 1 + sum(_derivative_size(a, var, memo, sizes) + whole + 1 for a in e.args if var in a.free_symbols)
+    memo[e] = n
+    return n
+
+
 def _d(expr, *spec):
-    """Derivative through the expression's own method: sympy and symengine expressions alike."""
-    return expr.diff(*spec) if hasattr(expr, "diff") else sp.diff(expr, *spec)
+    """A derivative, one order at a time, each result counted against the derivation's budget."""
+    steps = []
+    for s in spec:
+        if isinstance(s, int) and steps:
+            steps.extend([steps[-1]] * (s - 1))
+        else:
+            steps.append(s)
+    for var in steps:
+        if _derivative_size(expr, var, {}, {}) > MAX_DERIVATIVE_NODES:   # sympy would take long to find out
+            raise DerivativeTooLarge(f"a derivative would have more than {MAX_DERIVATIVE_NODES} terms and factors")
+        expr = sp.diff(expr, var)
+        n = _nodes(expr, MAX_DERIVATIVE_NODES)
+        if n > MAX_DERIVATIVE_NODES:
+            raise DerivativeTooLarge(f"a derivative has more than {MAX_DERIVATIVE_NODES} terms and factors")
+        if _Work.left is not None:
+            _Work.left -= n
+            if _Work.left < 0:
+                raise DerivativeTooLarge(f"the derivatives together have more than {MAX_DERIVATIVE_WORK} terms "
+                                         "and factors")
+    return expr
 
 
 def _sum(terms):
-    """Sum of a list of sympy or symengine expressions (sympy: one flattening ``Add``)."""
-    terms = list(terms)
-    if not any(type(term).__module__.startswith("symengine") for term in terms):
-        return sp.Add(*terms)
-    out = 0
-    for term in terms:
-        out = term + out
-    return out
+    """Sum of a list of expressions as one flattening ``Add``."""
+    return sp.Add(*terms)
 
 
 def _grad(u, X):
@@ -236,11 +308,11 @@ class _Jet:
         """Total derivative of an expression in jet symbols and coordinates."""
         expr = sp.sympify(expr)
         i = self.variables.index(var)
-        out = [sp.diff(expr, var)]
+        out = [_d(expr, var)]
         for sym in expr.free_symbols & self.order.keys():
             name, counts = self.order[sym]
             up = counts[:i] + (counts[i] + 1,) + counts[i + 1:]
-            out.append(sp.diff(expr, sym) * self._sym(name, up))
+            out.append(_d(expr, sym) * self._sym(name, up))
         return sp.Add(*out)
 
     def insert(self, expr):
@@ -255,7 +327,7 @@ class _Jet:
                     done[key] = self.q[name]
                 else:
                     lower = counts[:i] + (counts[i] - 1,) + counts[i + 1:]
-                    done[key] = sp.diff(value((name, lower)), self.variables[i])
+                    done[key] = _d(value((name, lower)), self.variables[i])
             return done[key]
         return sp.sympify(expr).xreplace({s: value(k) for s, k in self.order.items() if s in expr.free_symbols})
 
@@ -352,18 +424,18 @@ def derivative_functions(X, t):
                 names = ", ".join(sorted(str(v) for v in variables))
                 raise ProblemError(f"d(...) differentiates with respect to a coordinate ({names}), got {s}")
         for var, n in args:
-            expr = sp.diff(expr, var, n)
+            expr = _d(expr, var, n)
         return expr
 
     def lap(expr):
-        return sp.Add(*[sp.diff(expr, xi, 2) for xi in X])
+        return sp.Add(*[_d(expr, xi, 2) for xi in X])
 
     return {"d": d, "lap": lap}
 
 
 # -- residuals split into named terms (Operator.terms) ---------------------
 def _with_time(terms, u, t, coef=1):
-    return ({"time": coef * sp.diff(u, t)} if t is not None else {}) | terms
+    return ({"time": coef * _d(u, t)} if t is not None else {}) | terms
 
 
 def _diffusion_terms(q, X, t, par):
@@ -381,7 +453,7 @@ def _advection_diffusion_terms(q, X, t, par):
 def _burgers_terms(q, X, t, par):
     name, u = _scalar(q)
     (x,) = X
-    return {name: _with_time({"convection": u * sp.diff(u, x), "viscous": -par["nu"] * sp.diff(u, x, 2)}, u, t)}
+    return {name: _with_time({"convection": u * _d(u, x), "viscous": -par["nu"] * _d(u, x, 2)}, u, t)}
 
 
 def _navier_stokes_terms(q, X, t, par):
@@ -389,10 +461,10 @@ def _navier_stokes_terms(q, X, t, par):
     x, y = X
     out = {}
     for name, c, xi in (("u", u, x), ("v", v, y)):
-        out[name] = _with_time({"convection": u * sp.diff(c, x) + v * sp.diff(c, y),
-                                "pressure": sp.diff(p, xi) / par["rho"],
-                                "viscous": -par["nu"] * (sp.diff(c, x, 2) + sp.diff(c, y, 2))}, c, t)
-    out["p"] = {"continuity_x": sp.diff(u, x), "continuity_y": sp.diff(v, y)}
+        out[name] = _with_time({"convection": u * _d(c, x) + v * _d(c, y),
+                                "pressure": _d(p, xi) / par["rho"],
+                                "viscous": -par["nu"] * (_d(c, x, 2) + _d(c, y, 2))}, c, t)
+    out["p"] = {"continuity_x": _d(u, x), "continuity_y": _d(v, y)}
     return out
 
 
@@ -407,16 +479,16 @@ def _ns_compressible_terms(q, X, t, par):
     dim = len(X)
     rho, p, gamma, mu, pr = q["rho"], q["p"], par["gamma"], par["mu"], par["Pr"]
     vel = [q[c] for c in _VELOCITY[:dim]]
-    div_u = sp.Add(*[sp.diff(c, xi) for c, xi in zip(vel, X)])
-    tau = [[mu * (sp.diff(vel[i], X[j]) + sp.diff(vel[j], X[i]))
+    div_u = sp.Add(*[_d(c, xi) for c, xi in zip(vel, X)])
+    tau = [[mu * (_d(vel[i], X[j]) + _d(vel[j], X[i]))
             - (sp.Rational(2, 3) * mu * div_u if i == j else 0) for j in range(dim)] for i in range(dim)]
-    heat = [-gamma * mu / ((gamma - 1) * pr) * sp.diff(p / rho, xi) for xi in X]
+    heat = [-gamma * mu / ((gamma - 1) * pr) * _d(p / rho, xi) for xi in X]
     rho_e = p / (gamma - 1) + rho * sp.Add(*[c ** 2 for c in vel]) / 2
-    time = (lambda e: {"time": sp.diff(e, t)}) if t is not None else (lambda e: {})
+    time = (lambda e: {"time": _d(e, t)}) if t is not None else (lambda e: {})
     out = {"rho": time(rho) | {"convection": _div([rho * c for c in vel], X)}}
     for i, name in enumerate(_VELOCITY[:dim]):
         out[name] = time(rho * vel[i]) | {"convection": _div([rho * vel[i] * c for c in vel], X),
-                                          "pressure": sp.diff(p, X[i]), "viscous": -_div(tau[i], X)}
+                                          "pressure": _d(p, X[i]), "viscous": -_div(tau[i], X)}
     out["p"] = time(rho_e) | {
         "convection": _div([rho_e * c for c in vel], X), "pressure": _div([p * c for c in vel], X),
         "viscous": -_div([sp.Add(*[vel[i] * tau[i][j] for i in range(dim)]) for j in range(dim)], X),

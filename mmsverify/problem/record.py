@@ -55,35 +55,36 @@ is ever executed. The format, with every table but ``[fields]`` optional::
     base_steps = 8                      # time steps of the coarsest level
 
 Limits (each a :class:`~mmsverify.errors.ProblemError` naming the file and
-the place, never a hang): files of at most ``MAX_FILE_CHARS`` characters;
-the whole load (TOML, expressions, derivation of the source terms) within
-``MAX_LOAD_SECONDS`` where a hard limit is possible (the main thread, see
-:mod:`mmsverify.problem.expr`); at most ``MAX_EQUATION_NODES`` nodes in the
-expression tree of each derived source term or flux, everywhere. Numbers
-are finite; orders are whole numbers from 1 to ``MAX_ORDER``.
+the place, never a hang): files of at most ``MAX_FILE_CHARS`` characters,
+keys of at most ``MAX_KEY_PARTS`` dotted parts and tables of at most
+``MAX_TABLE_ENTRIES`` entries; the limits of the expression parser
+(:mod:`mmsverify.problem.expr`); at most
+``MAX_EQUATION_NODES`` nodes in the expression tree of each derived source
+term or flux. All of them are counts, so the same file gets the same answer
+on every machine. Numbers are finite; orders are whole numbers from 1 to
+``MAX_ORDER``.
 """
 
-import copy
+import dataclasses
 import importlib.resources
 from dataclasses import dataclass, field
 import hashlib
 import json
 import math
 from pathlib import Path
-import pickle
 import re
 import tomllib
 
 import sympy as sp
 
-from mmsverify import _diskcache
-from mmsverify import _fast
 from mmsverify.errors import ProblemError, MMSError
-from mmsverify.problem.expr import _Timeout, _time_limit
-from mmsverify.problem.operators import OPERATORS, get_operator, derivative_functions
+from mmsverify.problem.expr import canonical_form, parse_expression
+from mmsverify.problem.operators import (OPERATORS, DerivativeTooLarge, derivation_budget, derivative_functions,
+                                         get_operator)
 
 __all__ = ["Problem", "load_problem", "problem_from_text", "bundled_problems", "get_problem",
-           "SIDES", "PROBLEM_DIR", "MAX_FILE_CHARS", "MAX_LOAD_SECONDS", "MAX_EQUATION_NODES", "MAX_ORDER"]
+           "SIDES", "PROBLEM_DIR", "MAX_FILE_CHARS", "MAX_KEY_PARTS", "MAX_TABLE_ENTRIES", "MAX_EQUATION_NODES",
+           "MAX_ORDER"]
 
 #: The bundled problem files, shipped as package data.
 PROBLEM_DIR = Path(str(importlib.resources.files("mmsverify.problem") / "bundled"))
@@ -92,11 +93,13 @@ SIDES = ("x_min", "x_max", "y_min", "y_max", "z_min", "z_max")
 _KINDS = ("dirichlet", "neumann")
 #: Longest problem file read (characters); real ones are a few thousand.
 MAX_FILE_CHARS = 1_000_000
-#: Seconds allowed for reading, parsing and deriving one file (main thread only).
-MAX_LOAD_SECONDS = 10.0
 #: Largest expression tree (nodes) of one derived source term or flux;
 #: the 3-D compressible Navier-Stokes energy equation has about 8 000.
 MAX_EQUATION_NODES = 100_000
+#: Most dotted parts of one key or table name (``[operator.equations]`` has two).
+MAX_KEY_PARTS = 16
+#: Most entries in one table ([constants], [fields], [quantities], ...).
+MAX_TABLE_ENTRIES = 200
 #: Largest formal order accepted in [order].
 MAX_ORDER = 20
 _STUDY_KEYS = {"levels": (2, 30), "base_cells": (1, 10**9), "ratio": None, "base_steps": (1, 10**9)}
@@ -154,6 +157,8 @@ class Problem:
         The axes (``"space"``, ``"time"``) whose formal order the file's
         ``[order]`` states; the others hold defaults. None (a problem made in
         Python) counts every order as given.
+    digest : str
+        SHA-256 of the canonical parsed input (see :meth:`content_hash`).
     """
 
     name: str
@@ -180,149 +185,22 @@ class Problem:
     equation_text: dict = field(default_factory=dict)
     order_given: tuple = None
     order_rules: tuple = ()
-
-    # The tables of sympy expressions. A problem read back from the derivation
-    # cache holds them pickled and builds them on first use: a study whose
-    # evaluator code is cached too never needs them, and building sympy sums
-    # (with sympy's deferred imports) is most of the time of a warm start.
-    _SYMBOLIC = ("fields", "parameters", "equations", "fluxes", "quantities", "bounds")
-
-    #
-    # A problem read by the fast engine (mmsverify._fast) holds symengine tables for code
-    # generation instead, and builds its sympy tables from the file text when first asked.
-
-    def __getattr__(self, name):
-        # Called only when normal lookup fails: a symbolic table not yet built.
-        if name not in Problem._SYMBOLIC:
-            raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
-        blob = self.__dict__.get("_symbolic")
-        if blob is not None:
-            tables = pickle.loads(blob)
-        elif "_text" in self.__dict__:
-            tables = _sympy_tables(self.__dict__["_text"], self.source)
-        else:
-            raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
-        for key, value in tables.items():
-            object.__setattr__(self, key, value)
-        self.__dict__.pop("_symbolic", None)
-        return object.__getattribute__(self, name)
-
-    def _fast_tables(self):
-        """The symengine tables of a problem read by the fast engine, else None."""
-        d = self.__dict__
-        if "_fast" not in d and "_fast_blob" in d:
-            object.__setattr__(self, "_fast", pickle.loads(d["_fast_blob"]))
-        return d.get("_fast")
-
-    def _tables(self):
-        """The tables code and hashes are made from: symengine ones when the fast engine read it."""
-        fast = self._fast_tables()
-        return fast if fast is not None else {k: getattr(self, k) for k in Problem._SYMBOLIC}
-
-    def code_table(self, table):
-        """One table as evaluator code is generated from it (symengine or sympy expressions)."""
-        return self._tables()[table]
-
-    def code_symbols(self):
-        """Space coordinates and time (None when steady) as symbols of the :meth:`code_table` expressions."""
-        if self._fast_tables() is None:
-            return self.coords, self.t
-        from symengine import Symbol
-        return tuple(Symbol(str(c)) for c in self.coords), (Symbol("t") if self.t is not None else None)
-
-    def names(self, table):
-        """Keys of one symbolic table (``"fields"``, ``"equations"``, ...), without building it."""
-        known = self.__dict__.get("_names")
-        return known[table] if known is not None else tuple(getattr(self, table))
-
-    def quantity_info(self, name):
-        """``(kind, where, text)`` of a declared quantity, without building its expression."""
-        known = self.__dict__.get("_quantity_info")
-        if known is not None:
-            return known[name]
-        kind, _, where, text = self.quantities[name]
-        return kind, where, text
-
-    def _parameter_table(self):
-        memo = self.__dict__.get("_parameter_info")
-        if memo is None:
-            memo = {}
-            for key, expr in self._tables()["parameters"].items():
-                expr = expr if _fast.is_fast(expr) else sp.sympify(expr)
-                free = tuple(sorted(str(s) for s in expr.free_symbols))
-                memo[key] = (None if free else float(expr), free)
-            object.__setattr__(self, "_parameter_info", memo)
-        return memo
-
-    def parameter_constant(self, name, default=None):
-        """An operator parameter as a float when it is a constant, None when it varies.
-
-        ``default`` when the operator has no parameter of that name. Answers
-        without building the symbolic tables (see :meth:`parameter_symbols`).
-        """
-        found = self._parameter_table().get(name)
-        return default if found is None else found[0]
-
-    def parameter_symbols(self, name):
-        """Names of the coordinates (and ``t``) a parameter depends on; empty when constant or absent."""
-        found = self._parameter_table().get(name)
-        return () if found is None else found[1]
-
-    def _packed(self):
-        """A copy for the derivation cache whose symbolic tables are built on first use."""
-        self.content_hash()
-        self.parameters_hash()
-        self.bounds_hash()
-        self._parameter_table()
-        tables = self._tables()
-        out = self._without_tables(tables)
-        blob = pickle.dumps(tables, protocol=pickle.HIGHEST_PROTOCOL)
-        if self._fast_tables() is not None:
-            out.__dict__.pop("_fast", None)
-            out.__dict__["_fast_blob"] = blob
-        else:
-            out.__dict__["_symbolic"] = blob
-        return out
-
-    def _fast_form(self, text):
-        """This problem (read by the fast engine) as kept: symengine tables aside, sympy ones on demand."""
-        tables = {k: self.__dict__[k] for k in Problem._SYMBOLIC}
-        out = self._without_tables(tables)
-        out.__dict__["_fast"] = tables
-        out.__dict__["_text"] = text
-        return out
-
-    def _without_tables(self, tables):
-        """A copy without the symbolic tables, with what is known of them without building them."""
-        out = copy.copy(self)
-        for k in Problem._SYMBOLIC:
-            out.__dict__.pop(k, None)
-        out.__dict__["_names"] = {k: tuple(v) for k, v in tables.items()}
-        out.__dict__["_quantity_info"] = {k: (q[0], q[2], q[3]) for k, q in tables["quantities"].items()}
-        return out
-
-    def renamed(self, name, source):
-        """The same problem under another name and source (memos and lazy tables kept)."""
-        return self.with_changes(name=name, source=source)
+    digest: str = ""
 
     #: Fields :meth:`with_changes` may change: none of them enters the content hash or a derived table.
     _PLAIN = ("name", "description", "source", "space_order", "time_order", "tolerance", "study", "order_given",
-             "order_rules")
+              "order_rules")
 
     def with_changes(self, **changes):
         """A copy with some plain fields changed (orders, tolerance, study defaults, name, source).
 
-        Unlike :func:`dataclasses.replace`, the copy keeps the derived tables
-        as they are held (lazy, or from the fast engine) and the memoized
-        hashes, which none of these fields enters.
+        Only fields that enter neither the content hash nor a derived table
+        may change, so the copy keeps a true hash.
         """
         bad = sorted(set(changes) - set(Problem._PLAIN))
         if bad:
             raise TypeError(f"with_changes() changes only {', '.join(Problem._PLAIN)}; got {', '.join(bad)}")
-        out = copy.copy(self)
-        for key, value in changes.items():
-            object.__setattr__(out, key, value)
-        return out
+        return dataclasses.replace(self, **changes)
 
     @property
     def dim(self):
@@ -334,49 +212,47 @@ class Problem:
 
     @property
     def field_names(self):
-        return self.names("fields")
+        return tuple(self.fields)
+
+    def names(self, table):
+        """Keys of one table (``"fields"``, ``"equations"``, ``"parameters"``, ``"quantities"``, ...)."""
+        return tuple(getattr(self, table))
+
+    def quantity_info(self, name):
+        """``(kind, where, text)`` of a declared quantity."""
+        kind, _, where, text = self.quantities[name]
+        return kind, where, text
+
+    def parameter_constant(self, name, default=None):
+        """An operator parameter as a float when it is a constant, None when it varies.
+
+        ``default`` when the operator has no parameter of that name.
+        """
+        expr = self.parameters.get(name)
+        if expr is None:
+            return default
+        return None if expr.free_symbols else float(expr)
+
+    def parameter_symbols(self, name):
+        """Names of the coordinates (and ``t``) a parameter depends on; empty when constant or absent."""
+        expr = self.parameters.get(name)
+        return () if expr is None else tuple(sorted(str(s) for s in expr.free_symbols))
 
     def content_hash(self):
-        """SHA-256 of everything that defines the mathematics (not the name).
+        """SHA-256 of the canonical parsed input: everything that defines the mathematics.
 
-        Computed once per instance (printing large source terms takes a
-        while) and kept with the problem in the derivation cache.
+        Made by the reader from the file's tables, with every expression
+        written from the safe parser's syntax tree
+        (:func:`mmsverify.problem.expr.canonical_form`) and keys sorted, so it does
+        not depend on sympy's version, on how sympy prints, or on the
+        spelling of the file (spaces, comments, order of entries). The name,
+        description, orders, tolerance, ``[study]`` and ``[bounds]`` are left
+        out: they change no derived term.
         """
-        memo = self.__dict__.get("_content_hash")
-        if memo is not None:
-            return memo
-        tab, srepr = self._tables(), _fast.srepr
-        blob = json.dumps({
-            "coords": [str(c) for c in self.coords], "t": str(self.t),
-            "box": [self.lower, self.upper, self.t_range],
-            "fields": {k: srepr(v) for k, v in tab["fields"].items()},
-            "equations": {k: srepr(v) for k, v in tab["equations"].items()},
-            "fluxes": {k: [srepr(c) for c in v] for k, v in tab["fluxes"].items()},
-            "boundaries": sorted(f"{f}:{s}:{k}" for (f, s), k in self.boundaries.items()),
-            "quantities": {k: [q[0], srepr(q[1]), str(q[2])] for k, q in tab["quantities"].items()},
-            "parameters": {k: srepr(v) for k, v in tab["parameters"].items()},
-        }, sort_keys=True)
-        memo = hashlib.sha256(blob.encode()).hexdigest()
-        object.__setattr__(self, "_content_hash", memo)
-        return memo
-
-    def parameters_hash(self):
-        """Short hash of the operator parameters (keys generated programs of them); kept once computed."""
-        memo = self.__dict__.get("_parameters_hash")
-        if memo is None:
-            text = repr(sorted((k, _fast.srepr(v)) for k, v in self._tables()["parameters"].items()))
-            memo = hashlib.sha256(text.encode()).hexdigest()[:16]
-            object.__setattr__(self, "_parameters_hash", memo)
-        return memo
-
-    def bounds_hash(self):
-        """Short hash of the ``[bounds]`` table (not part of the content hash); kept once computed."""
-        memo = self.__dict__.get("_bounds_hash")
-        if memo is None:
-            text = repr(sorted((k, _fast.srepr(e), lo, hi) for k, (e, lo, hi) in self._tables()["bounds"].items()))
-            memo = hashlib.sha256(text.encode()).hexdigest()[:16]
-            object.__setattr__(self, "_bounds_hash", memo)
-        return memo
+        if not self.digest:
+            raise ValueError(f"{self.name}: a Problem made without a reader has no content hash; read it with "
+                             "problem_from_text or load_problem")
+        return self.digest
 
     def boundary_kind(self, field_name, side):
         return self.boundaries[(field_name, side)]
@@ -398,9 +274,8 @@ def _line_of(text, section, key):
 class _Reader:
     """Turns a parsed TOML dict into a :class:`Problem`, naming the place of every error."""
 
-    def __init__(self, data, text, source, engine=_fast.SYMPY):
-        self.data, self.text, self.source, self.engine = data, text, source, engine
-        self.stage = None  # (section, key) being read, named when the time budget runs out
+    def __init__(self, data, text, source):
+        self.data, self.text, self.source = data, text, source
 
     def where(self, section, key=None):
         line = _line_of(self.text, section, key) if key else None
@@ -416,6 +291,9 @@ class _Reader:
             raise ProblemError(f"{self.source}: missing [{name}] table; add it (see `mmsverify list --format`)")
         if not isinstance(value, dict):
             raise ProblemError(f"{self.source}: [{name}] must be a table of key = value lines")
+        if len(value) > MAX_TABLE_ENTRIES:
+            raise ProblemError(f"{self.source}: [{name}] has {len(value)} entries; a problem file holds at most "
+                               f"{MAX_TABLE_ENTRIES} per table")
         return value
 
     def known_keys(self, section, table, allowed):
@@ -433,14 +311,13 @@ class _Reader:
         return kind(value)
 
     def expression(self, section, key, value, names, functions=None):
-        self.stage = (section, key)
         if isinstance(value, bool) or not isinstance(value, (str, int, float)):
             self.fail(section, key, f"expected an expression in quotes or a number, got {value!r:.60}")
         if isinstance(value, (int, float)):
             self.number(section, key, value)
-            return self.engine.number(value)
+            return _number(value)
         try:
-            return self.engine.parse(value, names, functions=functions, where=self.where(section, key))
+            return parse_expression(value, names, functions=functions, where=self.where(section, key))
         except MMSError:
             raise
         except Exception as exc:  # sympy may fail on a legal but meaningless expression
@@ -479,9 +356,8 @@ class _Reader:
             if not hi > lo:
                 self.fail("domain", a, f"upper bound {hi} must exceed lower bound {lo}")
             box[a] = (lo, hi)
-        # symbols of the engine's expressions; the Problem holds sympy symbols of the same names
-        coords = tuple(self.engine.symbol(a) for a in axes)
-        t = self.engine.symbol("t") if "t" in box else None
+        coords = tuple(sp.Symbol(a, real=True) for a in axes)
+        t = sp.Symbol("t", real=True) if "t" in box else None
 
         names = {str(c): c for c in coords}
         if t is not None:
@@ -491,7 +367,7 @@ class _Reader:
             if not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", k) or k in names or k in ("pi", "E"):
                 self.fail("constants", k, "a constant needs a new identifier (not x, y, z, t, pi, E)")
             constants[k] = self.number("constants", k, v)
-        const_syms = {k: self.engine.number(v if int(v) != v else int(v)) for k, v in constants.items()}
+        const_syms = {k: _number(v if int(v) != v else int(v)) for k, v in constants.items()}
         names.update(const_syms)
 
         fields_tab = self.table("fields", required=True)
@@ -517,6 +393,9 @@ class _Reader:
         equations, fluxes, parameters = {}, {}, {}
         if kind == "custom":
             eqs = op_tab.pop("equations", None)
+            if isinstance(eqs, dict) and len(eqs) > MAX_TABLE_ENTRIES:
+                raise ProblemError(f"{self.source}: [operator.equations] has {len(eqs)} entries; a problem file "
+                                   f"holds at most {MAX_TABLE_ENTRIES} per table")
             if not isinstance(eqs, dict) or not eqs:
                 raise ProblemError(f"{self.where('operator')}: a custom operator needs an [operator.equations] "
                                    "table with one equation per field, e.g. u = \"-lap(u)\"")
@@ -526,7 +405,8 @@ class _Reader:
             for k, v in eqs.items():
                 if k not in fields:
                     self.fail("operator.equations", k, f"names no field; fields are {', '.join(fields)}")
-                equations[k] = self.expression("operator.equations", k, v, {**with_fields, **parameters}, fns)
+                with derivation_budget():
+                    equations[k] = self.expression("operator.equations", k, v, {**with_fields, **parameters}, fns)
             missing = set(fields) - set(equations)
             if missing:
                 raise ProblemError(f"{self.where('operator.equations')}: no equation for field(s) "
@@ -550,9 +430,14 @@ class _Reader:
                           f"not a parameter of {kind}; its parameters are {', '.join(op.parameters)}")
             for k, default in op.parameters.items():
                 parameters[k] = self.expression("operator", k, op_tab.get(k, default), with_fields)
-            self.stage = ("operator", "kind")
-            equations = op.residuals(fields, coords, t, parameters)
-            fluxes = op.fluxes(fields, coords, parameters)
+            try:
+                with derivation_budget():
+                    equations = op.residuals(fields, coords, t, parameters)
+                    fluxes = op.fluxes(fields, coords, parameters)
+            except DerivativeTooLarge as exc:
+                self.fail("operator", "kind", f"{exc} while deriving the source terms; use fewer or simpler terms in "
+                                              "the fields (each factor of a product multiplies the size of every "
+                                              "derivative)")
         for k, e in equations.items():
             self.check_size("operator.equations" if kind == "custom" else "operator", k if kind == "custom"
                             else "kind", e, f"the source term of equation {k!r}")
@@ -560,7 +445,6 @@ class _Reader:
             for c, e in zip(coords, vec):
                 self.check_size("operator", "kind", e, f"the {c}-flux of field {k!r}")
 
-        self.stage = None
         boundaries = self._boundaries(fields, axes)
         order = self.table("order")
         self.known_keys("order", order, ("space", "time", "tolerance", "by"))
@@ -575,10 +459,11 @@ class _Reader:
         quantities = self._quantities(with_fields, fields, fluxes, coords, box, axes)
         bounds = self._bounds({**with_fields, **parameters}, fields, parameters)
         equation_text = {k: str(v) for k, v in eqs.items()} if kind == "custom" else {}
-        if self.engine is not _fast.SYMPY:
-            coords = tuple(sp.Symbol(str(c), real=True) for c in coords)
-            t = sp.Symbol("t", real=True) if t is not None else None
-        return Problem(bounds=bounds, equation_text=equation_text, quantities=quantities, name=name,
+        given = {k: v for k, v in op_tab.items() if k != "equations"}
+        if kind != "custom":
+            given = {k: op_tab.get(k, default) for k, default in get_operator(kind).parameters.items()}
+        digest = _digest(self.data, kind, given, boundaries)
+        return Problem(bounds=bounds, equation_text=equation_text, quantities=quantities, name=name, digest=digest,
                        description=description, coords=coords, t=t,
                        lower=tuple(box[a][0] for a in axes), upper=tuple(box[a][1] for a in axes),
                        t_range=box.get("t"), constants=constants, fields=fields, operator=kind,
@@ -605,9 +490,10 @@ class _Reader:
             raise ProblemError(str(exc)) from None
         return rules
 
+
     def check_size(self, section, key, expr, what):
         """Refuse a derived expression whose tree has more than MAX_EQUATION_NODES nodes."""
-        if self.engine.nodes(expr, MAX_EQUATION_NODES) > MAX_EQUATION_NODES:
+        if _nodes(expr, MAX_EQUATION_NODES) > MAX_EQUATION_NODES:
             self.fail(section, key, f"{what} has more than {MAX_EQUATION_NODES} terms and factors after "
                                     "differentiation; use fewer or simpler terms in the fields (each factor "
                                     "of a product multiplies the size of every derivative)")
@@ -683,7 +569,7 @@ class _Reader:
                     self.fail("quantities", name, f"flux needs side = one of {', '.join(sides)}")
                 axis, sign = SPACE.index(side[0]), (1 if side.endswith("max") else -1)
                 vec = fluxes.get(f) or [fields[f].diff(c) for c in coords]
-                out[name] = ("flux", self.engine.at(sign * vec[axis], coords[axis], box[side[0]][side.endswith("max")]),
+                out[name] = ("flux", (sign * vec[axis]).subs(coords[axis], box[side[0]][side.endswith("max")]),
                              side, f)
             else:
                 at = spec.get("at")
@@ -728,73 +614,61 @@ def problem_from_text(text, source="<text>"):
     if len(text) > MAX_FILE_CHARS:
         raise ProblemError(f"{source}: the file has {len(text)} characters; problem files are limited to "
                            f"{MAX_FILE_CHARS} (define long expressions with fewer terms)")
-    reader = None
+    for number, line in enumerate(text.splitlines(), 1):
+        if line.split("=", 1)[0].count(".") > MAX_KEY_PARTS:    # the TOML reader is slow on such keys
+            raise ProblemError(f"{source}, line {number}: a key of more than {MAX_KEY_PARTS} dotted parts; problem "
+                               "files use tables at most two levels deep, such as [operator.equations]")
     try:
-        with _time_limit(MAX_LOAD_SECONDS):
-            try:
-                data = tomllib.loads(text)
-            except tomllib.TOMLDecodeError as exc:
-                raise ProblemError(f"{source}: not valid TOML ({exc}); check quotes and brackets") from None
-            except (RecursionError, MemoryError):
-                raise ProblemError(f"{source}: nested too deeply to read") from None
-            # Derivation cache (mmsverify._diskcache): the same text gives the same
-            # problem; only the name default and the source depend on where it is.
-            key = _diskcache.make_key("problem", text)
-            cached = _diskcache.load("problem", key)
-            if isinstance(cached, Problem):
-                name = data.get("name", Path(source).stem)
-                if (name, source) != (cached.name, cached.source):
-                    cached = cached.renamed(name, source)
-                return cached
-            problem = _read_fast(data, text, source)
-            if problem is None:
-                reader = _Reader(data, text, source)
-                problem = reader.read()
-                reader.stage = ("operator", "kind")  # the hash prints every derived term
-            problem.content_hash()
-    except _Timeout:
-        section, entry = (reader.stage if reader is not None and reader.stage else (None, None))
-        where = reader.where(section, entry) if section else source
-        if reader is None:
-            doing = "reading the TOML; split deeply nested or very long tables"
-        elif section is None:
-            doing = "checking the tables"
-        else:
-            doing = ("deriving the source terms" if (section, entry) == ("operator", "kind") else
-                     "reading this entry") + ("; use fewer or simpler terms (each factor of a product "
-                                              "multiplies the size of every derivative)")
-        raise ProblemError(f"{where}: loading took longer than {MAX_LOAD_SECONDS:g} s and was stopped while "
-                           f"{doing}") from None
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ProblemError(f"{source}: not valid TOML ({exc}); check quotes and brackets") from None
+    except (RecursionError, MemoryError):
+        raise ProblemError(f"{source}: nested too deeply to read") from None
+    try:
+        return _Reader(data, text, source).read()
     except RecursionError:
         raise ProblemError(f"{source}: an expression is nested too deeply to differentiate") from None
-    _diskcache.store("problem", key, problem._packed())
-    return problem
 
 
-def _read_fast(data, text, source):
-    """The problem read by the fast engine (see :mod:`mmsverify._fast`), or None where it steps aside."""
-    operator = data.get("operator")
-    if (operator.get("kind", "poisson") if isinstance(operator, dict) else "poisson") not in _fast.FAST_OPERATORS:
-        return None   # before loading symengine
-    engine = _fast.fast_engine()
-    if engine is None:
-        return None
-    try:
-        problem = _Reader(data, text, source, engine).read()
-    except Exception:  # anything at all: the sympy reader decides and explains
-        return None
-    return problem._fast_form(text)
+def _number(value):
+    return sp.nsimplify(value) if isinstance(value, int) else sp.Float(value)
 
 
-def _sympy_tables(text, source):
-    """The sympy tables of a problem read by the fast engine: its text read again with sympy."""
-    try:
-        with _time_limit(MAX_LOAD_SECONDS):
-            problem = _Reader(tomllib.loads(text), text, source).read()
-    except _Timeout:
-        raise ProblemError(f"{source}: building the sympy form of the problem took longer than "
-                           f"{MAX_LOAD_SECONDS:g} s") from None
-    return {k: getattr(problem, k) for k in Problem._SYMBOLIC}
+def _nodes(expr, limit):
+    """Number of nodes of the expression tree, counting stops past ``limit``."""
+    n = 0
+    for n, _ in enumerate(sp.preorder_traversal(expr), 1):
+        if n > limit:
+            break
+    return n
+
+
+def _digest(data, kind, parameters, boundaries):
+    """SHA-256 of the canonical parsed input (see :meth:`Problem.content_hash`).
+
+    ``parameters`` holds each operator parameter as the file gives it or as
+    the operator's default, so a changed default changes the hash.
+    """
+    def table(name):
+        value = data.get(name, {})
+        return value if isinstance(value, dict) else {}
+
+    def quantity(spec):
+        return {k: ([canonical_form(v) for v in spec[k]] if k == "at" else
+                    spec[k] if k in ("flux", "side") else canonical_form(spec[k])) for k in sorted(spec)}
+
+    operator = table("operator")
+    canonical = {
+        "format": 1,
+        "domain": {a: [canonical_form(v) for v in box] for a, box in table("domain").items()},
+        "constants": {k: canonical_form(v) for k, v in table("constants").items()},
+        "fields": {k: canonical_form(v) for k, v in table("fields").items()},
+        "operator": {"kind": kind, "parameters": {k: canonical_form(v) for k, v in parameters.items()},
+                     "equations": {k: canonical_form(v) for k, v in operator.get("equations", {}).items()}},
+        "boundaries": sorted(f"{f}:{side}:{k}" for (f, side), k in boundaries.items()),
+        "quantities": {k: quantity(v) for k, v in table("quantities").items()},
+    }
+    return hashlib.sha256(json.dumps(canonical, sort_keys=True, separators=(",", ":")).encode()).hexdigest()
 
 
 def load_problem(path):

@@ -15,13 +15,11 @@ from collections.abc import Mapping
 import dataclasses
 from dataclasses import dataclass, field
 import math
-import multiprocessing
 import time
 import traceback
 
 import numpy as np
 
-from mmsverify import _diskcache
 from mmsverify.problem.derive import derive
 from mmsverify.errors import AnalysisError, GridError, MMSError, SolverError
 from mmsverify.execute.grids import Grid, check_refinement, refinement
@@ -557,12 +555,7 @@ def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combi
 
 def run_level(solver, case, where):
     """Run one level and measure its errors; never raises for solver faults."""
-    try:
-        return _run_level(solver, case, where)
-    finally:
-        if multiprocessing.parent_process() is not None:
-            # a worker process ends without running exit handlers: write the cache entries it made now
-            _diskcache.flush()
+    return _run_level(solver, case, where)
 
 
 def _run_level(solver, case, where):
