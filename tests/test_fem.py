@@ -42,7 +42,8 @@ def test_a_wrong_neumann_sign_is_caught():
 
 
 def test_the_command_line_confirms_both_elements_with_the_sizes_run(capsys):
-    for name, unknowns in (("fem-p1", "49 unknowns"), ("fem-p2", "169 unknowns")):
+    for name, unknowns in (("solvers_demo.fem.poisson:p1", "49 unknowns"),
+                           ("solvers_demo.fem.poisson:p2", "169 unknowns")):
         assert main(["run", "plate-poisson", name, "--cells", "6,10,17,29"]) == 0
         out = capsys.readouterr().out
         assert "u L2" in out and "u H1semi" in out and f"6x6 cells, {unknowns}" in out

@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 
 from mmsverify import Solution, SolverError, run_study
-from mmsverify.derive import derive
-from mmsverify.gradnorms import gradient_errors, norm_orders
-from mmsverify.problem import problem_from_text
+from mmsverify.problem.derive import derive
+from mmsverify.execute.gradnorms import gradient_errors, norm_rules
+from mmsverify.problem.record import problem_from_text
 
 TEXT = '[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "x**3 * y + sin(y)"\n[operator]\nkind = "diffusion"\nk = 2.0\n'
 
@@ -42,10 +42,10 @@ def test_norm_orders_forms_and_errors():
     class Bad:
         norm_orders = {"H2": 1}
 
-    assert norm_orders(Both(), p, "s") == {("u", "L2"): 3.0, ("u", "H1semi"): 2.0}
-    assert norm_orders(PerField(), p, "s") == {("u", "energy"): 1.0}
+    assert norm_rules(Both(), p, "s") == {"L2": {"space": 3.0}, "H1semi": {"space": 2.0}}
+    assert norm_rules(PerField(), p, "s") == {"u energy": {"space": 1.0}}
     with pytest.raises(SolverError, match="unknown norm 'H2'"):
-        norm_orders(Bad(), p, "s")
+        norm_rules(Bad(), p, "s")
 
 
 class _Sampled:
@@ -89,16 +89,17 @@ def test_gradients_of_the_wrong_shape_fail_the_level():
     assert "must hold 2 arrays" in r.levels[0].message
 
 
-def test_orders_per_norm_in_the_problem_file():
-    text = TEXT + '[order]\nspace = 2\nnorms = {L2 = 2, H1semi = 1}\n'
-    p = problem_from_text(text)
-    assert p.norm_orders == {"L2": 2.0, "H1semi": 1.0}
+def test_orders_per_norm_in_the_problem_file_override_the_solver():
+    # [order.by] rules give a gradient norm its order; they win over the solver's norm_orders
+    text = TEXT + '[order]\nspace = 2\n[order.by]\n"u H1semi" = {space = 1}\n'
 
     class Plain(_Sampled):
         norm_orders = None
 
-    r = run_study(p, Plain(), levels=3, base_cells=4)
-    assert {(v.norm, v.formal) for v in r.verdicts} >= {("L2", 2), ("H1semi", 1)} and r.passed, str(r)
-    from mmsverify import ProblemError
-    with pytest.raises(ProblemError, match="unknown norm 'H2'"):
-        problem_from_text(TEXT + '[order]\nnorms = {H2 = 1}\n')
+    r = run_study(problem_from_text(text), Plain(), levels=3, base_cells=4)
+    assert {(v.norm, v.formal) for v in r.verdicts} == {("L2", 2), ("H1semi", 1)} and r.passed, str(r)
+
+    class Claims(_Sampled):
+        norm_orders = {"H1semi": 2}
+
+    assert run_study(problem_from_text(text), Claims(), levels=3, base_cells=4).passed

@@ -9,8 +9,8 @@ import pytest
 meshio = pytest.importorskip("meshio")
 
 from mmsverify import load_problem, run_study  # noqa: E402
-from mmsverify.external import ExternalSolver, read_solution  # noqa: E402
-from mmsverify.meshfiles import cell_volumes  # noqa: E402
+from mmsverify.execute.external import ExternalSolver, read_solution  # noqa: E402
+from mmsverify.execute.meshfiles import cell_volumes  # noqa: E402
 
 PROGRAM = str(Path(__file__).parent / "data" / "vtu_program.py")
 

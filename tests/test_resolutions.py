@@ -5,8 +5,8 @@ import pytest
 
 from mmsverify import GridError, ProblemError, Solution, run_study
 from mmsverify.cli import main
-from mmsverify.problem import problem_from_text
-from mmsverify.resolutions import listed_grids, parse_cells
+from mmsverify.problem.record import problem_from_text
+from mmsverify.execute.resolutions import listed_grids, parse_cells
 
 TEXT = ('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "sin(2*x) * cos(y)"\n[operator]\nkind = "poisson"\n'
         '[order]\nspace = 2\n')
