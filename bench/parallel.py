@@ -45,6 +45,7 @@ from _common import ROOT, Timer, machine, table  # noqa: E402
 from mmsverify import run_study  # noqa: E402
 from mmsverify.outputs.export import write_export  # noqa: E402
 from mmsverify.execute.external import ExternalSolver  # noqa: E402
+from mmsverify.study.settings import Refinement, Running
 
 PROBLEM = "plate-poisson"
 
@@ -63,7 +64,7 @@ def _measure(solver, base, ratio, repeats):
     for _ in range(repeats):
         for workers in (1, 2):
             with Timer() as t:
-                result = run_study(PROBLEM, solver, levels=4, base_cells=base, ratio=ratio, workers=workers)
+                result = run_study(PROBLEM, solver, refinement=Refinement(levels=4, base_cells=base, ratio=ratio), running=Running(workers=workers))
             if not all(lv.ok for lv in result.levels):
                 raise SystemExit(f"a level failed:\n{result}")
             walls[workers].append(t.wall)
@@ -105,8 +106,9 @@ def main():
             rows.append([name, "/".join(map(str, cells)), " ".join(f"{s:.2f}" for s in levels),
                          f"{one:.2f}", f"{two:.2f}", f"{two / one:.2f}", f"{bound:.2f}"])
         if shutil.which("gcc"):
-            jobs = [dict(problem=PROBLEM, solver=c, levels=4, base_cells=2 * args.base, ratio=2 ** 0.5),
-                    dict(problem=PROBLEM, solver="poisson2d", levels=4, base_cells=6 * args.base, ratio=2 ** 0.5)]
+            jobs = [dict(problem=PROBLEM, solver=c, refinement=Refinement(levels=4, base_cells=2 * args.base, ratio=2 ** 0.5)),
+                    dict(problem=PROBLEM, solver="poisson2d",
+                         refinement=Refinement(levels=4, base_cells=6 * args.base, ratio=2 ** 0.5))]
             one, two = _studies(jobs, args.repeats)
             rows.append(["2 studies", "c-sor-r1.41 + py-sparse-r1.41", "-", f"{one:.2f}", f"{two:.2f}",
                          f"{two / one:.2f}", "0.50"])

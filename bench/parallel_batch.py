@@ -74,7 +74,9 @@ def _command(workers, keys):
 
 def _studies(workers, jobs):
     from mmsverify.execute.runner import run_studies
-    results = run_studies([dict(problem=p, solver=s, **kw) for p, s, kw in jobs], workers=workers)
+    from mmsverify.study.settings import Refinement
+    results = run_studies([dict(problem=p, solver=s, refinement=Refinement(**{k: v for k, v in kw.items() if k != "options"}),
+                                 options=kw.get("options")) for p, s, kw in jobs], workers=workers)
     for (p, s, _), r in zip(jobs, results):
         if not r.passed:
             raise SystemExit(f"study {p} / {s} did not pass:\n{r}")

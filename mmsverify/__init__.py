@@ -13,6 +13,7 @@ from mmsverify.analysis.order import observed_orders, fit_order, classify_conver
 from mmsverify.analysis.gci import gci, gci_profile
 from mmsverify.analysis.estimate import assess, assess_table, load_levels, plan
 from mmsverify.analysis.verdict import Verdict
+from mmsverify.study.settings import Judging, Refinement, Running
 from mmsverify.study.refinement import LevelResult, StudyResult, run_study, plan_grids
 from mmsverify.study.spacetime import SpaceTimeResult, run_space_time
 from mmsverify.execute.external import ExternalSolver
@@ -23,7 +24,7 @@ __all__ = [
     "MMSError", "ProblemError", "ExpressionError", "GridError", "SolverError", "AnalysisError",
     "Grid", "refinement", "Problem", "load_problem", "problem_from_text", "bundled_problems",
     "Manufactured", "derive", "Case", "Solution", "error_norms", "observed_orders", "Verdict",
-    "LevelResult", "StudyResult", "run_study", "plan_grids", "SpaceTimeResult", "run_space_time",
+    "LevelResult", "StudyResult", "run_study", "Refinement", "Judging", "Running", "plan_grids", "SpaceTimeResult", "run_space_time",
     "fit_order", "classify_convergence", "asymptotic_check", "eca_hoekstra", "gci", "gci_profile",
     "assess", "assess_table", "load_levels", "plan", "ExternalSolver", "run_studies", "LevelCache",
 ]

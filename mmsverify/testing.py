@@ -18,6 +18,7 @@ This module does not import pytest; the assertion works under any runner.
 
 from mmsverify.execute.norms import NORMS
 from mmsverify.study.refinement import run_study
+from mmsverify.study.settings import Judging
 
 __all__ = ["OrderCheckError", "assert_order", "failure_message"]
 
@@ -71,8 +72,8 @@ def failure_message(result, fields=None, norms=("L2",), allow_failed_levels=Fals
     return "\n".join([head] + [f"  {p}" for p in problems] + ["", str(result)])
 
 
-def assert_order(problem, solver, order=None, *, norms=("L2",), fields=None, tolerance=None, levels=None,
-                 base_cells=None, ratio=None, mode="combined", allow_failed_levels=False, **study_options):
+def assert_order(problem, solver, order=None, *, norms=("L2",), fields=None, tolerance=None, refinement=None,
+                 running=None, options=None, allow_failed_levels=False):
     """Assert that ``solver`` converges at ``order`` on ``problem``; return the study.
 
     Parameters
@@ -88,12 +89,16 @@ def assert_order(problem, solver, order=None, *, norms=("L2",), fields=None, tol
         Fields to check (default all).
     tolerance : float, optional
         Allowed ``|observed - order|`` (default: the problem's).
-    levels, base_cells, ratio, mode : optional
-        Refinement plan, as for :func:`~mmsverify.study.refinement.run_study`.
+    refinement : Refinement or int, optional
+        Which levels run (a number of levels, or a
+        :class:`~mmsverify.study.settings.Refinement`).
+    running : Running, optional
+        How the levels run (workers, time limit, cache), as for
+        :func:`~mmsverify.study.refinement.run_study`.
+    options : dict, optional
+        Passed to the solver in ``case.options``.
     allow_failed_levels : bool
         By default any failed level fails the check.
-    **study_options
-        Further keywords for :func:`~mmsverify.study.refinement.run_study`.
 
     Returns
     -------
@@ -111,8 +116,8 @@ def assert_order(problem, solver, order=None, *, norms=("L2",), fields=None, tol
         raise ValueError(f"unknown norm(s) {unknown}; choose from {', '.join(NORMS)}")
     if isinstance(fields, str):
         fields = (fields,)
-    result = run_study(problem, solver, levels=levels, base_cells=base_cells, ratio=ratio, mode=mode,
-                       tolerance=tolerance, formal_order=order, **study_options)
+    result = run_study(problem, solver, refinement, Judging(tolerance=tolerance, formal_order=order), running,
+                       options=options)
     message = failure_message(result, fields, norms, allow_failed_levels)
     if message:
         raise OrderCheckError(message, result)

@@ -20,6 +20,7 @@ import time
 
 import numpy as np
 
+from mmsverify.study.settings import Refinement
 from mmsverify.execute.runner import process_pool
 
 from .catalogue import entries
@@ -82,7 +83,9 @@ def run_entry(entry):
     """Run the study of one entry and judge it."""
     start = time.perf_counter()
     recorder = _Recorder(entry.solver)
-    result = verify(recorder, entry.problem, **entry.study)
+    plan = dict(entry.study)
+    options = plan.pop("options", None)
+    result = verify(recorder, entry.problem, Refinement(**plan), options=options)
     verdicts = [v for v in result.verdicts if v.norm in entry.norms]
     flagged = not verdicts or any(not v.ok for v in verdicts)
     # per norm, the field verdict furthest from the formal order (quantities, norm "value", are not columns)

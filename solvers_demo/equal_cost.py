@@ -25,6 +25,7 @@ import math
 
 import numpy as np
 
+from mmsverify.study.settings import Refinement
 from mmsverify import AnalysisError, Case, derive, plan_grids
 
 from .studies import problem_for, verify
@@ -151,7 +152,7 @@ def compare_at_equal_cost(problem, schemes, *, levels=5, base_cells=8, target=0.
         prob = problem_for(problem, solver)
         first = plan_grids(prob, 2, base_cells)[0]
         solver(Case(first, derive(prob), dict(options or {})))  # warm-up, not measured
-        result = verify(solver, prob, levels=levels, base_cells=base_cells, options=options)
+        result = verify(solver, prob, Refinement(levels=levels, base_cells=base_cells), options=options)
         ok = [lv for lv in result.levels if lv.ok]
         field = prob.field_names[0]
         if len(ok) < 2:

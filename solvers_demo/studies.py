@@ -23,15 +23,16 @@ def problem_for(problem, solver):
     return problem.with_changes(**changes)
 
 
-def verify(solver, problem, **kwargs):
+def verify(solver, problem, refinement=None, **kwargs):
     """:func:`mmsverify.run_study` of ``solver`` on ``problem`` judged against the solver's orders.
 
-    Keyword arguments go to ``run_study`` (levels, base_cells, mode, options, ...).
+    ``refinement`` (a number of levels or a Refinement) and the keyword
+    arguments (judging, running, options) go to ``run_study``.
 
     Examples
     --------
     >>> from solvers_demo.fd.diffusion import FDDiffusion
-    >>> verify(FDDiffusion(), "plate-poisson", levels=3).passed
+    >>> verify(FDDiffusion(), "plate-poisson", 4).passed
     True
     """
-    return run_study(problem_for(problem, solver), solver, **kwargs)
+    return run_study(problem_for(problem, solver), solver, refinement, **kwargs)

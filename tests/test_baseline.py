@@ -14,11 +14,12 @@ from mmsverify.cli import main
 from mmsverify.errors import MMSError, ProblemError
 from mmsverify.problem.record import PROBLEM_DIR
 from solvers_demo.fd import poisson
+from mmsverify.study.settings import Refinement
 
 
 @pytest.fixture(scope="module")
 def good():
-    return run_study("plate-poisson", "poisson2d", levels=4)
+    return run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=4))
 
 
 def _scaled(result, factor):
@@ -62,7 +63,7 @@ def test_file_round_trip_and_portable_problem_path(good, tmp_path):
     proj = tmp_path / "proj"
     (proj / "ci").mkdir(parents=True)
     shutil.copy(PROBLEM_DIR / "plate-poisson.toml", proj / "plate.toml")
-    save_baseline(run_study(proj / "plate.toml", "poisson2d", levels=4), proj / "ci" / "b.json")
+    save_baseline(run_study(proj / "plate.toml", "poisson2d", refinement=Refinement(levels=4)), proj / "ci" / "b.json")
     assert json.loads((proj / "ci" / "b.json").read_text())["problem"]["source"] == "../plate.toml"
     moved = shutil.copytree(proj, tmp_path / "elsewhere")
     assert check_baseline(moved / "ci" / "b.json").passed
@@ -129,23 +130,23 @@ def test_failed_level_fails_the_check(good):
 
 
 def test_changed_problem_is_refused(good, tmp_path):
-    base = baseline_from_study(run_study(PROBLEM_DIR / "plate-poisson.toml", "poisson2d", levels=4))
+    base = baseline_from_study(run_study(PROBLEM_DIR / "plate-poisson.toml", "poisson2d", refinement=Refinement(levels=4)))
     edited = tmp_path / "plate.toml"
     edited.write_text((PROBLEM_DIR / "plate-poisson.toml").read_text().replace("a = 0.7", "a = 0.75"))
     with pytest.raises(ProblemError, match="changed since the baseline was saved"):
         check_baseline(base, problem=edited)
-    other = run_study(edited, "poisson2d", levels=4)
+    other = run_study(edited, "poisson2d", refinement=Refinement(levels=4))
     assert compare(base, other).findings[0].kind == "problem"
 
 
 def test_other_grids_are_a_finding(good):
     base = baseline_from_study(good)
-    check = compare(base, run_study("plate-poisson", "poisson2d", levels=2))
+    check = compare(base, run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2)))
     assert [f.kind for f in check.findings] == ["grid"]
 
 
 def test_refuses_to_record_a_failing_study(tmp_path):
-    bad = run_study("plate-poisson", "poisson2d-neumann1", levels=3)
+    bad = run_study("plate-poisson", "poisson2d-neumann1", refinement=Refinement(levels=3))
     with pytest.raises(MMSError, match="did not pass"):
         baseline_from_study(bad)
     assert isinstance(baseline_from_study(bad, allow_failing=True), Baseline)
@@ -231,7 +232,7 @@ def test_baseline_without_quantities_still_checks(good, tmp_path):
 def test_order_rule_follows_the_norms_the_study_judged():
     """A solver that states its order holds in L1/L2 for p (staggered Navier-Stokes) is not held to
     Linf by a baseline check, while every error is still compared; naming the norms still holds it."""
-    result = run_study("cavity-flow", "ns-staggered", levels=4)
+    result = run_study("cavity-flow", "ns-staggered", refinement=Refinement(levels=4))
     assert result.passed and result.judged_norms["p"] == ("L1", "L2")
     base = baseline_from_study(result)
     check = compare(base, result)

@@ -46,27 +46,28 @@ def test_periodic_sides_pair_and_need_a_periodic_field():
 
 
 def test_a_solver_without_robin_refuses_it():
-    r = run_study(problem_from_text(ROBIN), "fd-diffusion", levels=2)
+    r = run_study(problem_from_text(ROBIN), "fd-diffusion", refinement=Refinement(levels=2))
     assert not r.passed and "implements dirichlet, neumann boundaries" in r.levels[0].message
 
 
 skfem = pytest.importorskip("skfem")
 from solvers_demo.fem.poisson import FEMPoisson  # noqa: E402
+from mmsverify.study.settings import Refinement
 
 
 @pytest.mark.parametrize("degree", [1, 2], ids=["P1", "P2"])
 def test_robin_case_passes_and_a_wrong_sign_is_caught(degree):
     # Brenner & Scott, Theorem 4.4.20 with a Robin term (a coercive form for alpha > 0): L2 at p+1, H1 at p
-    good = run_study(problem_from_text(ROBIN), FEMPoisson(degree=degree), cells=[4, 8, 16])
+    good = run_study(problem_from_text(ROBIN), FEMPoisson(degree=degree), refinement=Refinement(cells=[4, 8, 16]))
     assert good.passed, str(good)
-    bad = run_study(problem_from_text(ROBIN), FEMPoisson(degree=degree, mistake="robin-sign"), cells=[4, 8, 16])
+    bad = run_study(problem_from_text(ROBIN), FEMPoisson(degree=degree, mistake="robin-sign"), refinement=Refinement(cells=[4, 8, 16]))
     assert not bad.passed
 
 
 def test_curved_neumann_boundary_passes_and_a_box_normal_is_caught():
     # the disc inscribed in plate-poisson's box: its right arc takes x_max's Neumann kind
-    good = run_study("plate-poisson", FEMPoisson(domain="disc"), cells=[4, 8, 16, 32])
+    good = run_study("plate-poisson", FEMPoisson(domain="disc"), refinement=Refinement(cells=[4, 8, 16, 32]))
     assert good.passed, str(good)
     assert "disc, " in str(good) and "4x4 cells" not in str(good)
-    bad = run_study("plate-poisson", FEMPoisson(domain="disc", mistake="box-normal"), cells=[4, 8, 16, 32])
+    bad = run_study("plate-poisson", FEMPoisson(domain="disc", mistake="box-normal"), refinement=Refinement(cells=[4, 8, 16, 32]))
     assert not bad.passed

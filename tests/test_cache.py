@@ -12,6 +12,7 @@ import pytest
 from mmsverify import Case, derive, plan_grids, run_study
 from mmsverify.execute.cache import LevelCache, solver_identity
 from mmsverify.execute.external import ExternalSolver
+from mmsverify.study.settings import Refinement, Running
 
 PROBLEM = "plate-poisson"
 REPO = Path(__file__).resolve().parent.parent
@@ -75,7 +76,7 @@ def test_solver_identity_follows_its_code(tmp_path, monkeypatch):
 
 
 def test_records_are_written_atomically_and_unreadable_ones_ignored(tmp_path):
-    result = run_study(PROBLEM, "poisson2d", levels=2, cache_dir=tmp_path)
+    result = run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=2), running=Running(cache_dir=tmp_path))
     cache = LevelCache(tmp_path)
     assert len(cache) == 2
     assert not [p for p in (tmp_path / "levels").iterdir() if p.suffix != ".json"]  # no temporary files left
@@ -98,7 +99,7 @@ def test_records_are_pushed_to_disk_after_they_are_in_place(tmp_path, monkeypatc
             done.set()
 
     monkeypatch.setattr(cache_mod, "_flush", fake_flush)
-    run_study(PROBLEM, "poisson2d", levels=3, cache_dir=tmp_path)
+    run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=3), running=Running(cache_dir=tmp_path))
     assert done.wait(10)
     assert sorted(flushed) == sorted((tmp_path / "levels").glob("*.json"))   # whole records, by their final names
 
@@ -118,18 +119,18 @@ def test_one_record_that_cannot_be_flushed_does_not_stop_the_others(tmp_path, mo
             done.set()
 
     monkeypatch.setattr(cache_mod, "_flush", flaky_flush)
-    run_study(PROBLEM, "poisson2d", levels=3, cache_dir=tmp_path)
+    run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=3), running=Running(cache_dir=tmp_path))
     assert done.wait(10)
 
 
 def test_rerun_reuses_finished_levels(counting, tmp_path):
-    first = run_study(PROBLEM, "counting_solver:solve", levels=3, cache_dir=tmp_path / "c")
+    first = run_study(PROBLEM, "counting_solver:solve", refinement=Refinement(levels=3), running=Running(cache_dir=tmp_path / "c"))
     assert _calls(counting) == [0, 1, 2]
-    second = run_study(PROBLEM, "counting_solver:solve", levels=4, cache_dir=tmp_path / "c")
+    second = run_study(PROBLEM, "counting_solver:solve", refinement=Refinement(levels=4), running=Running(cache_dir=tmp_path / "c"))
     assert _calls(counting) == [0, 1, 2, 3]  # only the new level ran
     assert [lv.errors for lv in second.levels[:3]] == [lv.errors for lv in first.levels]
     assert "reused from the level cache" in second.levels[0].message and second.passed
-    run_study(PROBLEM, "counting_solver:solve", levels=2, cache_dir=tmp_path / "c", resume=False)
+    run_study(PROBLEM, "counting_solver:solve", refinement=Refinement(levels=2), running=Running(cache_dir=tmp_path / "c", resume=False))
     assert _calls(counting) == [0, 1, 2, 3, 0, 1]
 
 
@@ -144,7 +145,7 @@ def _fail(case):
 def test_failed_levels_are_not_stored_and_run_again(tmp_path):
     _FAILED_CALLS.clear()
     for _ in range(2):
-        result = run_study(PROBLEM, _fail, levels=2, cache_dir=tmp_path)
+        result = run_study(PROBLEM, _fail, refinement=Refinement(levels=2), running=Running(cache_dir=tmp_path))
         assert not any(lv.ok for lv in result.levels)
     assert len(LevelCache(tmp_path)) == 0
     assert _FAILED_CALLS == [0, 1, 0, 1]
@@ -168,7 +169,7 @@ def test_a_killed_study_resumes_without_redoing_finished_levels(counting, tmp_pa
     finally:
         proc.kill()
         proc.wait()
-    result = run_study(PROBLEM, "counting_solver:solve", levels=4, cache_dir=cache_dir)
+    result = run_study(PROBLEM, "counting_solver:solve", refinement=Refinement(levels=4), running=Running(cache_dir=cache_dir))
     assert _calls(counting) == [0, 1, 2, 2, 3]  # the rerun did only levels 2 and 3
     assert result.passed and [lv.level for lv in result.levels] == [0, 1, 2, 3]
     assert len(LevelCache(cache_dir)) == 4

@@ -5,6 +5,7 @@ import subprocess
 import sys
 
 from mmsverify.cli import main
+from mmsverify.study.settings import Refinement
 
 
 def test_demo_passes_the_correct_solver_and_catches_the_mistake(capsys):
@@ -96,7 +97,7 @@ def test_a_missing_external_program_exits_2_and_names_the_level_once(capsys):
 def test_an_external_level_message_names_problem_and_level_once(tmp_path):
     from mmsverify import run_study
     from mmsverify.execute.external import ExternalSolver
-    result = run_study("plate-poisson", ExternalSolver([str(tmp_path / "absent"), "{case}"]), levels=3)
+    result = run_study("plate-poisson", ExternalSolver([str(tmp_path / "absent"), "{case}"]), refinement=Refinement(levels=3))
     for lv in result.levels:
         where = f"level {lv.level} ({lv.grid.describe()})"
         assert lv.message.count(where) == 1 and lv.message.count("problem plate-poisson") == 1

@@ -9,6 +9,7 @@ from solvers_demo.fd._quantities import _ONE_SIDED, _interpolate, node_quantitie
 from solvers_demo.fd.burgers import FDBurgers
 from solvers_demo.fd.diffusion import FDDiffusion
 from solvers_demo.fd.heat import FDHeat
+from mmsverify.study.settings import Refinement
 
 
 def _verdicts(result):
@@ -19,7 +20,7 @@ def test_poisson2d_reports_both_plate_quantities_at_order_two():
     # Atkinson 1989, An Introduction to Numerical Analysis, section 5.1: trapezoid rule error O(h**2)
     # (from memory); the flux's one-sided difference is of fifth order, so its error is the
     # solution's O(h**2) (Fornberg 1988, Math. Comp. 51:699, Table 3; from memory)
-    r = run_study("plate-poisson", "poisson2d", levels=5)
+    r = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=5))
     assert r.quantities == ("deflection", "edge_slope") and r.missing_quantities == {}
     verdict = _verdicts(r)
     assert verdict["deflection"].ok and verdict["edge_slope"].ok
@@ -66,7 +67,7 @@ def test_point_flux_and_integral_of_a_variable_coefficient_problem_are_confirmed
     # (LeVeque 2007, Finite Difference Methods for ODEs and PDEs, section 2.15: the
     # conservative stencil is second order for smooth variable k; from memory)
     p = problem_from_text(_MEMBRANE, "membrane.toml")
-    r = run_study(p, FDDiffusion(), levels=4)
+    r = run_study(p, FDDiffusion(), refinement=Refinement(levels=4))
     verdict = _verdicts(r)
     assert set(verdict) == {"centre", "left", "right", "total"}
     assert all(v.ok for v in verdict.values()), [str(v) for v in verdict.values()]
@@ -113,7 +114,7 @@ probe = {point = "T", at = [0.25]}
 wall = {flux = "T", side = "x_min"}
 heat = {integral = "T"}
 """
-    r = run_study(problem_from_text(text, "rod.toml"), FDHeat(), levels=4, base_cells=8, base_steps=8)
+    r = run_study(problem_from_text(text, "rod.toml"), FDHeat(), refinement=Refinement(levels=4, base_cells=8, base_steps=8))
     verdict = _verdicts(r)
     assert set(verdict) == {"probe", "wall", "heat"}
     assert all(v.ok for v in verdict.values()), [str(v) for v in verdict.values()]
@@ -131,7 +132,7 @@ nu = 0.1
 [quantities]
 outflow = {flux = "u", side = "x_max"}
 """
-    r = run_study(problem_from_text(text, "front.toml"), FDBurgers(), levels=4, base_cells=16)
+    r = run_study(problem_from_text(text, "front.toml"), FDBurgers(), refinement=Refinement(levels=4, base_cells=16))
     assert _verdicts(r)["outflow"].ok, str(r)
 
 

@@ -16,6 +16,7 @@ import mmsverify
 from mmsverify import Case, SolverError, derive, plan_grids, run_study
 from mmsverify.outputs.export import write_export
 from mmsverify.execute.external import ExternalSolver, ProgramFailed, expand_command, read_solution, write_case
+from mmsverify.study.settings import Refinement
 
 REPO = Path(__file__).resolve().parent.parent
 PY = sys.executable
@@ -136,7 +137,7 @@ def test_points_and_h_of_an_unstructured_mesh(tmp_path):
         np.savez(case["output"], points=c, volume=area, u=u)
     """)
     solver = ExternalSolver([PY, str(prog), "{case}"], fmt="npz", spacing="volumes")
-    result = run_study("plate-poisson", solver, levels=3)
+    result = run_study("plate-poisson", solver, refinement=Refinement(levels=3))
     hs = [lv.h for lv in result.levels]
     assert all(lv.ok for lv in result.levels)
     for lv in result.levels:  # two triangles per square cell of side 1/n
@@ -210,7 +211,7 @@ def test_failing_levels_are_recorded_and_the_rest_still_judged(tmp_path):
         np.savetxt(case["output"], np.column_stack([X.ravel(), Y.ravel(), u.ravel()]), delimiter=",",
                    header="x,y,u", comments="")
     """)
-    result = run_study("plate-poisson", ExternalSolver([PY, str(prog)]), levels=5, base_cells=4)
+    result = run_study("plate-poisson", ExternalSolver([PY, str(prog)]), refinement=Refinement(levels=5, base_cells=4))
     status = [lv.status for lv in result.levels]
     assert status == ["ok", "failed", "ok", "ok", "failed"]
     assert "exited with code 139" in result.levels[1].message
@@ -237,12 +238,12 @@ def c_demo(tmp_path_factory):
 
 def test_c_demo_reaches_order_two_through_the_runner(c_demo, tmp_path):
     solver = ExternalSolver([str(c_demo), "{case}"], workdir=str(tmp_path), timeout=60)
-    result = run_study("plate-poisson", solver, levels=4)
+    result = run_study("plate-poisson", solver, refinement=Refinement(levels=4))
     assert result.passed, str(result)
     for v in result.verdicts:
         assert abs(v.observed - 2) < 0.1  # plate-poisson.toml [order] space = 2, tolerance 0.1
     # the same 5-point scheme with ghost-node Neumann as the bundled Python solver: same discrete errors
-    python = run_study("plate-poisson", "poisson2d", levels=4)
+    python = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=4))
     for c_level, py_level in zip(result.levels, python.levels):
         assert c_level.errors["u"]["L2"] == pytest.approx(py_level.errors["u"]["L2"], rel=1e-6)
     log = next(tmp_path.rglob("level-3-64x64/output.log")).read_text()
@@ -251,7 +252,7 @@ def test_c_demo_reaches_order_two_through_the_runner(c_demo, tmp_path):
 
 def test_c_demo_failure_to_converge_is_recorded(c_demo):
     solver = ExternalSolver([str(c_demo), "{case}"], params={"max_sweeps": 20})
-    result = run_study("plate-poisson", solver, levels=2)
+    result = run_study("plate-poisson", solver, refinement=Refinement(levels=2))
     assert not any(lv.ok for lv in result.levels) and not result.passed
     assert "exited with code 3" in result.levels[0].message
     assert "no convergence within param.max_sweeps" in result.levels[0].message

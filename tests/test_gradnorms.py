@@ -7,6 +7,7 @@ from mmsverify import Solution, SolverError, run_study
 from mmsverify.problem.derive import derive
 from mmsverify.execute.gradnorms import gradient_errors, norm_rules
 from mmsverify.problem.record import problem_from_text
+from mmsverify.study.settings import Refinement
 
 TEXT = '[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "x**3 * y + sin(y)"\n[operator]\nkind = "diffusion"\nk = 2.0\n'
 
@@ -70,10 +71,10 @@ class _Sampled:
 
 
 def test_each_norm_is_judged_at_its_own_order():
-    r = run_study(problem_from_text(TEXT), _Sampled(), levels=3, base_cells=4)
+    r = run_study(problem_from_text(TEXT), _Sampled(), refinement=Refinement(levels=3, base_cells=4))
     assert {(v.norm, v.formal, v.status) for v in r.verdicts} == {("L2", 2, "confirmed"), ("H1semi", 1, "confirmed")}
     assert r.passed
-    wrong = run_study(problem_from_text(TEXT), _Sampled(wrong_gradient_order=True), levels=3, base_cells=4)
+    wrong = run_study(problem_from_text(TEXT), _Sampled(wrong_gradient_order=True), refinement=Refinement(levels=3, base_cells=4))
     assert not wrong.passed
     assert [v.norm for v in wrong.verdicts if not v.ok] == ["H1semi"]
 
@@ -84,7 +85,7 @@ def test_gradients_of_the_wrong_shape_fail_the_level():
             s = super().__call__(case)
             return Solution(values=s.values, points=s.points, gradients={"u": s.gradients["u"][:1]})
 
-    r = run_study(problem_from_text(TEXT), Short(), levels=2, base_cells=4)
+    r = run_study(problem_from_text(TEXT), Short(), refinement=Refinement(levels=2, base_cells=4))
     assert all(not lv.ok for lv in r.levels)
     assert "must hold 2 arrays" in r.levels[0].message
 
@@ -96,10 +97,10 @@ def test_orders_per_norm_in_the_problem_file_override_the_solver():
     class Plain(_Sampled):
         norm_orders = None
 
-    r = run_study(problem_from_text(text), Plain(), levels=3, base_cells=4)
+    r = run_study(problem_from_text(text), Plain(), refinement=Refinement(levels=3, base_cells=4))
     assert {(v.norm, v.formal) for v in r.verdicts} == {("L2", 2), ("H1semi", 1)} and r.passed, str(r)
 
     class Claims(_Sampled):
         norm_orders = {"H1semi": 2}
 
-    assert run_study(problem_from_text(text), Claims(), levels=3, base_cells=4).passed
+    assert run_study(problem_from_text(text), Claims(), refinement=Refinement(levels=3, base_cells=4)).passed

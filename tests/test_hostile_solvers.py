@@ -24,6 +24,7 @@ from mmsverify.execute.external import ExternalSolver
 from mmsverify.execute.grids import Grid
 from mmsverify.execute.runner import run_levels
 from solvers_demo.fd.poisson import solve as fd_solve
+from mmsverify.study.settings import Refinement
 
 PROBLEM = "plate-poisson"  # 2-D Poisson on the unit square (mmsverify/problem/bundled/plate-poisson.toml)
 PY = sys.executable
@@ -159,7 +160,7 @@ def test_every_python_solver_fault_is_recorded_against_its_level(workers):
 
 def test_a_study_with_faulty_levels_goes_on_and_judges_the_rest():
     # levels 1 and 4 misbehave in ways that used to end the whole process (sys.exit, an unprintable error)
-    result = run_study(PROBLEM, Faulty({1: "exit", 4: "unprintable"}), levels=5, base_cells=4)
+    result = run_study(PROBLEM, Faulty({1: "exit", 4: "unprintable"}), refinement=Refinement(levels=5, base_cells=4))
     assert [lv.status for lv in result.levels] == ["ok", "failed", "ok", "ok", "failed"]
     # the orders of u hold on levels 0, 2, 3 (the quantities, three coarse levels from 4x4 cells, cannot
     # decide); the failed levels count against the study
@@ -173,7 +174,7 @@ def test_ctrl_c_still_stops_the_study():
     def interrupted(case):
         raise KeyboardInterrupt
     with pytest.raises(KeyboardInterrupt):
-        run_study(PROBLEM, interrupted, levels=2)
+        run_study(PROBLEM, interrupted, refinement=Refinement(levels=2))
 
 
 # -- external programs ----------------------------------------------------------------------------
@@ -365,7 +366,7 @@ def test_the_study_folder_holds_every_file_even_for_hostile_problem_names(tmp_pa
     (tmp_path / "study").mkdir()
     solver = _external(tmp_path, {0: "ok", 1: "ok"}, "csv", workdir=str(tmp_path / "study"))
     before = set(tmp_path.rglob("*"))
-    result = run_study(problem, solver, levels=2, base_cells=4)
+    result = run_study(problem, solver, refinement=Refinement(levels=2, base_cells=4))
     assert all(lv.ok for lv in result.levels), [lv.message for lv in result.levels]
     created = set(tmp_path.rglob("*")) - before
     assert created and all((tmp_path / "study") in p.parents for p in created), sorted(map(str, created))

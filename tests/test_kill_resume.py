@@ -23,6 +23,7 @@ import pytest
 
 from mmsverify import run_study
 from mmsverify.outputs.studyfile import read_json
+from mmsverify.study.settings import Refinement
 
 REPO = Path(__file__).resolve().parent.parent
 PROBLEM, LEVELS, BASE = "plate-poisson", 4, 4
@@ -110,7 +111,7 @@ def _scenario(tmp_path, seed, workers):
 @pytest.fixture(scope="module")
 def reference():
     """The same study, never interrupted (the slow solver only delays the bundled FD solver)."""
-    return run_study(PROBLEM, "poisson2d", levels=LEVELS, base_cells=BASE)
+    return run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=LEVELS, base_cells=BASE))
 
 
 @pytest.mark.parametrize("seed, workers", [(1, None), (2, None), (3, 2)])

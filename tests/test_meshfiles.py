@@ -11,6 +11,7 @@ meshio = pytest.importorskip("meshio")
 from mmsverify import load_problem, run_study  # noqa: E402
 from mmsverify.execute.external import ExternalSolver, read_solution  # noqa: E402
 from mmsverify.execute.meshfiles import cell_volumes  # noqa: E402
+from mmsverify.study.settings import Judging, Refinement
 
 PROGRAM = str(Path(__file__).parent / "data" / "vtu_program.py")
 
@@ -46,8 +47,8 @@ def test_a_broken_vtu_fails_its_level_with_the_reason(tmp_path):
 @pytest.mark.parametrize("mode", ["cell", "point"])
 def test_an_external_program_writing_vtu_is_verified_end_to_end(mode, tmp_path):
     solver = ExternalSolver([sys.executable, PROGRAM, "{case}", mode], fmt="vtu", workdir=str(tmp_path / mode))
-    r = run_study("plate-poisson", solver, levels=3, base_cells=6, formal_order=2)
+    r = run_study("plate-poisson", solver, refinement=Refinement(levels=3, base_cells=6), judging=Judging(formal_order=2))
     assert r.passed, str(r)
     wrong = ExternalSolver([sys.executable, PROGRAM, "{case}", mode, "first"], fmt="vtu",
                            workdir=str(tmp_path / (mode + "1")))
-    assert not run_study("plate-poisson", wrong, levels=3, base_cells=6, formal_order=2).passed
+    assert not run_study("plate-poisson", wrong, refinement=Refinement(levels=3, base_cells=6), judging=Judging(formal_order=2)).passed

@@ -9,6 +9,7 @@ from mmsverify.problem.origin import problem_of_record
 from mmsverify.errors import ProblemError
 from mmsverify.problem.record import PROBLEM_DIR, load_problem
 from mmsverify.render.pointwise import finest_error
+from mmsverify.study.settings import Refinement
 
 _TEMPLATE = "{source} | {name} | {hash} | {recorded}"
 
@@ -58,7 +59,7 @@ def test_empty_recorded_hash_checks_nothing(tmp_path):
 
 def test_pointwise_refuses_a_problem_file_edited_after_the_study(tmp_path):
     path = _copy(tmp_path)
-    result = run_study(path, "poisson2d", levels=2)
+    result = run_study(path, "poisson2d", refinement=Refinement(levels=2))
     path.write_text(path.read_text().replace("a = 0.7", "a = 0.75"))
     with pytest.raises(ProblemError, match=r"differs from the one the study of plate\S* ran on .*"
                                            r"pass the problem file the study used"):

@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 
 from mmsverify import Solution, problem_from_text, run_study
+from mmsverify.study.settings import Refinement
 
 STEADY = problem_from_text('name = "bar"\n[domain]\nx = [0, 1]\n[fields]\nu = "sin(2*x) + x"\n'
                            '[operator]\nkind = "poisson"\n[order]\nspace = 2\n')
@@ -37,7 +38,7 @@ def test_an_honest_solver_passes():
     def solve(case):
         u, x, w = _honest(case)
         return Solution({"u": u}, (x,), w)
-    assert run_study(STEADY, solve, levels=4).passed
+    assert run_study(STEADY, solve, refinement=Refinement(levels=4)).passed
 
 
 def test_points_that_stay_those_of_the_coarsest_level_fail_the_level():
@@ -45,7 +46,7 @@ def test_points_that_stay_those_of_the_coarsest_level_fail_the_level():
     def solve(case):
         x = np.linspace(0, 1, 9)
         return Solution({"u": _second_order(case, x, case.grid.h)}, (x,), np.full(9, 1 / 9))
-    r = run_study(STEADY, solve, levels=4)
+    r = run_study(STEADY, solve, refinement=Refinement(levels=4))
     assert not r.passed
     assert [lv.level for lv in r.failed_levels] == [1, 2, 3]
     assert "the same 9 points as level 0" in r.failed_levels[0].message
@@ -61,7 +62,7 @@ def test_a_level_that_returns_the_previous_solution_fails():
         u, x, w = _honest(case)
         stored[k] = Solution({"u": u}, (x,), w)
         return stored[k]
-    r = run_study(STEADY, solve, levels=5)
+    r = run_study(STEADY, solve, refinement=Refinement(levels=5))
     assert not r.passed
     (bad,) = r.failed_levels
     assert bad.level == 2 and "level 1" in bad.message and "previous level's solution" in bad.message
@@ -74,7 +75,7 @@ def test_a_point_count_that_grows_unlike_the_grid_is_told():
         x = np.linspace(0, 1, n + 1)
         u = case.mms.exact("u", x) + 0.3 / n * (1 + x)
         return Solution({"u": u}, (x,), np.full(x.size, 1 / (n + 1)))
-    r = run_study(STEADY, solve, levels=4)
+    r = run_study(STEADY, solve, refinement=Refinement(levels=4))
     assert any("h taken from the grid may be wrong" in n and "level 1" in n for n in r.notes), r.notes
 
 
@@ -83,7 +84,7 @@ def test_points_outside_the_domain_fail():
         g = case.grid
         x = np.linspace(-g.h, 1 + g.h, g.cells[0] + 3)   # with a ghost node at each end
         return Solution({"u": _second_order(case, x, g.h)}, (x,), np.full(x.size, g.h))
-    r = run_study(STEADY, solve, levels=3)
+    r = run_study(STEADY, solve, refinement=Refinement(levels=3))
     assert not r.passed and len(r.failed_levels) == 3
     assert "outside the domain x = [0, 1]" in r.failed_levels[0].message
 
@@ -93,7 +94,7 @@ def test_weights_that_are_not_volumes_fail(scale):
     def solve(case):
         u, x, w = _honest(case)
         return Solution({"u": u}, (x,), w * scale)
-    r = run_study(STEADY, solve, levels=3)
+    r = run_study(STEADY, solve, refinement=Refinement(levels=3))
     assert not r.passed and len(r.failed_levels) == 3
     assert "the weights add up to" in r.failed_levels[0].message
     assert "domain's length is 1" in r.failed_levels[0].message
@@ -103,14 +104,14 @@ def test_interior_points_only_are_fine():
     def solve(case):
         u, x, w = _honest(case)
         return Solution({"u": u[1:-1]}, (x[1:-1],), w[1:-1])
-    assert run_study(STEADY, solve, levels=3).passed
+    assert run_study(STEADY, solve, refinement=Refinement(levels=3)).passed
 
 
 def test_a_single_point_fails():
     def solve(case):
         x = np.array([0.5])
         return Solution({"u": _second_order(case, x, case.grid.h)}, (x,), np.array([1.0]))
-    r = run_study(STEADY, solve, levels=3)
+    r = run_study(STEADY, solve, refinement=Refinement(levels=3))
     assert not r.passed and len(r.failed_levels) == 3
     assert "a single point" in r.failed_levels[0].message
 
@@ -122,6 +123,6 @@ def test_a_time_outside_the_interval_fails(when):
         x = g.nodes(0)
         t = when if np.isfinite(when) else g.t_end
         return Solution({"u": _second_order(case, x, g.h, t=t)}, (x,), np.full(x.size, 1 / x.size), time=when)
-    r = run_study(TRANSIENT, solve, levels=3)
+    r = run_study(TRANSIENT, solve, refinement=Refinement(levels=3))
     assert not r.passed and len(r.failed_levels) == 3
     assert "outside the time interval t = [0, 1]" in r.failed_levels[0].message

@@ -9,6 +9,7 @@ from mmsverify.cli import build_parser
 from mmsverify.execute.grids import Grid
 from mmsverify.cli.progress import NORMAL, QUIET, VERBOSE, LevelProgress, interactive, verbosity
 from mmsverify.study.refinement import LevelResult
+from mmsverify.study.settings import Refinement, Running
 
 
 class _Tty(io.StringIO):
@@ -65,7 +66,7 @@ def test_verbose_prints_every_level_anywhere(monkeypatch):
     def hook(lv):
         seen.append(lv.level)
         p(lv)
-    run_study("plate-poisson", "poisson2d", levels=3, progress=hook)
+    run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=3), running=Running(progress=hook))
     assert seen == [0, 1, 2]
     lines = out.getvalue().splitlines()
     assert [ln.split(" done")[0] for ln in lines] == ["plate: 1 level run; level 0", "plate: 2 levels run; level 1",

@@ -7,6 +7,7 @@ import pytest
 
 from mmsverify import ProblemError, Solution, derive, problem_from_text, run_study
 from solvers_demo.fd.poisson import solve
+from mmsverify.study.settings import Refinement
 
 
 def with_quantities(case):
@@ -25,7 +26,7 @@ def with_quantities(case):
 
 def test_quantities_get_their_own_order_and_verdict():
     # common practice: trapezoid integration is second order; so is a flux from an O(h**2) solution
-    r = run_study("plate-poisson", with_quantities, levels=6)
+    r = run_study("plate-poisson", with_quantities, refinement=Refinement(levels=6))
     assert r.quantities == ("deflection", "edge_slope")
     p = r.quantity_orders("deflection")
     assert np.all(np.abs(p[1:] - 2) < 0.05), p
@@ -78,7 +79,7 @@ def test_undeclared_quantity_fails_the_level_with_a_reason():
     def solver(case):
         sol = solve(case)
         return Solution(sol.values, sol.points, sol.weights, quantities={"drag": 1.0})
-    r = run_study("plate-poisson", solver, levels=2)
+    r = run_study("plate-poisson", solver, refinement=Refinement(levels=2))
     assert all("declare them under [quantities]" in lv.message for lv in r.levels)
 
 
@@ -89,7 +90,7 @@ _NOT_REPORTED = ("declared in the problem file but not reported by the solver: d
 def test_declared_quantities_the_solver_never_reports_are_one_note_not_a_failure(tmp_path):
     # common practice: a functional left out is a gap in the evidence, not a wrong order
     from mmsverify.outputs.studyfile import read_json, study_to_data, write_json
-    r = run_study("plate-poisson", _fields_only, levels=3)
+    r = run_study("plate-poisson", _fields_only, refinement=Refinement(levels=3))
     assert r.passed and r.quantities == ()
     assert r.missing_quantities == {"deflection": (0, 1, 2), "edge_slope": (0, 1, 2)}
     lines = str(r).splitlines()
@@ -101,7 +102,7 @@ def test_declared_quantities_the_solver_never_reports_are_one_note_not_a_failure
 
 
 def test_quantities_reported_everywhere_give_no_note():
-    r = run_study("plate-poisson", with_quantities, levels=3)
+    r = run_study("plate-poisson", with_quantities, refinement=Refinement(levels=3))
     assert r.missing_quantities == {} and r.notes == ()
     assert "note:" not in str(r) and r.to_dict()["notes"] == []
 
@@ -113,7 +114,7 @@ def test_a_quantity_missing_on_some_levels_names_them():
         if case.grid.level in (1, 3):
             del q["edge_slope"]
         return Solution(sol.values, sol.points, sol.weights, quantities=q)
-    r = run_study("plate-poisson", patchy, levels=4)
+    r = run_study("plate-poisson", patchy, refinement=Refinement(levels=4))
     assert r.missing_quantities == {"edge_slope": (1, 3)}
     note = ("the solver reported quantity edge_slope on levels 0, 2 but not on levels 1, 3; its order uses only "
             "the levels that reported it")
@@ -129,7 +130,7 @@ def test_a_failed_level_is_not_a_missing_quantity():
         if case.grid.level == 2:
             raise RuntimeError("out of memory")
         return with_quantities(case)
-    r = run_study("plate-poisson", fails_fine, levels=3)
+    r = run_study("plate-poisson", fails_fine, refinement=Refinement(levels=3))
     assert r.missing_quantities == {} and r.notes == ()
 
 

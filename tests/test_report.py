@@ -24,18 +24,19 @@ from mmsverify.render.plots import (NORM_STYLE, OKABE_ITO, cost_figure, error_fi
                                     figure_bytes, order_figure, study_figures)
 from mmsverify.render.pointwise import finest_error, pointwise_error
 from solvers_demo.fd import poisson
+from mmsverify.study.settings import Refinement
 
 DOCS = Path(__file__).resolve().parents[1] / "docs"
 
 
 @pytest.fixture(scope="module")
 def good():
-    return run_study("plate-poisson", "poisson2d", levels=4)
+    return run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=4))
 
 
 @pytest.fixture(scope="module")
 def bad():
-    return run_study("plate-poisson", "poisson2d-neumann1", levels=3)
+    return run_study("plate-poisson", "poisson2d-neumann1", refinement=Refinement(levels=3))
 
 
 def _crash_on_fine(case):
@@ -49,7 +50,7 @@ def _crash_on_fine(case):
 
 @pytest.fixture(scope="module")
 def partial():
-    return run_study("plate-poisson", _crash_on_fine, levels=3)
+    return run_study("plate-poisson", _crash_on_fine, refinement=Refinement(levels=3))
 
 
 def _lines(fig):
@@ -297,7 +298,7 @@ def test_report_command_runs_and_redraws_from_json(tmp_path, capsys):
 
 def test_notes_reach_every_format_and_survive_json(good, tmp_path):
     # plate-poisson declares two quantities that a fields-only solver does not report: one note, in every format
-    r = _with_order_conflict(run_study("plate-poisson", _crash_on_fine, levels=2))
+    r = _with_order_conflict(run_study("plate-poisson", _crash_on_fine, refinement=Refinement(levels=2)))
     assert len(r.notes) == 2
     back = read_json(write_json(r, tmp_path / "n.json"))
     assert back.order_conflicts == r.order_conflicts and back.notes == r.notes
@@ -314,7 +315,7 @@ def test_notes_reach_every_format_and_survive_json(good, tmp_path):
 
 
 def test_reports_without_notes_have_no_notes_section(tmp_path):
-    r = run_study("slab-heat", "fd-heat-euler", levels=2)
+    r = run_study("slab-heat", "fd-heat-euler", refinement=Refinement(levels=2))
     assert r.notes == ()
     assert "note:" not in format_study(r) and "Note:" not in markdown_text(r)
     assert 'id="notes"' not in html_text(r, figures=False) and study_to_data(r)["notes"] == []

@@ -7,6 +7,7 @@ from mmsverify import GridError, ProblemError, Solution, run_study
 from mmsverify.cli import main
 from mmsverify.problem.record import problem_from_text
 from mmsverify.execute.resolutions import listed_grids, parse_cells
+from mmsverify.study.settings import Refinement
 
 TEXT = ('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "sin(2*x) * cos(y)"\n[operator]\nkind = "poisson"\n'
         '[order]\nspace = 2\n')
@@ -69,7 +70,7 @@ class _OwnMesh:
 
 
 def test_the_reported_h_and_unknowns_are_what_the_table_shows():
-    r = run_study(problem_from_text(TEXT), _OwnMesh(), cells=[4, 6, 10])
+    r = run_study(problem_from_text(TEXT), _OwnMesh(), refinement=Refinement(cells=[4, 6, 10]))
     assert [lv.h for lv in r.levels] == pytest.approx([1 / 6, 1 / 9, 1 / 15])
     assert r.passed
     assert "6x6 cells, 81 unknowns" in str(r)
@@ -81,6 +82,6 @@ def test_a_wrong_unknown_count_fails_the_level():
             s = super().__call__(case)
             return Solution(values=s.values, points=s.points, unknowns=-3)
 
-    r = run_study(problem_from_text(TEXT), Bad(), cells=[4, 6])
+    r = run_study(problem_from_text(TEXT), Bad(), refinement=Refinement(cells=[4, 6]))
     assert not any(lv.ok for lv in r.levels)
     assert "unknowns must be a positive whole number" in r.levels[0].message

@@ -10,6 +10,7 @@ import pytest
 from mmsverify import Solution, SolverError, run_study
 from mmsverify.execute.runner import run_studies
 from solvers_demo.fd.poisson import solve as fd_solve
+from mmsverify.study.settings import Refinement, Running
 
 PROBLEM = "plate-poisson"  # 2-D Poisson, second order; the bundled solver confirms it on 4 levels
 
@@ -49,8 +50,8 @@ def _errors(result):
 
 
 def test_process_pool_gives_the_serial_result():
-    serial = run_study(PROBLEM, "poisson2d", levels=4)
-    pooled = run_study(PROBLEM, "poisson2d", levels=4, workers=2)
+    serial = run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=4))
+    pooled = run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=4), running=Running(workers=2))
     assert serial.passed and pooled.passed
     assert _errors(pooled) == _errors(serial)
     assert [lv.level for lv in pooled.levels] == [0, 1, 2, 3]
@@ -59,14 +60,14 @@ def test_process_pool_gives_the_serial_result():
 def test_any_executor_and_progress_callback():
     seen = []
     with ThreadPoolExecutor(2) as pool:
-        result = run_study(PROBLEM, "poisson2d", levels=4, executor=pool, progress=seen.append)
+        result = run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=4), running=Running(executor=pool, progress=seen.append))
     assert result.passed
     assert sorted(lv.level for lv in seen) == [0, 1, 2, 3]
 
 
 def test_crash_nan_and_wrong_shape_are_recorded_per_level():
     solver = Faulty(level1="raise", level2="nan", level4="shape")
-    result = run_study(PROBLEM, solver, levels=5, base_cells=4, workers=2)
+    result = run_study(PROBLEM, solver, refinement=Refinement(levels=5, base_cells=4), running=Running(workers=2))
     status = [lv.status for lv in result.levels]
     assert status == ["ok", "failed", "failed", "ok", "failed"]
     assert "RuntimeError: matrix assembly failed" in result.levels[1].message
@@ -80,33 +81,33 @@ def test_crash_nan_and_wrong_shape_are_recorded_per_level():
 @pytest.mark.parametrize("workers", [None, 2])
 def test_a_level_past_the_time_limit_is_stopped_and_recorded(workers):
     start = time.monotonic()
-    result = run_study(PROBLEM, Faulty(level1="sleep"), levels=3, timeout=2, workers=workers)
+    result = run_study(PROBLEM, Faulty(level1="sleep"), refinement=Refinement(levels=3), running=Running(timeout=2, workers=workers))
     assert time.monotonic() - start < 15
     assert [lv.status for lv in result.levels] == ["ok", "failed", "ok"]
     assert "no result within 2 s" in result.levels[1].message
 
 
 def test_a_dead_worker_fails_only_its_level():
-    result = run_study(PROBLEM, Faulty(level1="exit"), levels=3, workers=2)
+    result = run_study(PROBLEM, Faulty(level1="exit"), refinement=Refinement(levels=3), running=Running(workers=2))
     assert [lv.status for lv in result.levels] == ["ok", "failed", "ok"]
     assert "worker process died" in result.levels[1].message
 
 
 def test_unpicklable_solver_with_workers_is_a_clear_error():
     with pytest.raises(SolverError, match="cannot be sent to worker processes"):
-        run_study(PROBLEM, lambda case: fd_solve(case), levels=2, workers=2)
+        run_study(PROBLEM, lambda case: fd_solve(case), refinement=Refinement(levels=2), running=Running(workers=2))
 
 
 def test_bad_limits_are_refused():
     with pytest.raises(SolverError, match="positive"):
-        run_study(PROBLEM, "poisson2d", levels=2, timeout=0)
+        run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=2), running=Running(timeout=0))
     with pytest.raises(SolverError, match="workers"):
-        run_study(PROBLEM, "poisson2d", levels=2, workers=0)
+        run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=2), running=Running(workers=0))
 
 
 def test_several_studies_in_parallel():
-    jobs = [{"problem": PROBLEM, "solver": "poisson2d", "levels": 4},
-            {"problem": PROBLEM, "solver": "poisson2d-neumann1", "levels": 3}]
+    jobs = [{"problem": PROBLEM, "solver": "poisson2d", "refinement": 4},
+            {"problem": PROBLEM, "solver": "poisson2d-neumann1", "refinement": 3}]
     good, bad = run_studies(jobs, workers=2)
     assert good.solver == "poisson2d" and bad.solver == "poisson2d-neumann1"
     assert good.passed and not bad.passed  # the seeded first-order Neumann mistake is caught
@@ -118,8 +119,8 @@ def test_dask_local_cluster():
     distributed = pytest.importorskip("distributed", reason="Dask is optional: pip install 'mmsverify[dask]'")
     with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
                                   dashboard_address=None) as cluster, distributed.Client(cluster) as client:
-        result = run_study(PROBLEM, "poisson2d", levels=4, executor=client)
-    serial = run_study(PROBLEM, "poisson2d", levels=4)
+        result = run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=4), running=Running(executor=client))
+    serial = run_study(PROBLEM, "poisson2d", refinement=Refinement(levels=4))
     assert _errors(result) == _errors(serial)
 
 
@@ -154,7 +155,7 @@ def test_process_pool_workers_share_the_cores(monkeypatch):
 def test_a_solver_that_swallows_the_time_out_is_stopped_again():
     # common practice: a broad `except Exception` in user code must not let a level run unbounded
     start = time.monotonic()
-    result = run_study(PROBLEM, Faulty(level1="swallow"), levels=2, timeout=1)
+    result = run_study(PROBLEM, Faulty(level1="swallow"), refinement=Refinement(levels=2), running=Running(timeout=1))
     assert time.monotonic() - start < 10
     (failed,) = result.failed_levels
     assert failed.level == 1 and "no result within 1 s" in failed.message

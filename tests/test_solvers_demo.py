@@ -25,10 +25,11 @@ from solvers_demo.fv.advection import FVAdvection
 from solvers_demo.fv.diffusion import FVDiffusion
 from solvers_demo.ns.staggered import StaggeredNS
 from solvers_demo.studies import verify
+from mmsverify.study.settings import Refinement
 
 
-def _study(problem, solver, levels=4, **kw):
-    return verify(solver, problem, levels=levels, **kw)
+def _study(problem, solver, levels=4, **plan):
+    return verify(solver, problem, Refinement(levels=levels, **plan))
 
 
 def _assert_confirmed(result):
@@ -58,8 +59,8 @@ def test_fd_neumann_treatments(problem, base):
 
 
 def test_readme_demo_pair_keeps_its_behaviour():
-    good = run_study("plate-poisson", solve, levels=4)
-    bad = run_study("plate-poisson", solve_first_order_neumann, levels=4)
+    good = run_study("plate-poisson", solve, refinement=Refinement(levels=4))
+    bad = run_study("plate-poisson", solve_first_order_neumann, refinement=Refinement(levels=4))
     assert good.passed and not bad.passed
     assert solve.formal_order == 2 and solve_first_order_neumann.formal_order == 2
     # the one-sided Neumann row lowers every norm to first order (LeVeque 2007, section 2.12)

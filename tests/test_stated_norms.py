@@ -10,6 +10,7 @@ from mmsverify.execute.norms import NORMS
 from mmsverify.outputs.studyfile import read_json, study_from_data, study_to_data, write_json
 from mmsverify.study.refinement import judged_norms
 from solvers_demo.ns.staggered import StaggeredNS
+from mmsverify.study.settings import Judging, Refinement
 
 LINE = "p judged in L1, L2 as the solver states (Linf measured, not judged)"
 
@@ -17,7 +18,7 @@ LINE = "p judged in L1, L2 as the solver states (Linf measured, not judged)"
 @pytest.fixture(scope="module")
 def cavity():
     # cavity-flow plans 8x8 to 64x64 cells over four levels: about half a second
-    return run_study("cavity-flow", "ns-staggered", levels=4)
+    return run_study("cavity-flow", "ns-staggered", refinement=Refinement(levels=4))
 
 
 def _judged(result):
@@ -63,7 +64,7 @@ def test_other_formats_carry_the_line(cavity):
 
 def test_the_callers_norms_win():
     # common practice: an explicit choice of the caller overrides what the solver states
-    r = run_study("cavity-flow", "ns-staggered", levels=4, norms=("L1", "L2", "Linf"))
+    r = run_study("cavity-flow", "ns-staggered", refinement=Refinement(levels=4), judging=Judging(norms=("L1", "L2", "Linf")))
     assert not r.passed and r.norms_source == "caller"
     off = [(v.field, v.norm, v.status) for v in r.verdicts if not v.ok]
     assert off == [("p", "Linf", "below")]
@@ -71,13 +72,13 @@ def test_the_callers_norms_win():
 
 
 def test_a_caller_restriction_is_told_too():
-    r = run_study("plate-poisson", "poisson2d", levels=2, norms="L2")   # one name is one norm
+    r = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2), judging=Judging(norms="L2"))   # one name is one norm
     assert r.norms_source == "caller" and r.judged_norms == {"u": ("L2",)}
     assert r.notes == ("u judged in L2 as the caller chose (L1, Linf measured, not judged)",)
 
 
 def test_solvers_that_state_nothing_are_judged_in_every_norm():
-    r = run_study("plate-poisson", "poisson2d", levels=2)
+    r = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2))
     assert r.norms_source == "default" and r.judged_norms == {"u": NORMS}
     assert {v.norm for v in r.verdicts if v.field == "u"} == set(NORMS)
     assert judged_norms("cavity-flow", lambda case: None) == ({"u": NORMS, "v": NORMS, "p": NORMS}, "default")
@@ -106,7 +107,7 @@ def test_statement_is_read_from_the_configured_solver():
             from solvers_demo.fd.poisson import solve
             return solve(case)
 
-    r = run_study("plate-poisson", Configurable(), levels=2, options={"norms": ("L2",)})
+    r = run_study("plate-poisson", Configurable(), options={"norms": ("L2",)}, refinement=Refinement(levels=2))
     assert r.norms_source == "solver" and _judged(r)["u"] == ["L2"]
 
 
@@ -114,27 +115,27 @@ def test_unknown_norm_is_refused_naming_solver_and_fix():
     solver = _poisson(judged_norms={"u": ("L1", "H1")})
     with pytest.raises(SolverError, match=r"judged_norms for field u names unknown norm\(s\) 'H1'; use some of "
                                           r"L1, L2, Linf") as info:
-        run_study("plate-poisson", solver, levels=2)
+        run_study("plate-poisson", solver, refinement=Refinement(levels=2))
     assert "test_stated_norms" in str(info.value)      # the solver's name
     with pytest.raises(SolverError, match="names no norm"):
-        run_study("plate-poisson", _poisson(judged_norms={"u": ()}), levels=2)
+        run_study("plate-poisson", _poisson(judged_norms={"u": ()}), refinement=Refinement(levels=2))
 
 
 def test_fields_the_problem_lacks_are_left_out_and_the_solver_explains_itself():
-    r = run_study("plate-poisson", _poisson(judged_norms={"P": ("L1",)}), levels=2)
+    r = run_study("plate-poisson", _poisson(judged_norms={"P": ("L1",)}), refinement=Refinement(levels=2))
     assert r.norms_source == "default" and _judged(r)["u"] == ["L1", "L2", "Linf"]   # nothing of it applies
-    wrong = run_study("plate-poisson", "ns-staggered", levels=2)   # a Navier-Stokes solver stating p
+    wrong = run_study("plate-poisson", "ns-staggered", refinement=Refinement(levels=2))   # a Navier-Stokes solver stating p
     assert not any(lv.ok for lv in wrong.levels)
     assert "pick a solver for that operator" in wrong.levels[0].message
     with pytest.raises(SolverError, match="must be a dict of field name to norms, got list"):
-        run_study("plate-poisson", _poisson(judged_norms=["L1"]), levels=2)
+        run_study("plate-poisson", _poisson(judged_norms=["L1"]), refinement=Refinement(levels=2))
 
 
 def test_the_callers_norms_do_not_need_a_valid_statement():
-    r = run_study("plate-poisson", _poisson(judged_norms={"P": ("L1",)}), levels=2, norms=("L2",))
+    r = run_study("plate-poisson", _poisson(judged_norms={"P": ("L1",)}), refinement=Refinement(levels=2), judging=Judging(norms=("L2",)))
     assert r.norms_source == "caller" and [v.norm for v in r.verdicts if v.field == "u"] == ["L2"]
     with pytest.raises(AnalysisError, match="among L1, L2, Linf"):
-        run_study("plate-poisson", "poisson2d", levels=2, norms=("L2", "H1"))
+        run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2), judging=Judging(norms=("L2", "H1")))
 
 
 def test_json_round_trip_keeps_the_judged_norms(cavity, tmp_path):

@@ -5,11 +5,12 @@ import pytest
 
 from mmsverify import Grid, GridError, Solution, SolverError, refinement, run_study
 from mmsverify.execute.grids import check_refinement
+from mmsverify.study.settings import Judging, Refinement
 
 
 @pytest.fixture(scope="module")
 def good():
-    return run_study("plate-poisson", "poisson2d", levels=5)
+    return run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=5))
 
 
 def test_five_point_poisson_is_second_order(good):
@@ -32,7 +33,7 @@ def test_error_constant_matches_truncation_error_scaling(good):
 
 def test_first_order_neumann_variant_is_flagged():
     # common practice: a first-order one-sided Neumann boundary lowers the global order to 1
-    bad = run_study("plate-poisson", "poisson2d-neumann1", levels=4)
+    bad = run_study("plate-poisson", "poisson2d-neumann1", refinement=Refinement(levels=4))
     assert not bad.passed
     for v in bad.verdicts:
         assert v.status == "below"
@@ -72,7 +73,7 @@ def _one_level_fault(fault):
     ("type", "returned dict"),
 ])
 def test_a_failing_level_is_recorded_and_the_study_goes_on(fault, words):
-    r = run_study("plate-poisson", _one_level_fault(fault), levels=4)
+    r = run_study("plate-poisson", _one_level_fault(fault), refinement=Refinement(levels=4))
     failed = r.failed_levels
     assert [lv.level for lv in failed] == [1]
     assert words in failed[0].message
@@ -97,11 +98,11 @@ def test_grid_sequence_that_is_not_a_refinement_is_refused():
 def test_grid_dimension_must_match_problem():
     grids = refinement((0, 0, 0), (1, 1, 1), 2, 2)
     with pytest.raises(GridError, match="3-D but problem plate-poisson is 2-D"):
-        run_study("plate-poisson", "poisson2d", grids=grids)
+        run_study("plate-poisson", "poisson2d", refinement=Refinement(grids=grids))
 
 
 def test_solver_for_another_operator_is_recorded_not_crashing():
-    r = run_study("cavity-flow", "poisson2d", levels=2)
+    r = run_study("cavity-flow", "poisson2d", refinement=Refinement(levels=2))
     assert all("pick a solver for that operator" in lv.message and f"level {lv.level}" in lv.message for lv in r.levels)
     assert not r.passed and r.verdicts == ()
 
@@ -111,7 +112,7 @@ def test_exact_solution_gives_inconclusive_not_a_pass():
     # so a quadratic manufactured solution shows no order at all.
     from mmsverify import problem_from_text
     p = problem_from_text('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "1 + x**2 + x*y"')
-    r = run_study(p, "poisson2d", levels=3)
+    r = run_study(p, "poisson2d", refinement=Refinement(levels=3))
     assert {v.status for v in r.verdicts} == {"inconclusive"}
     assert "round-off" in r.verdicts[0].reason
 
@@ -131,12 +132,12 @@ def test_a_solver_is_judged_against_the_order_it_states():
     def first_order_claim(case):
         return solve(case)
     first_order_claim.formal_order = 1
-    r = run_study("plate-poisson", first_order_claim, levels=3)
+    r = run_study("plate-poisson", first_order_claim, refinement=Refinement(levels=3))
     assert r.formal_order == 1 and r.order_source == "solver"
     assert {v.status for v in r.verdicts if v.field == "u"} == {"above"}
     assert {v.status for v in r.verdicts} <= {"above", "inconclusive"}
     assert "stated by the solver" in str(r)
-    r = run_study("plate-poisson", first_order_claim, levels=4, formal_order=2)
+    r = run_study("plate-poisson", first_order_claim, refinement=Refinement(levels=4), judging=Judging(formal_order=2))
     assert r.passed and r.order_source == "caller"
 
 
@@ -146,17 +147,17 @@ def test_solver_options_and_info_reach_the_level_results():
     def solver(case):
         sol = solve(case)
         return Solution(sol.values, sol.points, sol.weights, info={"grid": case.options.get("grid"), "sweeps": 3})
-    r = run_study("plate-poisson", solver, levels=2, options={"grid": "stretched"})
+    r = run_study("plate-poisson", solver, options={"grid": "stretched"}, refinement=Refinement(levels=2))
     assert r.levels[0].info == {"grid": "stretched", "sweeps": 3}
 
 
 def test_only_the_chosen_norms_are_judged():
     from mmsverify import AnalysisError
-    r = run_study("plate-poisson", "poisson2d-neumann1", levels=3, norms=("L2",))
+    r = run_study("plate-poisson", "poisson2d-neumann1", refinement=Refinement(levels=3), judging=Judging(norms=("L2",)))
     assert [v.norm for v in r.verdicts if v.field == "u"] == ["L2"] and "Linf" in r.levels[0].errors["u"]
     assert {v.norm for v in r.verdicts if v.field != "u"} == {"value"}    # quantities: one verdict each
     with pytest.raises(AnalysisError, match="among L1, L2, Linf"):
-        run_study("plate-poisson", "poisson2d", levels=2, norms=("H1",))
+        run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2), judging=Judging(norms=("H1",)))
 
 
 def _stating(space=None, time=None):
@@ -176,7 +177,7 @@ def test_a_stated_order_that_differs_from_the_file_is_noted():
     # common practice: a scheme is verified against its own design order; the file's differing
     # [order] (plate-poisson says space = 2) is named so the reader sees the swap
     import json
-    r = run_study("plate-poisson", _stating(space=1), levels=2)
+    r = run_study("plate-poisson", _stating(space=1), refinement=Refinement(levels=2))
     assert r.order_conflicts == ({"axis": "space", "solver": 1.0, "problem": 2.0, "used_for": "verdicts"},)
     line = "note: the solver states order 1; the problem file's [order] space = 2; judged against the solver's"
     assert [ln.strip() for ln in str(r).splitlines()].count(line) == 1
@@ -186,9 +187,9 @@ def test_a_stated_order_that_differs_from_the_file_is_noted():
 
 
 def test_agreeing_or_overridden_orders_give_no_order_note():
-    for r in (run_study("plate-poisson", _stating(space=2), levels=2),       # agrees with [order] space = 2
-              run_study("plate-poisson", "poisson2d", levels=2),             # bundled, states 2
-              run_study("plate-poisson", _stating(space=1), levels=2, formal_order=2)):  # the caller decides
+    for r in (run_study("plate-poisson", _stating(space=2), refinement=Refinement(levels=2)),       # agrees with [order] space = 2
+              run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2)),             # bundled, states 2
+              run_study("plate-poisson", _stating(space=1), refinement=Refinement(levels=2), judging=Judging(formal_order=2))):  # the caller decides
         assert r.order_conflicts == ()
         assert "[order]" not in str(r) and not any("[order]" in n for n in r.to_dict()["notes"])
 
@@ -197,17 +198,17 @@ def test_a_stated_time_order_is_noted_where_it_was_used():
     # Crank-Nicolson is second order in time (Crank & Nicolson 1947, Proc. Camb. Phil. Soc. 43:50);
     # slab-heat's [order] says time = 1. Combined refinement plans the steps with the stated order,
     # time refinement judges against it; backward Euler (first order) agrees with the file.
-    r = run_study("slab-heat", "fd-heat-cn", levels=2)
+    r = run_study("slab-heat", "fd-heat-cn", refinement=Refinement(levels=2))
     assert r.order_conflicts == ({"axis": "time", "solver": 2.0, "problem": 1.0, "used_for": "grids"},)
     assert "note: the solver states time order 2; the problem file's [order] time = 1; the time steps were " \
            "planned with the solver's" in str(r)
-    r = run_study("slab-heat", "fd-heat-cn", levels=2, mode="time", base_cells=256)
+    r = run_study("slab-heat", "fd-heat-cn", refinement=Refinement(levels=2, mode="time", base_cells=256))
     assert [c["used_for"] for c in r.order_conflicts] == ["verdicts"]
     assert r.notes == ("the solver states time order 2; the problem file's [order] time = 1; judged against "
                        "the solver's",)
     # given steps in space mode: the stated time order shaped nothing, so nothing to say
-    assert run_study("slab-heat", "fd-heat-cn", levels=2, mode="space", base_steps=64).order_conflicts == ()
-    r = run_study("slab-heat", "fd-heat-euler", levels=2, mode="time", base_cells=256)
+    assert run_study("slab-heat", "fd-heat-cn", refinement=Refinement(levels=2, mode="space", base_steps=64)).order_conflicts == ()
+    r = run_study("slab-heat", "fd-heat-euler", refinement=Refinement(levels=2, mode="time", base_cells=256))
     assert r.order_conflicts == () and r.notes == ()
 
 
@@ -216,7 +217,7 @@ def test_a_one_sided_study_does_not_guess_its_frozen_resolution(mode, option):
     # Crank-Nicolson (second order in time, Crank & Nicolson 1947) on slab-heat: with the cells frozen at the
     # count the plan used to guess (256), the spatial error stalled the time order at 0.38 (a false "below")
     with pytest.raises(GridError, match=f"give the frozen .*\\({option}\\).*mmsverify split"):
-        run_study("slab-heat", "fd-heat-cn", levels=3, mode=mode)
+        run_study("slab-heat", "fd-heat-cn", refinement=Refinement(levels=3, mode=mode))
 
 
 def test_no_order_note_when_the_file_states_no_order():
@@ -229,7 +230,7 @@ def test_no_order_note_when_the_file_states_no_order():
     body = body[:start] + body[body.index("[study]"):]
     p = problem_from_text(body, source="no-order.toml")
     assert p.order_given == () and p.space_order == 2
-    r = run_study(p, _stating(space=1), levels=2)
+    r = run_study(p, _stating(space=1), refinement=Refinement(levels=2))
     assert r.order_conflicts == () and r.notes[:1] != ("the solver states order 1",)
     assert "[order]" not in str(r)
     assert load_problem("plate-poisson").order_given == ("space",)
@@ -237,20 +238,20 @@ def test_no_order_note_when_the_file_states_no_order():
 
 def test_order_source_names_where_the_judged_order_came_from():
     # a solver stating only its time order: the judged space order is the file's
-    r = run_study("plate-poisson", _stating(time=1), levels=2)
+    r = run_study("plate-poisson", _stating(time=1), refinement=Refinement(levels=2))
     assert r.order_source == "problem" and "stated by the solver" not in str(r)
-    assert run_study("plate-poisson", _stating(space=2), levels=2).order_source == "solver"
+    assert run_study("plate-poisson", _stating(space=2), refinement=Refinement(levels=2)).order_source == "solver"
 
 
 def test_stated_orders_follow_the_options_that_configure_the_solver():
     # the one-sided Neumann difference is first order (LeVeque 2007, section 2.12, from memory);
     # chosen through options, the study is judged against order 1, not the default scheme's 2
     from solvers_demo.fd.diffusion import FDDiffusion
-    r = run_study("plate-poisson", FDDiffusion(), levels=3, options={"neumann": "one-sided"})
+    r = run_study("plate-poisson", FDDiffusion(), options={"neumann": "one-sided"}, refinement=Refinement(levels=3))
     assert r.formal_order == 1 and r.order_source == "solver"
     assert [c["solver"] for c in r.order_conflicts] == [1.0]
     with pytest.raises(SolverError, match="neumann='ghost'"):
-        run_study("plate-poisson", FDDiffusion(), levels=2, options={"neumann": "ghost"})
+        run_study("plate-poisson", FDDiffusion(), options={"neumann": "ghost"}, refinement=Refinement(levels=2))
 
 
 def test_the_solvers_arrays_are_left_as_returned():
@@ -267,7 +268,7 @@ def test_the_solvers_arrays_are_left_as_returned():
         kept.append((X, X.copy(), u, u.copy()))
         return Solution(values={"u": u}, points=(X, Y))
 
-    result = run_study(problem, solve, levels=3, base_cells=4)
+    result = run_study(problem, solve, refinement=Refinement(levels=3, base_cells=4))
     for X, X0, u, u0 in kept:
         assert np.array_equal(X, X0) and np.array_equal(u, u0)
     assert result.passed
@@ -289,5 +290,5 @@ def test_axis_points_and_a_coordinate_field_give_no_warning():
 
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        result = run_study(problem, solve, levels=3, base_cells=4)
+        result = run_study(problem, solve, refinement=Refinement(levels=3, base_cells=4))
     assert result.passed and all(lv.ok for lv in result.levels)

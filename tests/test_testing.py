@@ -18,7 +18,7 @@ README = Path(__file__).resolve().parents[1] / "README.md"
 def test_demo_solver_is_second_order(order_check, request):
     # the project's own demo solver, checked the way a user checks theirs
     # (second order: 5-point stencil, ghost-node Neumann; solvers_demo/fd/poisson.py)
-    result = order_check("plate-poisson", "poisson2d", order=2, levels=4)
+    result = order_check("plate-poisson", "poisson2d", order=2, refinement=4)
     assert result.passed
     recorded = dict(request.node.user_properties)["mmsverify"]
     assert recorded.startswith("pass: plate-poisson with poisson2d")
@@ -26,7 +26,7 @@ def test_demo_solver_is_second_order(order_check, request):
 
 def test_seeded_mistake_fails_with_the_table():
     with pytest.raises(OrderCheckError) as info:
-        assert_order("plate-poisson", "poisson2d-neumann1", order=2, levels=3)
+        assert_order("plate-poisson", "poisson2d-neumann1", order=2, refinement=3)
     text = str(info.value)
     assert text.startswith("order check failed: plate-poisson solved by poisson2d-neumann1, formal order 2")
     assert "u L2: BELOW - observed " in text and "converging to another order" in text
@@ -43,20 +43,20 @@ def _crash_on_fine(case):
 
 def test_failed_levels_fail_unless_allowed():
     with pytest.raises(AssertionError, match=r"level 2 \(32x32 cells\) failed: .*MemoryError"):
-        assert_order("plate-poisson", _crash_on_fine, levels=3)
-    result = assert_order("plate-poisson", _crash_on_fine, levels=3, allow_failed_levels=True)
+        assert_order("plate-poisson", _crash_on_fine, refinement=3)
+    result = assert_order("plate-poisson", _crash_on_fine, refinement=3, allow_failed_levels=True)
     assert [lv.ok for lv in result.levels] == [True, True, False]
 
 
 def test_unknown_fields_and_norms_are_named():
     with pytest.raises(AssertionError, match=r"no verdict for fields \['v'\]"):
-        assert_order("plate-poisson", "poisson2d", fields="v", levels=2)
+        assert_order("plate-poisson", "poisson2d", fields="v", refinement=2)
     with pytest.raises(ValueError, match="unknown norm"):
-        assert_order("plate-poisson", "poisson2d", norms="H1", levels=2)
+        assert_order("plate-poisson", "poisson2d", norms="H1", refinement=2)
 
 
 def test_failure_message_is_none_when_confirmed():
-    result = assert_order("plate-poisson", "poisson2d", levels=2, norms=("L1", "L2", "Linf"))
+    result = assert_order("plate-poisson", "poisson2d", refinement=2, norms=("L1", "L2", "Linf"))
     assert failure_message(result, norms=("L1", "L2", "Linf")) is None
 
 

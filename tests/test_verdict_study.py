@@ -11,6 +11,7 @@ from mmsverify.errors import AnalysisError, MMSError, ProblemError
 from mmsverify.execute.solvers import resolve_solver
 from mmsverify.outputs.studyfile import read_json, write_json
 from mmsverify.problem.record import PROBLEM_DIR, problem_from_text
+from mmsverify.study.settings import Judging, Refinement
 
 PLATE = (PROBLEM_DIR / "plate-poisson.toml").read_text()
 
@@ -24,24 +25,24 @@ def superconvergent(case):
 
 def test_superconvergent_functional_fails_two_sided_and_passes_at_least():
     # a functional at 2.12-2.15 in a second-order study must not fail the study under an "at least" rule
-    two_sided = run_study("plate-poisson", superconvergent, levels=4)
+    two_sided = run_study("plate-poisson", superconvergent, refinement=Refinement(levels=4))
     v = [v for v in two_sided.verdicts if v.field == "deflection"][0]
     assert v.status == "above" and "superconvergence" in v.reason
-    ok = run_study("plate-poisson", superconvergent, levels=4, rules={"deflection": {"at_least": True}})
+    ok = run_study("plate-poisson", superconvergent, refinement=Refinement(levels=4), judging=Judging(rules={"deflection": {"at_least": True}}))
     v = [v for v in ok.verdicts if v.field == "deflection"][0]
     assert v.status == "confirmed" and v.at_least and ok.passed
     # the same rule from the problem file
     text = PLATE.replace("[study]", '[order.by]\ndeflection = {at_least = true}\n\n[study]')
-    assert run_study(problem_from_text(text, "sc.toml"), superconvergent, levels=4).passed
+    assert run_study(problem_from_text(text, "sc.toml"), superconvergent, refinement=Refinement(levels=4)).passed
 
 
 def test_rules_per_field_and_norm_take_the_most_specific_setting():
-    r = run_study("plate-poisson", "poisson2d", levels=3, rules={"Linf": {"tolerance": 0.3},
-                                                                 "u Linf": {"tolerance": 0.25}})
+    r = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=3), judging=Judging(rules={"Linf": {"tolerance": 0.3},
+                                                                 "u Linf": {"tolerance": 0.25}}))
     tol = {(v.field, v.norm): v.tolerance for v in r.verdicts}
     assert tol[("u", "Linf")] == 0.25 and tol[("u", "L2")] == 0.1
     with pytest.raises(AnalysisError, match="selector 'w' names no judged"):
-        run_study("plate-poisson", "poisson2d", levels=2, rules={"w": {"tolerance": 0.2}})
+        run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2), judging=Judging(rules={"w": {"tolerance": 0.2}}))
 
 
 @pytest.mark.parametrize("tol", ["2.5", "1e308", "1.0"])
@@ -53,7 +54,7 @@ def test_tolerance_of_half_the_order_or_more_is_refused_everywhere(tol, tmp_path
         problem_from_text(PLATE.replace("[study]", f'[order.by]\n"u Linf" = {{tolerance = {tol}}}\n\n[study]'),
                           "wide.toml")
     with pytest.raises(AnalysisError, match="below half the formal order"):
-        run_study("plate-poisson", "poisson2d", levels=2, tolerance=float(tol))
+        run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2), judging=Judging(tolerance=float(tol)))
     assert main(["run", "plate-poisson", "poisson2d", "--levels", "2", "--tolerance", tol, "--quiet"]) == 2
     assert "below half the formal order" in capsys.readouterr().err
 
@@ -73,7 +74,7 @@ def test_temporal_study_on_a_spatial_floor_is_inconclusive_and_speaks_of_dt(caps
 
 
 def test_report_from_judges_the_stored_errors_again(tmp_path):
-    bad = run_study("plate-poisson", "poisson2d-neumann1", levels=4)
+    bad = run_study("plate-poisson", "poisson2d-neumann1", refinement=Refinement(levels=4))
     path = write_json(bad, tmp_path / "s.json")
     data = json.loads(path.read_text())
     for v in data["verdicts"]:

@@ -7,6 +7,7 @@ from mmsverify.execute.norms import NORMS
 from mmsverify.cli.progress import NORMAL, QUIET, VERBOSE, progress_for, verbosity
 from mmsverify.cli import EXIT_FAIL, EXIT_INPUT, EXIT_OK, comma_choices
 from mmsverify.cli._run import add_study_options, study_from_args
+from mmsverify.study.settings import Running
 
 
 def _save(args):
@@ -37,7 +38,7 @@ def _check(args):
     solver = args.solver or base.solver
     check = check_baseline(base, solver, problem=args.problem, error_factor=args.error_factor,
                            tolerance=args.tolerance, norms=norms,
-                           progress=progress_for(args, len(base.grids), f"{base.problem} / {solver}"))
+                           running=Running(progress=progress_for(args, len(base.grids), f"{base.problem} / {solver}")))
     level = verbosity(args)
     print(check if level == VERBOSE or (level == NORMAL and not check.passed) else check.summary())
     return EXIT_OK if check.passed else EXIT_FAIL

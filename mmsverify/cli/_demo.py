@@ -2,6 +2,7 @@
 
 from mmsverify.render.text import CAUTION, format_study
 from mmsverify.study.refinement import run_study
+from mmsverify.study.settings import Refinement
 from mmsverify.cli import EXIT_FAIL, EXIT_OK
 
 PROBLEM = "plate-poisson"
@@ -18,10 +19,10 @@ def _demo(args):
     print("mmsverify demo: a membrane under load, -lap u = f on the unit square, Dirichlet on three sides and")
     print("a prescribed slope on x_max. Two finite-difference solvers designed for second order are checked.\n")
     print(f"1) {CORRECT}: 5-point stencil, ghost-node Neumann boundary (correct)\n")
-    good = run_study(PROBLEM, CORRECT, levels=args.levels)
+    good = run_study(PROBLEM, CORRECT, Refinement(levels=args.levels))
     print(format_study(good, caution=False).rstrip())
     print(f"\n2) {MISTAKE}: the same, but the Neumann side uses a one-sided first-order difference (seeded mistake)\n")
-    bad = run_study(PROBLEM, MISTAKE, levels=args.levels)
+    bad = run_study(PROBLEM, MISTAKE, Refinement(levels=args.levels))
     print(format_study(bad, caution=False).rstrip())
     expected = good.passed and not bad.passed
     print("\nDemo outcome: " + ("the correct solver is confirmed at order 2 and the seeded mistake is caught."

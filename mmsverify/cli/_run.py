@@ -1,5 +1,6 @@
 """``mmsverify run PROBLEM SOLVER``: a manufactured-solution study."""
 
+from dataclasses import replace
 import shlex
 import sys
 from pathlib import Path
@@ -8,6 +9,7 @@ from mmsverify.errors import GridError, SolverError
 from mmsverify.execute.external import OUTPUT_FORMATS, ExternalSolver
 from mmsverify.execute.resolutions import parse_cells
 from mmsverify.execute.solvers import resolve_solver
+from mmsverify.study.settings import Judging, Refinement, Running
 from mmsverify.study.refinement import MODES, run_study
 from mmsverify.cli import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_INPUT, EXIT_OK
 
@@ -155,24 +157,26 @@ def study_from_args(args, problem, solver, progress=None):
     if refused is not None:
         raise refused
     solver = external_from_args(args) or solver
-    kwargs = dict(levels=args.levels, base_cells=args.base_cells, ratio=args.ratio, mode=args.mode,
-                  base_steps=args.base_steps, tolerance=args.tolerance, formal_order=args.formal_order,
-                  progress=progress, timeout=getattr(args, "timeout", None),
-                  cache_dir=getattr(args, "cache", None), resume=not getattr(args, "fresh", False),
-                  options=dict(_param(o) for o in getattr(args, "option", [])) or None,
-                  norms=_norm_list(getattr(args, "norms", None)))
-    if getattr(args, "cells", None):
-        kwargs["cells"] = _cell_list(args.cells)
+    refinement = Refinement(levels=args.levels, base_cells=args.base_cells, ratio=args.ratio, mode=args.mode,
+                            base_steps=args.base_steps,
+                            cells=_cell_list(args.cells) if getattr(args, "cells", None) else None)
+    judging = Judging(tolerance=args.tolerance, formal_order=args.formal_order,
+                      norms=_norm_list(getattr(args, "norms", None)))
+    running = Running(progress=progress, timeout=getattr(args, "timeout", None),
+                      cache_dir=getattr(args, "cache", None), resume=not getattr(args, "fresh", False))
+    options = dict(_param(o) for o in getattr(args, "option", [])) or None
     if getattr(args, "dask", None):
         client = _dask_client(args.dask, args.workers)
         try:
-            return run_study(problem, solver, executor=client, **kwargs)
+            return run_study(problem, solver, refinement, judging, replace(running, executor=client),
+                             options=options)
         finally:
             cluster = client.cluster
             client.close()
             if args.dask == "local" and cluster is not None:
                 cluster.close()
-    return run_study(problem, solver, workers=getattr(args, "workers", None), **kwargs)
+    return run_study(problem, solver, refinement, judging, replace(running, workers=getattr(args, "workers", None)),
+                     options=options)
 
 
 def _run(args):

@@ -1,5 +1,6 @@
 """``mmsverify split PROBLEM SOLVER``: space and time orders of a transient solver, separately."""
 
+from mmsverify.study.settings import Judging
 from mmsverify.study.spacetime import run_space_time
 from mmsverify.cli import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_OK
 
@@ -17,7 +18,7 @@ def _split(args):
 
     r = run_space_time(args.problem, args.solver, levels=levels, base_cells=args.base_cells,
                        base_steps=args.base_steps, ratio=args.ratio or 2.0, fine_cells=args.fine_cells,
-                       fine_steps=args.fine_steps, tolerance=args.tolerance, refine_budget=args.refine_budget,
+                       fine_steps=args.fine_steps, judging=Judging(tolerance=args.tolerance), refine_budget=args.refine_budget,
                        study_progress=study_progress)
     if shown:
         getattr(shown[-1], "close", lambda: None)()  # end a live progress line before the tables

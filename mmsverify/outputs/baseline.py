@@ -413,7 +413,7 @@ def _check_series(baseline, result, f, n, recorded, current, verdict, rules, fin
 
 
 def check_baseline(baseline, solver=None, *, problem=None, error_factor=None, tolerance=None, norms=None,
-                   progress=None, **study_options):
+                   running=None, options=None):
     """Rerun the baseline's grids with a solver and compare.
 
     Parameters
@@ -443,13 +443,15 @@ def check_baseline(baseline, solver=None, *, problem=None, error_factor=None, to
         When the problem's content differs from the baseline's.
     """
     from mmsverify.study.refinement import run_study
+    from mmsverify.study.settings import Judging, Refinement
     if not isinstance(baseline, Baseline):
         baseline = load_baseline(baseline)
     problem = problem_of_record(baseline, problem, mismatch=_CHANGED_PROBLEM)
     _log.info("rerunning the %d levels of baseline %s (recorded with %s)", len(baseline.grids), baseline.problem,
               baseline.solver)
-    result = run_study(problem, baseline.solver if solver is None else solver, grids=baseline.grids,
-                       mode=baseline.mode, formal_order=baseline.formal_order,
-                       tolerance=baseline.tolerance if tolerance is None else tolerance, progress=progress,
-                       **study_options)
+    result = run_study(problem, baseline.solver if solver is None else solver,
+                       Refinement(grids=baseline.grids, mode=baseline.mode),
+                       Judging(formal_order=baseline.formal_order,
+                               tolerance=baseline.tolerance if tolerance is None else tolerance),
+                       running, options=options)
     return compare(baseline, result, error_factor, tolerance, norms)

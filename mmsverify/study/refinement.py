@@ -29,6 +29,7 @@ from mmsverify.execute.norms import NORMS, magnitude_norms
 from mmsverify.execute.resolutions import level_info, planned_list
 from mmsverify.analysis.order import observed_orders
 from mmsverify.problem.record import get_problem
+from mmsverify.study.settings import MODES, Judging, Refinement, Running
 from mmsverify.execute.solvers import Case, check_solution, resolve_solver, solver_name
 from mmsverify.analysis.verdict import judge
 from mmsverify.problem.rules import check_rule, check_rules, parse_rules, rule_for
@@ -36,7 +37,6 @@ from mmsverify.problem.rules import check_rule, check_rules, parse_rules, rule_f
 __all__ = ["LevelResult", "StudyResult", "plan_grids", "run_level", "run_study", "judged_norms", "rejudge", "MODES",
            "NORMS_SOURCES"]
 
-MODES = ("combined", "space", "time")
 MAX_LEVELS = 30          # more levels than any study needs; beyond, the finest grid is astronomically large
 MAX_CELLS = 1e9          # a level larger than this would not fit in memory on any workstation
 #: Where the judged norms of a study come from: the solver's ``judged_norms``, the caller's ``norms``, or all.
@@ -611,75 +611,42 @@ def _run_level(solver, case, where):
                            message=f"{where}: the solver raised {type(exc).__name__}: {exc}\n{tail}")
 
 
-def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode="combined", base_steps=None,
-              grids=None, tolerance=None, formal_order=None, executor=None, options=None,
-              progress=None, workers=None, timeout=None, cache_dir=None, resume=True, norms=None, rules=None,
-              cells=None):
+def run_study(problem, solver, refinement=None, judging=None, running=None, *, options=None):
     """Run a manufactured-solution study and judge the observed orders.
 
     Parameters
     ----------
     problem : Problem, path or bundled name
     solver : callable, ``"module:function"`` or bundled name
-    levels, base_cells, ratio : optional
-        Refinement plan (defaults from the problem's ``[study]`` table, else 4, 8, 2).
-    cells : sequence of int, optional
-        A list of resolutions instead (cells per direction, one level each,
-        any ratios between them; ``cells`` in ``[study]`` is the default
-        when no plan is given). See :mod:`mmsverify.resolutions`.
-    mode : {"combined", "space", "time"}
-        How transient problems refine time (see :func:`plan_grids`).
-    grids : sequence of Grid, optional
-        An explicit sequence instead of the plan; must be a refinement.
-    tolerance, formal_order : float, optional
-        Override the tolerance and the formal order. Without them the
-        problem's ``[order]`` values apply, unless the solver states its own
-        orders (attributes ``formal_order``, ``time_order``; see
+    refinement : Refinement, int or sequence of Grid, optional
+        Which levels run (:class:`~mmsverify.study.settings.Refinement`; a
+        number of levels or an explicit grid sequence is accepted too).
+    judging : Judging, optional
+        How the orders are judged. Without an override the problem's
+        ``[order]`` values apply, unless the solver states its own orders
+        (attributes ``formal_order``, ``time_order``; see
         :func:`design_orders`). Where a stated order differs from the
         problem's ``[order]``, the result says so in its ``notes`` (data in
         ``order_conflicts``); so it does for declared quantities the solver
-        did not report (``missing_quantities``).
-    executor : concurrent.futures.Executor or dask.distributed.Client, optional
-        Run levels through it (the solver must then be picklable).
+        did not report (``missing_quantities``). Without ``norms`` a solver
+        that states ``judged_norms`` (field name to the norms its order
+        claim holds in) is judged in those, other fields in all of L1, L2,
+        Linf (see :func:`judged_norms`); every norm is still measured.
+    running : Running, optional
+        How the levels run: executor or local workers, time limit per
+        level, level cache, progress callback.
     options : dict, optional
         Passed to the solver in ``case.options``. A solver whose stated
         orders depend on its options may define ``configured(options)``,
         returning the solver as those options configure it; the stated
         orders are then read from that.
-    progress : callable, optional
-        Called as ``progress(level_result)`` after each level finishes
-        (see :mod:`mmsverify.cli.progress`).
-    workers : int, optional
-        Without ``executor``: run the levels in a local pool of this many
-        processes (default: one after another in this process).
-    timeout : float, optional
-        Seconds allowed per level; a level past it is stopped and recorded
-        as failed (see :mod:`mmsverify.execute.runner` for how it is enforced).
-    cache_dir : path, optional
-        Keep finished levels there by content (problem, solver and its code,
-        grid, options); a rerun or a resumed study reuses them
-        (see :mod:`mmsverify.execute.cache`).
-    resume : bool
-        With ``cache_dir``: reuse stored levels (default); False recomputes
-        and overwrites them.
-    norms : sequence of str, optional
-        Norms that get a verdict, for every field. Without them a solver
-        that states ``judged_norms`` (a dict of field name to the norms its
-        order claim holds in; read like the stated orders, from the
-        configured solver) is judged in those, other fields and other
-        solvers in all of L1, L2, Linf (see :func:`judged_norms`). Every
-        norm is still measured and reported; a field judged in fewer says
-        so in ``notes`` (data in ``judged_norms`` and ``norms_source``).
-    rules : dict, optional
-        Order rules for single fields, norms or quantities, e.g.
-        ``{"drag": {"at_least": True}, "u Linf": {"tolerance": 0.3}}``; they
-        add to (and for the same selector replace) the problem's
-        ``[order.by]`` table (see :mod:`mmsverify.problem.rules`).
 
     Returns
     -------
     StudyResult
     """
+    plan, judge, run = Refinement.of(refinement), Judging.of(judging), Running.of(running)
+    mode, grids = plan.mode, plan.grids
     problem = get_problem(problem)
     solve = resolve_solver(solver)
     mms = derive(problem)
@@ -695,8 +662,8 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     p_space, p_time, _ = design_orders(problem, stating)
     planned = grids is None
     if grids is None:
-        grids = plan_grids(problem, levels, base_cells, ratio, mode=mode, base_steps=base_steps,
-                           orders=(p_space, p_time), cells=cells)
+        grids = plan_grids(problem, plan.levels, plan.base_cells, plan.ratio, mode=mode, base_steps=plan.base_steps,
+                           orders=(p_space, p_time), cells=plan.cells)
     else:
         grids = list(grids)
         check_refinement(grids)
@@ -707,17 +674,17 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     # where the judged order comes from: the solver only if it states that axis
     order_source = "solver" if _stated(stating, "time_order" if mode == "time" else "formal_order") is not None \
         else "problem"
-    if formal_order is not None:
-        formal, order_source = formal_order, "caller"
+    if judge.formal_order is not None:
+        formal, order_source = judge.formal_order, "caller"
     formal = float(formal)
-    tol = float(tolerance if tolerance is not None else problem.tolerance)
-    check_rule(formal, tol, f"problem {problem.name}, the order rule" + (" (--tolerance)" if tolerance is not None
+    tol = float(judge.tolerance if judge.tolerance is not None else problem.tolerance)
+    check_rule(formal, tol, f"problem {problem.name}, the order rule" + (" (--tolerance)" if judge.tolerance is not None
                                                                           else ""))
     name = solver_name(solver)
-    judged, norms_source = judged_norms(problem, stating, norms, who=solver_name(stating))
+    judged, norms_source = judged_norms(problem, stating, judge.norms, who=solver_name(stating))
     # the solver's orders per norm are the widest rules; the problem's [order.by] and the caller's win over them
     rules = tuple(dict({**dict(parse_rules(norm_rules(stating, problem, solver_name(stating)))),
-                        **dict(getattr(problem, "order_rules", ())), **dict(parse_rules(rules))}).items())
+                        **dict(getattr(problem, "order_rules", ())), **dict(parse_rules(judge.rules))}).items())
     ruled = {f: tuple(judged[f]) + gradient_norms_ruled(rules, f, "time" if mode == "time" else "space")
              for f in judged}
     check_rules(rules, {**ruled, **{q: ("value",) for q in problem.names("quantities")}}, ALL_NORMS + ("value",),
@@ -726,12 +693,12 @@ def run_study(problem, solver, *, levels=None, base_cells=None, ratio=None, mode
     cases = [Case(g, mms, opts) for g in grids]
     wheres = [_level_where(problem.name, name, c.grid) for c in cases]
     from mmsverify.execute.runner import run_levels
-    results = run_levels(solve, cases, wheres, executor=executor, workers=workers, timeout=timeout,
-                         cache=cache_dir, resume=resume, progress=progress)
+    results = run_levels(solve, cases, wheres, executor=run.executor, workers=run.workers, timeout=run.timeout,
+                         cache=run.cache_dir, resume=run.resume, progress=run.progress)
     results, warnings = _check_levels(results, mode, wheres)
     verdicts = _verdicts(problem, results, formal, tol, judged, rules, mode)
-    conflicts = _order_conflicts(problem, stating, mode, caller=formal_order is not None, planned=planned,
-                                 base_steps=base_steps)
+    conflicts = _order_conflicts(problem, stating, mode, caller=judge.formal_order is not None, planned=planned,
+                                 base_steps=plan.base_steps)
     return StudyResult(problem.name, name, mode, formal, tol, tuple(results), tuple(verdicts),
                        problem.content_hash(), problem.source, order_source,
                        _missing_quantities(problem, results), conflicts, judged, norms_source, rules, warnings)

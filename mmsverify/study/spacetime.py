@@ -32,11 +32,12 @@ is inconclusive unless another study fails on its own evidence.
 
 import logging
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from mmsverify.errors import GridError
 from mmsverify.problem.record import get_problem
 from mmsverify.execute.solvers import resolve_solver, solver_name
+from mmsverify.study.settings import Refinement, Running
 from mmsverify.study.refinement import design_orders, run_study
 
 _log = logging.getLogger(__name__)
@@ -94,7 +95,8 @@ class SpaceTimeResult:
 
 
 def run_space_time(problem, solver, *, levels=4, base_cells=None, base_steps=None, ratio=2.0,
-                   fine_cells=None, fine_steps=None, refine_budget=None, study_progress=None, **kwargs):
+                   fine_cells=None, fine_steps=None, refine_budget=None, study_progress=None, judging=None,
+                   running=None, options=None):
     """Measure the space and time orders of a transient solver separately.
 
     Parameters
@@ -117,8 +119,8 @@ def run_space_time(problem, solver, *, levels=4, base_cells=None, base_steps=Non
         Called as ``study_progress(label)`` before each study (label such as
         ``"space study, steps fixed at 4096"``); what it returns is that
         study's per-level ``progress`` callback (see :mod:`mmsverify.cli.progress`).
-    **kwargs
-        Passed to every :func:`run_study` (tolerance, executor, ...).
+    judging, running, options : optional
+        Passed to every :func:`run_study` (see :mod:`mmsverify.study.settings`).
 
     Returns
     -------
@@ -142,13 +144,16 @@ def run_space_time(problem, solver, *, levels=4, base_cells=None, base_steps=Non
         fine_cells = int(round(base_cells * ratio ** (levels + 1)))
     if fine_steps is None:
         fine_steps = int(round(base_steps * ratio ** ((levels + 1) * tie)))
-    common = dict(levels=levels, ratio=ratio, **kwargs)
 
     def study(mode, cells, steps):
         label = (f"time study, cells fixed at {cells}" if mode == "time" else
                  f"space study, steps fixed at {steps}" if mode == "space" else "combined study")
-        extra = {} if study_progress is None else {"progress": study_progress(label)}
-        return run_study(problem, solver, mode=mode, base_cells=cells, base_steps=steps, **dict(common, **extra))
+        run = Running.of(running)
+        if study_progress is not None:
+            run = replace(run, progress=study_progress(label))
+        return run_study(problem, solver,
+                         Refinement(levels=levels, ratio=ratio, mode=mode, base_cells=cells, base_steps=steps),
+                         judging, run, options=options)
 
     time_study = study("time", fine_cells, base_steps)
     space_study = study("space", base_cells, fine_steps)
