@@ -37,7 +37,8 @@ from mmsverify.problem.record import Problem, load_problem, problem_from_text
 REPO = Path(__file__).resolve().parent.parent
 SEED = 20240817
 N_FILES = 1200          # generated files per run (the issue asks for at least 1000)
-PER_FILE_SECONDS = 2.0  # wall time allowed per file: load, plan and one evaluation
+# CPU time of this process, not wall time: the work a file costs, whatever else shares the machine
+PER_FILE_SECONDS = 2.0  # CPU seconds allowed per file: load, plan and one evaluation
 BOMB_SECONDS = 1.5      # a derivation bomb is refused by a count well within this
 
 BASES = sorted([*(REPO / "mmsverify" / "problem" / "bundled").glob("*.toml"), *(REPO / "tests" / "data").glob("*.toml")])
@@ -397,16 +398,16 @@ def outcome(label, text):
     Returns ``(status, seconds, message)`` with status ``"ok"``, ``"error"``
     (an MMSError) or ``"CRASH"`` (any other exception: the bug this file hunts).
     """
-    start = time.perf_counter()
+    start = time.process_time()
     try:
         problem = problem_from_text(text, source=label)
         assert isinstance(problem, Problem)
         _use(problem)
     except MMSError as exc:
-        return "error", time.perf_counter() - start, str(exc)
+        return "error", time.process_time() - start, str(exc)
     except Exception as exc:  # noqa: BLE001 - recorded and reported below
-        return "CRASH", time.perf_counter() - start, f"{type(exc).__name__}: {exc}"
-    return "ok", time.perf_counter() - start, ""
+        return "CRASH", time.process_time() - start, f"{type(exc).__name__}: {exc}"
+    return "ok", time.process_time() - start, ""
 
 
 def summary(results):
@@ -454,10 +455,10 @@ def test_derivation_bombs_stop_at_the_size_caps_naming_the_entry(hostile_env, na
     # the caps are counts, so the same file is refused the same way however warm sympy's caches are
     from sympy.core.cache import clear_cache
     clear_cache()
-    start = time.perf_counter()
+    start = time.process_time()
     with pytest.raises(ProblemError, match="(has|would have) more than [0-9]+ terms") as info:
         problem_from_text(text, source=f"{name}.toml")
-    assert time.perf_counter() - start < BOMB_SECONDS
+    assert time.process_time() - start < BOMB_SECONDS
     assert re.match(rf"{name}\.toml, line \d+, \[operator(\.equations)?\] (kind|u)", str(info.value)), info.value
 
 
@@ -480,10 +481,10 @@ def test_products_of_radicals_are_refused_by_their_size(hostile_env):
         half = len(items) // 2
         return items[0] if len(items) == 1 else f"({join(items[:half])}*{join(items[half:])})"
     text = "[domain]\nx = [0, 1]\n[fields]\nu = " + _toml_str(f"x + {join(leaves)}") + "\n"
-    start = time.perf_counter()
+    start = time.process_time()
     with pytest.raises(ProblemError, match=r"radicals.toml, line 4, \[fields\] u: number exceeds 512 bits"):
         problem_from_text(text, "radicals.toml")
-    assert time.perf_counter() - start < 1.5
+    assert time.process_time() - start < 1.5
 
 
 @pytest.mark.parametrize("edit, fragment", [
@@ -518,12 +519,12 @@ def test_oversized_files_are_refused_before_reading(hostile_env):
     big = hostile_env / "huge.toml"
     with open(big, "wb") as fh:  # sparse: nothing is written to disk
         fh.truncate(64 * problem_module.MAX_FILE_CHARS)
-    start = time.perf_counter()
+    start = time.process_time()
     with pytest.raises(ProblemError, match="far too large for a problem file"):
         load_problem(big)
     with pytest.raises(ProblemError, match="problem files are limited to"):
         problem_from_text("#" * (problem_module.MAX_FILE_CHARS + 1), "long.toml")
-    assert time.perf_counter() - start < 1
+    assert time.process_time() - start < 1
     with pytest.raises(ProblemError, match="expected the text of a TOML file, got bytes"):
         problem_from_text(b"[domain]", "bytes.toml")
     (hostile_env / "binary.toml").write_bytes(b"\xff\xfe\x00garbage")
