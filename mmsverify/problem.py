@@ -71,7 +71,7 @@ import tomllib
 
 import sympy as sp
 
-from . import _diskcache, _fast
+from . import _diskcache, _fast, _safeio
 from .errors import ProblemError, MMSError
 from .expr import _Timeout, _time_limit
 from .operators import OPERATORS, get_operator, derivative_functions
@@ -775,16 +775,16 @@ def load_problem(path):
         else:
             raise ProblemError(f"no problem file {str(path)!r} and no bundled problem of that name; "
                                f"bundled problems: {', '.join(bundled_problems())}")
+    return problem_from_text(_read_problem_file(p), str(p))
+
+
+def _read_problem_file(p):
+    """The text of a problem file: a regular file (devices and pipes are refused before they are opened),
+    at most 4 bytes per allowed character, UTF-8 with an optional byte-order mark."""
     try:
-        if p.stat().st_size > 4 * MAX_FILE_CHARS:  # before reading it into memory
-            raise ProblemError(f"{p}: {p.stat().st_size} bytes is far too large for a problem file "
-                               f"(at most {MAX_FILE_CHARS} characters)")
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise ProblemError(f"{p}: no such problem file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ProblemError(f"{p}: cannot read it ({exc})") from None
-    return problem_from_text(text, str(p))
+        return _safeio.read_text(p, "problem file", 4 * MAX_FILE_CHARS)
+    except MMSError as exc:
+        raise ProblemError(str(exc)) from None
 
 
 def bundled_problems():
