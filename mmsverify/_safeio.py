@@ -78,10 +78,14 @@ def read_bytes(path, what="file", max_bytes=MAX_FILE_BYTES, missing_hint=""):
         raise MMSError(f"{path}: cannot read this {what} ({exc})") from None
     with os.fdopen(fd, "rb") as f:
         try:
-            _refuse_special(path, os.fstat(fd).st_mode, what)
-            chunks, total = [], 0
-            while total <= max_bytes:  # in pieces: a read of max_bytes + 1 would reserve that much at once
-                chunk = f.read(min(max_bytes + 1 - total, 1 << 24))
+            st = os.fstat(fd)
+            _refuse_special(path, st.st_mode, what)
+            # a read reserves its whole size at once: first the size the file states, then small pieces
+            # in case it grew (a read of max_bytes + 1 would hold that much memory for a small file)
+            chunks, total, piece = [], 0, min(st.st_size, max_bytes) + 1
+            while total <= max_bytes:
+                chunk = f.read(min(max_bytes + 1 - total, piece))
+                piece = 1 << 20
                 if not chunk:
                     break
                 chunks.append(chunk)
