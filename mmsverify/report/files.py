@@ -119,11 +119,11 @@ _LEVEL_KEYS = ("level", "cells", "steps", "h", "dt", "status", "message", "secon
                "upper", "t_start", "t_end", "scale")
 
 
-def _numbers(d, key, where, **limits):
+def _numbers(d, key, where, label=None, **limits):
     """A dict of name to number (``null`` for an undefined one read as NaN), e.g. the three norms."""
     out = {}
     for name, value in need_dict(d, key, where, {}, max_len=MAX_ENTRIES).items():
-        out[name] = as_number(value, f"{where}, {key} {name}", **limits)
+        out[name] = as_number(value, f"{where}, {label or key}", name, **limits)
     return out
 
 
@@ -152,14 +152,14 @@ def _level(d, where):
         raise MMSError(f"{where}: {exc}") from None
     errors = {}
     for f in need_dict(d, "errors", where, {}, max_len=MAX_ENTRIES):
-        e = _numbers(d["errors"], f, f"{where}, errors", null=True)
+        e = _numbers(d["errors"], f, where, f"errors {f}", null=True)
         missing = [n for n in NORMS if n not in e]
         if missing:
             raise MMSError(f"{where}, errors {f}: missing the norm(s) {', '.join(missing)}")
         errors[f] = e
     quantities = {}
     for q in need_dict(d, "quantities", where, {}, max_len=MAX_ENTRIES):
-        quantities[q] = _numbers(d["quantities"], q, f"{where}, quantities", null=True)
+        quantities[q] = _numbers(d["quantities"], q, where, f"quantities {q}", null=True)
         missing = [k for k in ("value", "exact", "error") if k not in quantities[q]]
         if missing:
             raise MMSError(f"{where}, quantities {q}: missing {', '.join(missing)}")
