@@ -1,6 +1,6 @@
 """Issue 9, target 3: deriving compressible Navier-Stokes sources, cold and cached.
 
-For problems/compressible-2d.toml and compressible-3d.toml, each in a fresh
+For mmsverify/problem/bundled/compressible-2d.toml and compressible-3d.toml, each in a fresh
 Python process (so no in-memory cache helps):
 
 * cold: an empty derivation cache; reading the file, differentiating

@@ -1,6 +1,6 @@
 """Issue 9, target 2: derived evaluators against hand-written NumPy.
 
-The energy source of problems/compressible-2d.toml (compressible
+The energy source of mmsverify/problem/bundled/compressible-2d.toml (compressible
 Navier-Stokes, Roy et al. 2004 style fields) on an N x N mesh, evaluated by
 
 * hand-written NumPy (bench/_handwritten.py) on the full mesh: the reference;
@@ -29,7 +29,7 @@ import _handwritten
 
 import sympy as sp
 from mmsverify import derive, load_problem
-from mmsverify._evaluate import build_program
+from mmsverify.problem.evaluate import build_program
 
 
 def _numexpr_variant(program):
@@ -76,7 +76,7 @@ def main(argv=None):
     xa, ya = xs[:, None], xs[None, :]
     full = X.nbytes
 
-    from mmsverify._evaluate import Evaluator
+    from mmsverify.problem.evaluate import Evaluator
     threaded = Evaluator(build_program(expr, problem.coords), threads=2)
     variants = {
         "hand-written NumPy, full mesh": lambda: _handwritten.energy_source(X, Y),

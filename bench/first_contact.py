@@ -31,7 +31,10 @@ import io, json, sys, time, contextlib
 t_start = float(sys.argv[1])
 w0 = time.perf_counter()
 import mmsverify
-from mmsverify import problem as problem_mod, study as study_mod, _evaluate, derive as _d
+from mmsverify import derive as _d
+from mmsverify.problem import record as problem_mod
+from mmsverify.study import refinement as study_mod
+from mmsverify.problem import evaluate as _evaluate
 import mmsverify.cli as cli
 imports = time.perf_counter() - w0
 spent = {"cli": 0.0, "derive": 0.0, "codegen": 0.0, "evaluate": 0.0, "solver import": 0.0, "solver": 0.0}
@@ -53,7 +56,7 @@ def timed(label, fn):
 
 cli.build_parser = timed("cli", cli.build_parser)
 problem_mod.problem_from_text = timed("derive", problem_mod.problem_from_text)
-sys.modules["mmsverify.derive"].build_program = timed("codegen", _evaluate.build_program)
+sys.modules["mmsverify.problem.derive"].build_program = timed("codegen", _evaluate.build_program)
 _evaluate.Evaluator.__call__ = timed("evaluate", _evaluate.Evaluator.__call__)
 resolve = study_mod.resolve_solver
 study_mod.resolve_solver = lambda spec: timed("solver", timed("solver import", resolve)(spec))
@@ -88,13 +91,13 @@ def _split(args, cache):
 
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--tiny", action="store_true", help="smoke run: demo with 3 levels")
+    ap.add_argument("--tiny", action="store_true", help="smoke run: demo with 4 levels")
     args = ap.parse_args(argv)
     demo = ["demo"]
     if args.tiny:
         helptext = subprocess.run([sys.executable, "-m", "mmsverify", "demo", "--help"], capture_output=True,
                                   text=True, cwd=ROOT).stdout
-        demo += ["--levels", "3"] if "--levels" in helptext else []
+        demo += ["--levels", "4"] if "--levels" in helptext else []
     rows, splits = [], {}
     with tempfile.TemporaryDirectory() as cache:
         for label in ("empty cache (first run)", "filled cache"):

@@ -33,7 +33,7 @@ Children run with Python's default bytecode cache (``PYTHONDONTWRITEBYTECODE``
 removed from their environment), as a user's Python runs.
 
 Run: ``python bench/harness_overhead.py [--base 128] [--levels 4] [--repeats 2]``;
-``--tiny`` is a smoke run (base 8, 3 levels). The stage tables show the
+``--tiny`` is a smoke run (base 8, 4 levels). The stage tables show the
 fastest run per state; the spread table the harness share of every run
 (the solver's own time moves by 10-20 % between runs, and the share with it).
 """
@@ -107,11 +107,12 @@ def _child(argv):
     import mmsverify.cli as cli
     import mmsverify.cli._run as run_cmd
     from importlib import import_module
-    # modules by full name: the package exports functions of the same names (mmsverify.derive, ...)
+    # modules by full name: the package exports functions of the same names (mmsverify.problem.derive, ...)
     cache_mod, derive_mod, problem_mod, study, progress_mod = (
-        import_module(f"mmsverify.{m}") for m in ("cache", "derive", "problem", "study", "progress"))
-    import_module("mmsverify.runner")  # imported by run_study on first use; not part of the timed run
-    files_mod = import_module("mmsverify.report.files")
+        import_module(f"mmsverify.{m}") for m in ("execute.cache", "problem.derive", "problem.record",
+                                                  "study.refinement", "cli.progress"))
+    import_module("mmsverify.execute.runner")  # imported by run_study on first use; not part of the timed run
+    files_mod = import_module("mmsverify.outputs.studyfile")
     import solvers_demo.fd.poisson  # noqa: F401  (the solver's modules and libraries: their imports are not harness)
     import pyamg  # noqa: F401
     import scipy.fft  # noqa: F401
@@ -145,7 +146,7 @@ def _child(argv):
     problem_mod.get_problem = clock.wrap("derive", problem_mod.get_problem)
     study.derive = clock.wrap("derive", study.derive)
     study.check_solution = clock.wrap("check", study.check_solution)
-    study._magnitude_norms = clock.wrap("norms", study._magnitude_norms)
+    study.magnitude_norms = clock.wrap("norms", study.magnitude_norms)
     for name in ("key", "load", "store"):
         setattr(cache_mod.LevelCache, name, clock.wrap("cache", getattr(cache_mod.LevelCache, name)))
     files_mod.write_json = clock.wrap("report", files_mod.write_json)
@@ -211,10 +212,10 @@ def main(argv=None):
     ap.add_argument("--base", type=int, default=128, help="cells per direction on the coarsest level")
     ap.add_argument("--levels", type=int, default=4)
     ap.add_argument("--repeats", type=int, default=2, help="runs per cache state; the fastest total is shown")
-    ap.add_argument("--tiny", action="store_true", help="smoke run: base 8, 3 levels, 1 repeat")
+    ap.add_argument("--tiny", action="store_true", help="smoke run: base 8, 4 levels, 1 repeat")
     args = ap.parse_args(argv)
     if args.tiny:
-        args.base, args.levels, args.repeats = 8, 3, 1
+        args.base, args.levels, args.repeats = 8, 4, 1
     load0 = os.getloadavg()
     runs, shares = {}, {}
     with tempfile.TemporaryDirectory() as tmp:

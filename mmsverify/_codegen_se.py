@@ -1,19 +1,19 @@
 """Generated NumPy code for symengine expressions (the fast derivation path).
 
-:func:`build_symengine` is :func:`mmsverify._evaluate.build_program` for a
+:func:`build_symengine` is :func:`mmsverify.problem.evaluate.build_program` for a
 symengine expression: the same pipeline (arguments renamed, CSE, hoisting
-of lower-dimensional parts by :func:`mmsverify._evaluate._hoisted`) with
+of lower-dimensional parts by :func:`mmsverify.problem.evaluate._hoisted`) with
 symengine's CSE and a NumPy printer of our own, so no sympy expression is
-ever built. The resulting :class:`~mmsverify._evaluate.Program` is the
+ever built. The resulting :class:`~mmsverify.problem.evaluate.Program` is the
 same kind of straight-line code the sympy branch writes.
 """
 
 import itertools
 import math
 
-from ._evaluate import Program, _hoisted, _short
-from ._fast import canonical
-from .errors import ExpressionError
+from mmsverify.problem.evaluate import Program, _hoisted, _short
+from mmsverify._fast import canonical
+from mmsverify.errors import ExpressionError
 
 __all__ = ["build_symengine"]
 

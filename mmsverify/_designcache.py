@@ -1,15 +1,15 @@
 """Internal: the design warnings a study prints, kept in the derivation cache.
 
-:func:`mmsverify.design.design_warnings` samples and optimises over the
+:func:`mmsverify.design.checks.design_warnings` samples and optimises over the
 domain (0.04-0.07 s, and a first call in a process imports ``scipy.special``
 for the generated NumPy code). Its result depends only on the problem and
 the code, so ``mmsverify run`` keeps it in :mod:`mmsverify._diskcache`
 (``MMSVERIFY_CACHE=off`` disables it) and a rerun of the same problem reads
 a short list of texts instead. This module stays light: on a hit it imports
-neither :mod:`mmsverify.design` nor SciPy.
+neither :mod:`mmsverify.design.checks` nor SciPy.
 
 The key holds everything the checks read that
-:meth:`~mmsverify.problem.Problem.content_hash` leaves out (operator,
+:meth:`~mmsverify.problem.record.Problem.content_hash` leaves out (operator,
 custom equation text, constants, ``[bounds]``, ``[order]``), the formal
 orders asked for, and a fingerprint of the design code (``design.py``,
 ``_designmodel.py``, this module) and of the NumPy and SciPy versions;
@@ -18,7 +18,7 @@ sympy and of the modules that read and derive problems. The problem's name
 is left out: no warning names the problem. Checks that could not run are
 not kept, so a transient failure is not repeated from the cache.
 
-The bounds enter through :meth:`~mmsverify.problem.Problem.bounds_hash`,
+The bounds enter through :meth:`~mmsverify.problem.record.Problem.bounds_hash`,
 kept with a problem in the derivation cache, so a warm problem is keyed
 without building its sympy tables.
 """
@@ -29,12 +29,12 @@ import importlib.util
 import json
 from pathlib import Path
 
-from . import _diskcache
+from mmsverify import _diskcache
 
 __all__ = ["cached_design_warnings", "cached_only"]
 
 _KIND = "design"
-_CODE = ("design.py", "_designmodel.py", "_designcache.py")
+_CODE = ("design/checks.py", "design/model.py", "_designcache.py")
 
 
 @lru_cache(maxsize=1)
@@ -67,24 +67,24 @@ def _valid(entry):
 
 
 def cached_design_warnings(problem, formal_order=None, time_order=None):
-    """:func:`~mmsverify.design.design_warnings` of a Problem, read from the derivation cache when seen before.
+    """:func:`~mmsverify.design.checks.design_warnings` of a Problem, read from the derivation cache when seen before.
 
     Parameters
     ----------
     problem : Problem
         Anything else is checked without the cache.
     formal_order, time_order : float, optional
-        As for :func:`~mmsverify.design.design_warnings`.
+        As for :func:`~mmsverify.design.checks.design_warnings`.
 
     Returns
     -------
     list of str
-        The same texts :func:`~mmsverify.design.design_warnings` returns.
+        The same texts :func:`~mmsverify.design.checks.design_warnings` returns.
     """
     key, hit = _lookup(problem, formal_order, time_order)
     if hit is not None:
         return hit
-    from .design import _fast_warnings
+    from mmsverify.design.checks import _fast_warnings
     checked, warnings = _fast_warnings(problem, formal_order, time_order)
     if checked and key is not None:
         _diskcache.store(_KIND, key, warnings)

@@ -42,7 +42,8 @@ __all__ = ["cache_dir", "fingerprint", "make_key", "load", "store", "flush", "cl
 
 _OFF = ("", "0", "off", "no", "false", "none")
 # Modules whose text decides what an entry holds.
-_SOURCES = ("problem.py", "operators.py", "expr.py", "_fast.py", "derive.py", "_evaluate.py", "_codegen_se.py",
+_SOURCES = ("problem/record.py", "problem/operators.py", "problem/expr.py", "_fast.py", "problem/derive.py",
+            "problem/evaluate.py", "_codegen_se.py",
             "_diskcache.py")
 # Entries kept; older ones (by modification time) are removed when a write finds more.
 MAX_ENTRIES = 256
@@ -68,7 +69,7 @@ def cache_dir():
 def fingerprint():
     """Hash of everything besides the input that an entry depends on."""
     import sympy
-    from . import __version__
+    from mmsverify import __version__
     h = hashlib.sha256()
     h.update(f"mmsverify {__version__}; sympy {sympy.__version__}; python {sys.version_info[:2]}".encode())
     here = Path(__file__).resolve().parent

@@ -29,8 +29,8 @@ from decimal import Decimal, InvalidOperation
 
 import sympy as sp
 
-from . import expr as _expr
-from .errors import ExpressionError
+from mmsverify.problem import expr as _expr
+from mmsverify.errors import ExpressionError
 
 __all__ = ["Unsupported", "SYMPY", "FAST_FUNCTIONS", "FAST_OPERATORS", "fast_engine", "is_fast", "srepr", "canonical"]
 
@@ -43,7 +43,7 @@ class Unsupported(Exception):
 
 
 class _Sympy:
-    """The complete engine: sympy, with the safe parser of :mod:`mmsverify.expr`."""
+    """The complete engine: sympy, with the safe parser of :mod:`mmsverify.problem.expr`."""
 
     name = "sympy"
 

@@ -10,8 +10,8 @@ import time
 import pytest
 
 from mmsverify import Case, derive, plan_grids, run_study
-from mmsverify.cache import LevelCache, solver_identity
-from mmsverify.external import ExternalSolver
+from mmsverify.execute.cache import LevelCache, solver_identity
+from mmsverify.execute.external import ExternalSolver
 
 PROBLEM = "plate-poisson"
 REPO = Path(__file__).resolve().parent.parent
@@ -88,7 +88,7 @@ def test_records_are_written_atomically_and_unreadable_ones_ignored(tmp_path):
 
 def test_records_are_pushed_to_disk_after_they_are_in_place(tmp_path, monkeypatch):
     import threading
-    from mmsverify import cache as cache_mod
+    from mmsverify.execute import cache as cache_mod
     flushed, done = [], threading.Event()
 
     def fake_flush(path):
@@ -105,7 +105,7 @@ def test_records_are_pushed_to_disk_after_they_are_in_place(tmp_path, monkeypatc
 
 def test_one_record_that_cannot_be_flushed_does_not_stop_the_others(tmp_path, monkeypatch):
     import threading
-    from mmsverify import cache as cache_mod
+    from mmsverify.execute import cache as cache_mod
     flushed, done = [], threading.Event()
 
     def flaky_flush(path):
@@ -180,7 +180,7 @@ KILLED_WRITER = """
 import os, signal, sys
 from types import SimpleNamespace
 sys.path[:0] = [{repo!r}]
-import mmsverify.cache as cache
+import mmsverify.execute.cache as cache
 os.replace = lambda *a: os.kill(os.getpid(), signal.SIGKILL)  # killed between the write and the rename
 grid = SimpleNamespace(lower=(0.0,), upper=(1.0,), cells=(4,), t_start=None, t_end=None, steps=None)
 result = SimpleNamespace(grid=grid, level=0, h=0.25, status="ok", errors={{}}, seconds=0.0, n_points=5,

@@ -3,7 +3,7 @@
 import pytest
 
 from mmsverify.errors import ProblemError
-from mmsverify.problem import problem_from_text
+from mmsverify.problem.record import problem_from_text
 
 _HEAD = '[domain]\nx = [0, 1]\n[fields]\nu = "1 + x"\n[bounds]\n'
 
@@ -37,7 +37,7 @@ def test_bad_bounds_name_the_file_line_and_entry(line, message):
 def test_operator_terms_add_up_to_the_residuals(name, transient):
     # the split must lose nothing: sum of terms == residual, symbolically  # common practice
     import sympy as sp
-    from mmsverify.operators import get_operator
+    from mmsverify.problem.operators import get_operator
     op = get_operator(name)
     x, y, t = sp.symbols("x y t")
     X = (x,) if name == "burgers" else (x, y)
@@ -54,9 +54,9 @@ def test_operator_terms_add_up_to_the_residuals(name, transient):
 # -- designs that must be flagged ---------------------------------------------------------
 import numpy as np
 
-from mmsverify.derive import derive
-from mmsverify.design import (admissibility_check, audit, design_warnings, term_sizes, truncation_check)
-from mmsverify.problem import bundled_problems, load_problem
+from mmsverify.problem.derive import derive
+from mmsverify.design.checks import (admissibility_check, audit, design_warnings, term_sizes, truncation_check)
+from mmsverify.problem.record import bundled_problems, load_problem
 
 DATA = __import__("pathlib").Path(__file__).parent / "data"
 
@@ -193,9 +193,9 @@ def test_bundled_problems_pass_every_design_check(name):
 
 def test_roy_subsonic_navier_stokes_design_passes_with_physical_bounds():
     # Roy, Nelson, Smith & Ober 2004, Int. J. Numer. Meth. Fluids 44:599, subsonic case (constants as
-    # bundled in problems/compressible-2d.toml; see its header for their provenance). Subsonic means
+    # bundled in mmsverify/problem/bundled/compressible-2d.toml; see its header for their provenance). Subsonic means
     # Mach < 1 everywhere; density and pressure positive.
-    from mmsverify.problem import PROBLEM_DIR
+    from mmsverify.problem.record import PROBLEM_DIR
     text = (PROBLEM_DIR / "compressible-2d.toml").read_text() + (
         '\n[bounds]\nMach = {expr = "sqrt(u**2 + v**2)/sqrt(gamma*p/rho)", max = 1}\n'
         'T = {expr = "p/(287*rho)", min = 100, max = 600}\n')
@@ -209,8 +209,8 @@ def test_roy_subsonic_navier_stokes_design_passes_with_physical_bounds():
 
 @pytest.mark.parametrize("name", bundled_problems())
 def test_structured_terms_add_up_to_the_derived_sources(name):
-    from mmsverify._designmodel import model_from_problem, sample_points
-    from mmsverify.derive import compile_expression
+    from mmsverify.design.model import model_from_problem, sample_points
+    from mmsverify.problem.derive import compile_expression
     p = load_problem(name)
     m = model_from_problem(p)
     pts = sample_points(m, {1: 9, 2: 5, 3: 3}[p.dim], times=3)
@@ -224,7 +224,7 @@ def test_structured_terms_add_up_to_the_derived_sources(name):
 def test_design_warnings_are_prefixed_and_never_raise(monkeypatch):
     warnings = design_warnings(load_problem(DATA / "quadratic-poisson.toml"))
     assert len(warnings) == 1 and warnings[0].startswith("design: every leading truncation-error derivative")
-    import mmsverify.design as design
+    import mmsverify.design.checks as design
 
     def broken(problem):
         raise RuntimeError("boom")
@@ -240,7 +240,7 @@ def test_audit_text_lists_every_section():
 
 
 # -- balancing ------------------------------------------------------------------------------
-from mmsverify.balance import balance
+from mmsverify.design.balance import balance
 
 
 def _with_constants(text, values):

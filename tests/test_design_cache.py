@@ -5,11 +5,11 @@ from pathlib import Path
 
 import pytest
 
-import mmsverify.design as design
+import mmsverify.design.checks as design
 from mmsverify import _diskcache
 from mmsverify._designcache import _key, cached_design_warnings
 from mmsverify.cli._run import print_design_warnings
-from mmsverify.problem import load_problem, problem_from_text
+from mmsverify.problem.record import load_problem, problem_from_text
 
 DATA = Path(__file__).parent / "data"
 

@@ -14,7 +14,7 @@ import pytest
 import symengine as se
 import sympy as sp
 
-from mmsverify._evaluate import BLOCK, Evaluator, Program, build_program
+from mmsverify.problem.evaluate import BLOCK, Evaluator, Program, build_program
 from mmsverify.errors import ExpressionError
 
 x, y, z, t = (sp.Symbol(n, real=True) for n in "xyzt")
@@ -199,7 +199,7 @@ def test_no_sympy_expression_is_built():
         import numpy as np
         import sympy as sp
         import symengine as se
-        import mmsverify._evaluate as ev
+        import mmsverify.problem.evaluate as ev
         X, Y, T = sp.Symbol("x", real=True), sp.Symbol("y", real=True), sp.Symbol("t", real=True)
         x, y, t = se.symbols("x y t")
         e = (se.sin(se.pi * x) * se.exp(-t) * y**5 / (1 + x**2) + se.sqrt(x * y) - se.Rational(1, 3) / y

@@ -1,4 +1,4 @@
-"""Tests of the safe expression parser (mmsverify.expr)."""
+"""Tests of the safe expression parser (mmsverify.problem.expr)."""
 
 import ast
 import pathlib
@@ -12,14 +12,14 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from sympy.parsing.sympy_parser import parse_expr, standard_transformations
 
-import mmsverify.expr as expr_module
+import mmsverify.problem.expr as expr_module
 from mmsverify.errors import ExpressionError, ProblemError
-from mmsverify.expr import ALLOWED_FUNCTIONS, MAX_EXPONENT, parse_expression
+from mmsverify.problem.expr import ALLOWED_FUNCTIONS, MAX_EXPONENT, parse_expression
 
 x, y, z, t = sympy.symbols("x y z t")
 k, T0 = sympy.symbols("k T0")
 NAMES = {"x": x, "y": y, "z": z, "t": t, "k": k, "T0": T0}
-WHERE = "problems/heat.toml, field 'T'"
+WHERE = "mmsverify/problem/bundled/heat.toml, field 'T'"
 pi, E = sympy.pi, sympy.E
 R = sympy.Rational
 
@@ -44,7 +44,7 @@ def refuse(text, *fragments, names=NAMES, **kw):
 
 # --- typical manufactured solutions; reference: sympy built by hand -----------------------
 
-# Fields of the kind found in problems/*.toml.  reference: sympy
+# Fields of the kind found in mmsverify/problem/bundled/*.toml.  reference: sympy
 FIELDS = [
     ("sin(pi*x)*exp(-t)", sympy.sin(pi * x) * sympy.exp(-t)),
     ("1 + exp(-0.8*t) * sin(1.3*pi*x + 0.4) + 0.2*x*cos(2*t)",
@@ -410,7 +410,7 @@ def test_a_swallowed_time_limit_rings_again_and_cleans_up():
     # common practice: a limit must hold even if code under it swallows the first interruption
     import signal
     import time
-    from mmsverify.expr import _Timeout, _raise_timeout, _time_limit
+    from mmsverify.problem.expr import _Timeout, _raise_timeout, _time_limit
     caught = []
     start = time.monotonic()
     with pytest.raises(_Timeout):
@@ -430,7 +430,7 @@ def test_a_swallowed_time_limit_rings_again_and_cleans_up():
 def test_nested_limits_restore_the_outer_one():
     import signal
     import time
-    from mmsverify.expr import _Timeout, _time_limit
+    from mmsverify.problem.expr import _Timeout, _time_limit
     start = time.monotonic()
     with pytest.raises(_Timeout):
         with _time_limit(0.2):
@@ -448,7 +448,7 @@ def test_text_python_warns_about_gets_only_our_message(entry, says):
     # sequence"); a problem file's author should see the message naming the place, not the compiler's
     # warning ahead of it, also where warnings are errors.
     import warnings
-    from mmsverify.problem import problem_from_text
+    from mmsverify.problem.record import problem_from_text
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         with pytest.raises(ProblemError, match=says):

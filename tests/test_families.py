@@ -3,11 +3,11 @@
 import pytest
 import sympy as sp
 
-from mmsverify.design import audit, truncation_check
+from mmsverify.design.checks import audit, truncation_check
 from mmsverify.errors import ProblemError
-from mmsverify.families import (SCALAR_FAMILIES, divergence, is_divergence_free, scalar_field,
+from mmsverify.design.families import (SCALAR_FAMILIES, divergence, is_divergence_free, scalar_field,
                                 solenoidal_velocity, vector_field)
-from mmsverify.problem import problem_from_text
+from mmsverify.problem.record import problem_from_text
 
 
 @pytest.mark.parametrize("kind", sorted(SCALAR_FAMILIES))
@@ -97,7 +97,7 @@ def test_bad_family_requests_are_refused_clearly(call, message):
 
 def test_bundled_style_divergence_free_flow_file_is_sound_and_has_no_mass_source():
     from pathlib import Path
-    from mmsverify.problem import load_problem
+    from mmsverify.problem.record import load_problem
     p = load_problem(Path(__file__).parent / "data" / "vortex-stream.toml")
     x, y = p.coords
     assert is_divergence_free([p.fields["u"], p.fields["v"]], (x, y)) and p.equations["p"] == 0

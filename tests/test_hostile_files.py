@@ -32,8 +32,8 @@ import pytest
 from mmsverify import Solution, problem_from_text, run_study
 from mmsverify.cli import main
 from mmsverify.errors import MMSError, ProblemError
-from mmsverify.report.files import read_json, study_from_data, study_to_data, write_json
-from mmsverify.report.markdown import markdown_text
+from mmsverify.outputs.studyfile import read_json, study_from_data, study_to_data, write_json
+from mmsverify.render.markdown import markdown_text
 
 REPO = Path(__file__).resolve().parent.parent
 SEED = 20261204
@@ -284,8 +284,8 @@ def test_a_byte_order_mark_is_accepted_in_study_and_problem_files(bases, tmp_pat
     p.write_bytes(b"\xef\xbb\xbf" + json.dumps(bases[0][1]).encode())
     assert read_json(p).problem == "plate-poisson"
     toml = tmp_path / "rod.toml"
-    toml.write_bytes(b"\xef\xbb\xbf" + (REPO / "problems" / "plate-poisson.toml").read_bytes())
-    from mmsverify.problem import load_problem
+    toml.write_bytes(b"\xef\xbb\xbf" + (REPO / "mmsverify" / "problem" / "bundled" / "plate-poisson.toml").read_bytes())
+    from mmsverify.problem.record import load_problem
     assert load_problem(toml).content_hash() == load_problem("plate-poisson").content_hash()
 
 
@@ -302,10 +302,10 @@ paths = {"/dev/zero": "/dev/zero", "pipe": str(d / "pipe"), "socket": str(d / "s
          "folder": str(d / "folder"), "link to /dev/zero": str(d / "link-to-zero")}
 from mmsverify.cli import main
 from mmsverify.errors import MMSError
-from mmsverify.levels import load_levels, load_profile
-from mmsverify.problem import load_problem
-from mmsverify.external import read_solution, read_case
-from mmsverify.report.files import read_json
+from mmsverify.analysis.gridvalues import load_levels, load_profile
+from mmsverify.problem.record import load_problem
+from mmsverify.execute.external import read_solution, read_case
+from mmsverify.outputs.studyfile import read_json
 out = {}
 for kind, p in paths.items():
     for what, fn in (("study JSON", read_json), ("problem file", load_problem), ("level table", load_levels),
@@ -400,7 +400,7 @@ def test_a_solver_that_reads_only_finite_points_still_gets_the_blame_right():
 
 
 def test_solution_info_that_json_cannot_hold_keeps_the_report(tmp_path, capsys):
-    from mmsverify.solvers import resolve_solver
+    from mmsverify.execute.solvers import resolve_solver
     base = resolve_solver("poisson2d")
 
     class Opaque:
@@ -413,7 +413,7 @@ def test_solution_info_that_json_cannot_hold_keeps_the_report(tmp_path, capsys):
         return Solution(values=s.values, points=s.points, weights=s.weights, time=s.time, info=info,
                         quantities=s.quantities)
 
-    result = run_study("plate-poisson", solve, levels=3)
+    result = run_study("plate-poisson", solve, levels=4)
     assert result.orders_confirmed
     info = result.levels[0].info
     assert info["opaque"] == "<Opaque>" and info["array"] == [0, 1, 2] and info["big"] == 2.5
@@ -424,10 +424,10 @@ def test_solution_info_that_json_cannot_hold_keeps_the_report(tmp_path, capsys):
 
 @pytest.mark.parametrize("name", ["plate 𝔘𝔫𝔦𝔠𝔬𝔡𝔢 🜁", 'quote " and back\\slash', "émoji 😀 and ✓"])
 def test_case_files_are_valid_toml_for_any_unicode_name(tmp_path, name):
-    from mmsverify.derive import derive
-    from mmsverify.external import read_case, write_case
-    from mmsverify.grids import Grid
-    from mmsverify.solvers import Case
+    from mmsverify.problem.derive import derive
+    from mmsverify.execute.external import read_case, write_case
+    from mmsverify.execute.grids import Grid
+    from mmsverify.execute.solvers import Case
     problem = problem_from_text(_rod().replace('name = "rod"', f"name = {json.dumps(name, ensure_ascii=False)}"))
     case = Case(Grid(0, (0.0,), (1.0,), (4,)), derive(problem))
     path = write_case(case, tmp_path, tmp_path / "solution.csv", params={"omega": 1.5})
@@ -451,9 +451,9 @@ def test_markdown_escapes_names_and_messages(bases):
 
 def test_duplicated_csv_columns_are_refused(tmp_path):
     from mmsverify.errors import AnalysisError
-    from mmsverify.external import ProgramFailed, read_solution
-    from mmsverify.levels import load_levels, load_profile
-    from mmsverify.problem import load_problem
+    from mmsverify.execute.external import ProgramFailed, read_solution
+    from mmsverify.analysis.gridvalues import load_levels, load_profile
+    from mmsverify.problem.record import load_problem
     (tmp_path / "t.csv").write_text("dim = 2\ncells, lift, lift\n100, 1.0, 2.0\n400, 1.1, 2.1\n")
     with pytest.raises(AnalysisError, match=r"t.csv, line 2: column names repeat: lift"):
         load_levels(tmp_path / "t.csv")

@@ -1,7 +1,7 @@
 """Hostile problem files: mutated, random, malicious and explosive inputs.
 
 Problem files are shared between people, so every file, however broken,
-must end in a :class:`~mmsverify.problem.Problem` or a clear
+must end in a :class:`~mmsverify.problem.record.Problem` or a clear
 :class:`~mmsverify.errors.MMSError` naming the file, within a time limit,
 and nothing in it may ever run as code.
 
@@ -29,10 +29,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-import mmsverify.problem as problem_module
+import mmsverify.problem.record as problem_module
 from mmsverify import derive, plan_grids
 from mmsverify.errors import MMSError, ProblemError
-from mmsverify.problem import Problem, load_problem, problem_from_text
+from mmsverify.problem.record import Problem, load_problem, problem_from_text
 
 REPO = Path(__file__).resolve().parent.parent
 SEED = 20240817
@@ -40,7 +40,7 @@ N_FILES = 1200          # generated files per run (the issue asks for at least 1
 PER_FILE_SECONDS = 2.0  # wall time allowed per file: load, plan and one evaluation
 LOAD_BUDGET = 1.0       # problem.MAX_LOAD_SECONDS during the run, so bombs stop quickly
 
-BASES = sorted([*(REPO / "problems").glob("*.toml"), *(REPO / "tests" / "data").glob("*.toml")])
+BASES = sorted([*(REPO / "mmsverify" / "problem" / "bundled").glob("*.toml"), *(REPO / "tests" / "data").glob("*.toml")])
 # Loading the compressible problems takes up to a second each; mutate them less often.
 _HEAVY = ("compressible",)
 
@@ -582,7 +582,7 @@ def test_names_and_descriptions_hold_no_control_characters(hostile_env, key, val
 @pytest.mark.parametrize("key, value", INJECTIONS)
 def test_names_and_descriptions_stay_inert_in_exported_code(hostile_env, key, value):
     import ast
-    from mmsverify.export import write_export
+    from mmsverify.outputs.export import write_export
     text = f"{key} = {_toml_str(value)}\n[domain]\nx = [0, 1]\n[fields]\nu = \"sin(x)\"\n"
     problem = problem_from_text(text, "inject.toml")
     assert getattr(problem, key) == value

@@ -23,7 +23,7 @@ import time
 import pytest
 
 from mmsverify import run_study
-from mmsverify.report.files import read_json
+from mmsverify.outputs.studyfile import read_json
 
 REPO = Path(__file__).resolve().parent.parent
 PROBLEM, LEVELS, BASE = "plate-poisson", 4, 4
@@ -101,7 +101,7 @@ def _scenario(tmp_path, seed, workers):
             err = None
         redone += [(run, level) for level in _started(log, run) if level in finished]
         if err is not None:
-            assert proc.returncode in (0, 1), err.decode()[-2000:]
+            assert proc.returncode in (0, 1, 3), err.decode()[-2000:]  # a finished study: any verdict
             break
     else:
         pytest.fail(f"no run finished in {MAX_RUNS} attempts")

@@ -12,7 +12,7 @@ import sys
 import pytest
 import sympy as sp
 
-from mmsverify.problem import load_problem
+from mmsverify.problem.record import load_problem
 
 
 def _warm(tmp_path, monkeypatch, name="plate-poisson"):
@@ -80,7 +80,7 @@ def test_warm_study_never_builds_sympy_expressions(tmp_path):
     script = (
         "import sys\n"
         "from mmsverify import run_study\n"
-        "from mmsverify.problem import Problem\n"
+        "from mmsverify.problem.record import Problem\n"
         "built = []\n"
         "orig = Problem.__getattr__\n"
         "def spy(self, name):\n"
@@ -88,7 +88,7 @@ def test_warm_study_never_builds_sympy_expressions(tmp_path):
         "        built.append(name)\n"
         "    return orig(self, name)\n"
         "Problem.__getattr__ = spy\n"
-        "r = run_study('plate-poisson', 'poisson2d', levels=3, base_cells=8)\n"
+        "r = run_study('plate-poisson', 'poisson2d', levels=4, base_cells=8)\n"
         "print(r.passed, built, 'sympy.tensor.tensor' in sys.modules)\n")
     env = {"MMSVERIFY_CACHE": str(tmp_path / "cache"), "PATH": "/usr/bin:/bin"}
     import os

@@ -24,8 +24,8 @@ import pytest
 import sympy as sp
 
 from mmsverify import _diskcache, derive, load_problem, problem_from_text
-from mmsverify._evaluate import BLOCK, Evaluator, build_program
-from mmsverify.derive import _Programs
+from mmsverify.problem.evaluate import BLOCK, Evaluator, build_program
+from mmsverify.problem.derive import _Programs
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -312,7 +312,7 @@ def test_compressible_traction_is_the_viscous_stress():
 # -- derivation cache -------------------------------------------------------
 
 def _count_reads(monkeypatch):
-    from mmsverify import problem as problem_module
+    from mmsverify.problem import record as problem_module
     calls = []
     original = problem_module._Reader.read
 
@@ -326,7 +326,7 @@ def _count_reads(monkeypatch):
 
 def test_cache_hit_returns_an_equal_problem_without_deriving(private_cache, monkeypatch):
     calls = _count_reads(monkeypatch)
-    text = (ROOT / "problems" / "compressible-2d.toml").read_text()
+    text = (ROOT / "mmsverify" / "problem" / "bundled" / "compressible-2d.toml").read_text()
     first = problem_from_text(text, "a/compressible-2d.toml")
     second = problem_from_text(text, "a/compressible-2d.toml")
     assert calls == ["a/compressible-2d.toml"]
@@ -342,7 +342,7 @@ def test_cache_hit_returns_an_equal_problem_without_deriving(private_cache, monk
 
 def test_corrupt_or_truncated_entry_is_rebuilt(private_cache, monkeypatch):
     calls = _count_reads(monkeypatch)
-    text = (ROOT / "problems" / "cavity-flow.toml").read_text()
+    text = (ROOT / "mmsverify" / "problem" / "bundled" / "cavity-flow.toml").read_text()
     good = problem_from_text(text)
     _diskcache.flush()
     (entry,) = private_cache.glob("problem-*.pkl")
@@ -359,7 +359,7 @@ def test_corrupt_or_truncated_entry_is_rebuilt(private_cache, monkeypatch):
 def test_cache_can_be_switched_off(tmp_path, monkeypatch):
     monkeypatch.setenv("MMSVERIFY_CACHE", "off")
     calls = _count_reads(monkeypatch)
-    text = (ROOT / "problems" / "cavity-flow.toml").read_text()
+    text = (ROOT / "mmsverify" / "problem" / "bundled" / "cavity-flow.toml").read_text()
     assert problem_from_text(text).content_hash() == problem_from_text(text).content_hash()
     assert len(calls) == 2
     assert _diskcache.cache_dir() is None and _diskcache.clear() == 0
@@ -373,12 +373,12 @@ def test_generated_programs_come_back_from_disk(private_cache, monkeypatch):
 
     def no_building(*args):
         raise AssertionError("program rebuilt although it is cached")
-    monkeypatch.setattr(sys.modules["mmsverify.derive"], "build_program", no_building)
+    monkeypatch.setattr(sys.modules["mmsverify.problem.derive"], "build_program", no_building)
     assert float(derive("compressible-2d").source("p", 0.3, 0.4)) == float(before)
 
 
 def test_entries_of_other_users_or_writable_by_others_are_ignored(private_cache):
-    problem_from_text((ROOT / "problems" / "cavity-flow.toml").read_text())
+    problem_from_text((ROOT / "mmsverify" / "problem" / "bundled" / "cavity-flow.toml").read_text())
     _diskcache.flush()
     (entry,) = private_cache.glob("problem-*.pkl")
     key = entry.stem.split("-", 1)[1]

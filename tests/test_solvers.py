@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from mmsverify import Solution, SolverError, problem_from_text
-from mmsverify.solvers import check_solution
+from mmsverify.execute.solvers import check_solution
 
 PROBLEM = problem_from_text('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "x*y"')
 X = np.linspace(0.0, 1.0, 5)[:, None]

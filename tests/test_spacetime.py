@@ -6,7 +6,7 @@ import scipy.sparse as sps
 import scipy.sparse.linalg as spla
 
 from mmsverify import GridError, Solution
-from mmsverify.spacetime import run_space_time
+from mmsverify.study.spacetime import run_space_time
 
 
 def theta_heat(theta):

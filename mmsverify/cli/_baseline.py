@@ -2,11 +2,11 @@
 
 import sys
 
-from ..baseline import DEFAULT_ERROR_FACTOR, check_baseline, load_baseline, save_baseline
-from ..norms import NORMS
-from ..progress import NORMAL, QUIET, VERBOSE, progress_for, verbosity
-from . import EXIT_FAIL, EXIT_INPUT, EXIT_OK, comma_choices
-from ._run import add_study_options, study_from_args
+from mmsverify.outputs.baseline import DEFAULT_ERROR_FACTOR, check_baseline, load_baseline, save_baseline
+from mmsverify.execute.norms import NORMS
+from mmsverify.cli.progress import NORMAL, QUIET, VERBOSE, progress_for, verbosity
+from mmsverify.cli import EXIT_FAIL, EXIT_INPUT, EXIT_OK, comma_choices
+from mmsverify.cli._run import add_study_options, study_from_args
 
 
 def _save(args):

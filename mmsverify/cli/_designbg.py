@@ -1,6 +1,6 @@
 """Design warnings of ``run``, worked out beside the study the first time.
 
-The design checks (:mod:`mmsverify.design`) of a problem content never seen
+The design checks (:mod:`mmsverify.design.checks`) of a problem content never seen
 on this machine take about 0.1 s of sympy work, a few percent of a short
 study, and are then cached. Seen before, their warnings are printed at
 once, ahead of the study, as always. Not seen before, they are worked out
@@ -70,7 +70,7 @@ class _Pending:
         try:
             kind, value = pickle.loads(b"".join(chunks))
         except Exception:  # the child died before it wrote: do the work here
-            from .._designcache import cached_design_warnings
+            from mmsverify._designcache import cached_design_warnings
             kind, value = "ok", cached_design_warnings(self.problem, **self.kw)
         if kind != "ok":    # an interruption of the study reached the child too: nothing to add
             value = [] if value == "KeyboardInterrupt" else [f"the design checks could not run: {value}"]
@@ -87,12 +87,12 @@ def _child(problem, kw, fd):
         pass
     try:
         warnings.simplefilter("ignore")
-        from .._designcache import cached_design_warnings
+        from mmsverify._designcache import cached_design_warnings
         result = ("ok", cached_design_warnings(problem, **kw))
     except BaseException as exc:  # noqa: BLE001  (reported by the parent)
         result = ("error", str(exc) or type(exc).__name__)
     try:
-        from .. import _diskcache
+        from mmsverify import _diskcache
         _diskcache.flush()       # the warnings' cache entry, before an exit that runs no exit handlers
         data = pickle.dumps(result)
         while data:
@@ -117,8 +117,8 @@ def start_design_warnings(args, problem=None):
 
     Returns None, or a pending object whose ``poll()`` and ``finish()`` print them.
     """
-    from .._designcache import cached_design_warnings, cached_only
-    from ..problem import get_problem
+    from mmsverify._designcache import cached_design_warnings, cached_only
+    from mmsverify.problem.record import get_problem
     problem, kw = get_problem(args.problem if problem is None else problem), _orders(args)
     hit = cached_only(problem, **kw)
     if hit is not None:

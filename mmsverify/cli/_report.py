@@ -3,12 +3,12 @@
 import sys
 from pathlib import Path
 
-from ..errors import MMSError
-from ..progress import QUIET, progress_for, verbosity
-from ..report import FORMATS, write_reports
-from ..report._common import headline, outcome
-from . import EXIT_INPUT, comma_choices
-from ._run import add_study_options, exit_code, study_from_args
+from mmsverify.errors import MMSError
+from mmsverify.cli.progress import QUIET, progress_for, verbosity
+from mmsverify.outputs.reports import FORMATS, write_reports
+from mmsverify.render.wording import headline
+from mmsverify.cli import EXIT_INPUT, comma_choices
+from mmsverify.cli._run import add_study_options, exit_code, study_from_args
 
 
 def _formats(text):
@@ -25,7 +25,7 @@ def _report(args):
         if args.problem or args.solver:
             print("mmsverify report: give either --from FILE or PROBLEM SOLVER, not both", file=sys.stderr)
             return EXIT_INPUT
-        from ..report.files import read_json
+        from mmsverify.outputs.studyfile import read_json
         result = read_json(args.source)
         want_map = args.map
     else:
@@ -37,7 +37,7 @@ def _report(args):
         want_map = not args.no_map
     pointwise = None
     if want_map and {"md", "html"} & set(formats):
-        from ..report.pointwise import finest_error
+        from mmsverify.render.pointwise import finest_error
         try:
             if args.source:
                 _recorded_solver_is_bundled(result, args.source)
@@ -47,7 +47,7 @@ def _report(args):
     output = args.output or (Path(args.source).parent if args.source else _DEFAULT_OUTPUT)
     written = write_reports(result, output, formats, pointwise, stem=args.name)
     if verbosity(args) == QUIET:
-        print(f"{outcome(result).upper()}: {headline(result)}")
+        print(f"{result.outcome.upper()}: {headline(result)}")
     else:
         print(result)
         print()
@@ -58,11 +58,12 @@ def _report(args):
 
 
 def _recorded_solver_is_bundled(result, source):
-    """A study file never chooses code to import: the error map reruns only a solver mmsverify ships."""
-    from ..solvers import BUNDLED_SOLVERS
-    if result.solver not in BUNDLED_SOLVERS:
-        raise MMSError(f"{source}: the study names the solver {result.solver!r}, which is not bundled with "
-                       "mmsverify, and a study file never chooses code to import; draw the map with "
+    """A study file never chooses code to import: the error map reruns only a solver registered by name by an
+    installed package."""
+    from mmsverify.execute.solvers import registered_solvers
+    if result.solver not in registered_solvers():
+        raise MMSError(f"{source}: the study names the solver {result.solver!r}, which no installed package "
+                       "registers by name, and a study file never chooses code to import; draw the map with "
                        "`mmsverify report PROBLEM SOLVER`, naming the solver yourself")
 
 

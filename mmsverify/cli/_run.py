@@ -5,11 +5,11 @@ import shlex
 import sys
 from pathlib import Path
 
-from ..errors import SolverError
-from ..external import OUTPUT_FORMATS, ExternalSolver
-from ..solvers import resolve_solver
-from ..study import MODES, run_study
-from . import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_INPUT, EXIT_OK
+from mmsverify.errors import SolverError
+from mmsverify.execute.external import OUTPUT_FORMATS, ExternalSolver
+from mmsverify.execute.solvers import resolve_solver
+from mmsverify.study.refinement import MODES, run_study
+from mmsverify.cli import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_INPUT, EXIT_OK
 
 
 def add_study_options(p):
@@ -19,7 +19,8 @@ def add_study_options(p):
     p.add_argument("--mode", choices=MODES, default="combined",
                    help="transient problems: refine space and time together, space only, or time only")
     p.add_argument("--base-steps", type=int, help="time steps on the coarsest level (transient problems)")
-    p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order (default: problem's)")
+    p.add_argument("--tolerance", type=float,
+                   help="allowed |observed - formal| order, below half the formal order (default: problem's)")
     p.add_argument("--formal-order", type=float, help="override the formal order (default: the solver's stated "
                                                       "order, else the problem's)")
     p.add_argument("--norms", metavar="LIST",
@@ -58,10 +59,9 @@ def add_execution_options(p):
 
 def exit_code(result):
     """0 confirmed, 1 an order missed, 3 inconclusive; 2 when no level ran (a set-up the solver refuses)."""
-    from ..report._common import outcome
     if result.levels and not any(lv.ok for lv in result.levels):
         return EXIT_INPUT
-    return {"pass": EXIT_OK, "fail": EXIT_FAIL}.get(outcome(result), EXIT_INCONCLUSIVE)
+    return {"pass": EXIT_OK, "fail": EXIT_FAIL}.get(result.outcome, EXIT_INCONCLUSIVE)
 
 
 def _param(text):
@@ -78,11 +78,11 @@ def _param(text):
 
 
 def _norm_list(text):
-    from ..errors import AnalysisError
-    from ..norms import NORMS
-    from . import comma_choices
+    from mmsverify.errors import AnalysisError
+    from mmsverify.execute.norms import NORMS
+    from mmsverify.cli import comma_choices
     if not text:
-        return None     # the solver's stated norms, else all (see mmsverify.study.judged_norms)
+        return None     # the solver's stated norms, else all (see mmsverify.study.refinement.judged_norms)
     try:
         return comma_choices(text, NORMS, "norm")
     except ValueError as exc:
@@ -158,8 +158,8 @@ def _run(args):
     if args.solver is not None and args.external:
         print("mmsverify run: give either a solver or --external, not both", file=sys.stderr)
         return 2
-    from ..problem import get_problem
-    from ..progress import progress_for
+    from mmsverify.problem.record import get_problem
+    from mmsverify.cli.progress import progress_for
     quiet = getattr(args, "quiet", False)
     problem = get_problem(args.problem)  # read once: the design checks and the study share it
     settle(args)
@@ -178,7 +178,7 @@ def _run(args):
     if args.target_error is not None and not quiet:
         print_plans(result, args.target_error)
     if args.json:
-        from ..report.files import write_json
+        from mmsverify.outputs.studyfile import write_json
         write_json(result, args.json)
         if not quiet:
             print(f"\nwrote {args.json}")
@@ -187,8 +187,8 @@ def _run(args):
 
 def print_plans(result, target):
     """Predicted grid and run time to reach ``target`` in the L2 norm, per field."""
-    from ..errors import AnalysisError
-    from ..estimate import plan
+    from mmsverify.errors import AnalysisError
+    from mmsverify.analysis.estimate import plan
     for f in result.fields:
         ok = [lv for lv in result.levels if lv.ok and f in lv.errors]
         print(f"\nplan for field {f}: L2 error {target:g}")
@@ -209,7 +209,7 @@ def print_design_warnings(args, problem=None):
     are printed at once; otherwise they are worked out beside the study and
     the pending work is returned (None when printed already).
     """
-    from ._designbg import start_design_warnings
+    from mmsverify.cli._designbg import start_design_warnings
     return start_design_warnings(args, problem)
 
 

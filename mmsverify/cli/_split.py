@@ -1,11 +1,11 @@
 """``mmsverify split PROBLEM SOLVER``: space and time orders of a transient solver, separately."""
 
-from ..spacetime import run_space_time
-from . import EXIT_FAIL, EXIT_OK
+from mmsverify.study.spacetime import run_space_time
+from mmsverify.cli import EXIT_FAIL, EXIT_OK
 
 
 def _split(args):
-    from ..progress import progress_for
+    from mmsverify.cli.progress import progress_for
     levels = args.levels or 4
     shown = []
 
