@@ -744,8 +744,8 @@ def _check_differentiable(reader, section, key, expr, what):
         name = type(e).__name__
         if name in _NOT_DIFFERENTIABLE:
             reader.fail(section, key, f"{what} needs a derivative that does not exist everywhere ({name} "
-                                      "appears): abs, min, max, sign and floor have kinks or jumps; manufactured "
-                                      "fields must be smooth in the box, e.g. sqrt((x - 0.5)**2 + 0.01) rather "
+                                      "appears): abs, min, max and sign have kinks or jumps; manufactured fields "
+                                      "must be smooth in the box, e.g. sqrt((x - 0.5)**2 + 0.01) rather "
                                       "than abs(x - 0.5)")
         stack.extend(e.args)
 
