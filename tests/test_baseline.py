@@ -47,7 +47,7 @@ def test_cli_check_passes_on_correct_solver_and_catches_seeded_mistake(tmp_path,
 def test_cli_check_reports_bad_input(tmp_path, capsys):
     assert main(["baseline", "check", str(tmp_path / "missing.json")]) == 2
     assert "no such baseline file" in capsys.readouterr().err
-    (tmp_path / "study.json").write_text('{"format": "mmsverify.study.refinement"}')
+    (tmp_path / "study.json").write_text('{"format": "mmsverify.study"}')
     assert main(["baseline", "check", str(tmp_path / "study.json")]) == 2
     assert "not an mmsverify baseline" in capsys.readouterr().err
 

@@ -29,6 +29,10 @@ from mmsverify.study.settings import Refinement
 DOCS = Path(__file__).resolve().parents[1] / "docs"
 
 
+# Markdown shows names and messages as written: its markup characters are escaped with a backslash
+MD_ESCAPES = {ord(c): "\\" + c for c in "\\`*_[]<>|~&"}
+
+
 @pytest.fixture(scope="module")
 def good():
     return run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=4))
@@ -306,7 +310,7 @@ def test_notes_reach_every_format_and_survive_json(good, tmp_path):
     md, page = markdown_text(r), html_text(r, figures=False)
     for n in r.notes:
         assert f"  note: {n}" in format_study(r).splitlines()
-        assert f"- Note: {n}" in md.splitlines()
+        assert f"- Note: {n.translate(MD_ESCAPES)}" in md.splitlines()
         assert f"<li>Note: {n.replace(chr(39), '&#x27;')}</li>" in page
     # notes come with the verdict, ahead of the evidence
     assert md.index("- Note:") < md.index("## Evidence") and page.index('id="notes"') < page.index('id="evidence"')
@@ -348,7 +352,7 @@ def _without_quantity_on(result, name, level):
 def test_markdown_and_html_have_a_table_per_quantity(good):
     md, page = markdown_text(good), html_text(good, figures=False)
     for q in ("deflection", "edge_slope"):
-        section = md[md.index(f"### Quantity {q}"):]
+        section = md[md.index(f"### Quantity {q.translate(MD_ESCAPES)}"):]
         lines = section.splitlines()
         assert lines[2] == "| Level | Grid | h | Value | Exact | Error | Order | Run time (s) |"
         orders = good.quantity_orders(q)
@@ -368,7 +372,7 @@ def test_markdown_and_html_have_a_table_per_quantity(good):
     assert md.index("### Field u") < md.index("### Quantity deflection") < md.index("## Cautions")
     # a level whose solver left the quantity out says so instead of showing numbers
     gap = _without_quantity_on(good, "edge_slope", 1)
-    row = markdown_text(gap).split("### Quantity edge_slope")[1].splitlines()[5]
+    row = markdown_text(gap).split("### Quantity edge\\_slope")[1].splitlines()[5]
     assert row.startswith("| 1 | 16x16 cells |") and "not reported" in row
     assert "<td class=num>not reported</td>" in html_text(gap, figures=False)
 

@@ -36,7 +36,8 @@ import numpy as np
 
 from mmsverify.analysis.celik import representative_h
 from mmsverify.analysis.text import fmt_num, fmt_table
-from mmsverify.errors import AnalysisError
+from mmsverify.errors import AnalysisError, MMSError
+from mmsverify.fileio import read_text
 
 __all__ = ["load_levels", "LevelTable", "load_profile"]
 
@@ -94,13 +95,21 @@ class LevelTable:
         return f"{self.path}: {len(self.h)} levels, coarse to fine{note}\n" + fmt_table(head + self.names, rows)
 
 
-def _read_text(path, what):
-    """The text of a file; an unreadable one raises an AnalysisError naming it as ``what``."""
+def _read_text(path, what, max_bytes):
+    """The text of a regular file (a device or pipe is refused before it is opened, see
+    :mod:`mmsverify.fileio`); an unreadable one raises an AnalysisError naming it as ``what``."""
     try:
-        with open(path, encoding="utf-8") as fh:
-            return fh.read()
-    except OSError as exc:
-        raise AnalysisError(f"cannot read {what} {path}: {exc.strerror or exc}") from None
+        return read_text(path, what, max_bytes)
+    except MMSError as exc:
+        raise AnalysisError(f"cannot read {what} {exc}") from None
+
+
+def _check_unique(path, lineno, names):
+    """Every column named once: with a name given twice, which column is meant is a guess."""
+    repeated = sorted({n for n in names if names.count(n) > 1})
+    if repeated:
+        raise AnalysisError(f"{path}, line {lineno}: column names repeat: {', '.join(repeated)}; name each "
+                            "column once")
 
 
 def _csv_lines(text):
@@ -150,9 +159,7 @@ def _read_csv(path, text):
             names = fields[1:]
             if not names or any(not nm for nm in names):
                 raise AnalysisError(f"{path}, line {lineno}: the header needs a name for every quantity column")
-            dup = {nm for nm in names if names.count(nm) > 1}
-            if dup:
-                raise AnalysisError(f"{path}, line {lineno}: quantity names repeat: {', '.join(sorted(dup))}")
+            _check_unique(path, lineno, fields)
             continue
         _check_width(path, lineno, fields, header, header_line)
         nums = []
@@ -248,7 +255,7 @@ def load_levels(path, dim=None):
     (('lift',), (5.863, 5.972, 6.063))
     """
     path = os.fspath(path)
-    text = _read_text(path, "level table")
+    text = _read_text(path, "level table", 1 << 24)
     reader = _read_toml if path.lower().endswith(".toml") else _read_csv
     settings, size_col, names, lines, rows = reader(path, text)
     if dim is not None:
@@ -311,11 +318,12 @@ def load_profile(path, column=None):
     (array([0. , 0.5, 1. ]), array([1. , 1.5, 2. ]))
     """
     path = os.fspath(path)
-    text = _read_text(path, "profile")
+    text = _read_text(path, "profile", 1 << 30)
     header, rows = None, []
     for lineno, line, fields in _csv_lines(text):
         if header is None:
             header, header_line = fields, lineno
+            _check_unique(path, lineno, fields)
             continue
         _check_width(path, lineno, fields, header, header_line)
         try:

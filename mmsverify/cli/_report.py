@@ -39,6 +39,8 @@ def _report(args):
     if want_map and {"md", "html"} & set(formats):
         from mmsverify.render.pointwise import finest_error
         try:
+            if args.source:
+                _recorded_solver_is_bundled(result, args.source)
             pointwise = finest_error(result, solver=args.solver or None, problem=args.problem or None)
         except MMSError as exc:  # the reports are still worth writing without the map
             print(f"mmsverify report: no error map: {exc}", file=sys.stderr)
@@ -53,6 +55,16 @@ def _report(args):
         for path in written.values():
             print(f"wrote {path}")
     return exit_code(result)
+
+
+def _recorded_solver_is_bundled(result, source):
+    """A study file never chooses code to import: the error map reruns only a solver registered by name by an
+    installed package."""
+    from mmsverify.execute.solvers import registered_solvers
+    if result.solver not in registered_solvers():
+        raise MMSError(f"{source}: the study names the solver {result.solver!r}, which no installed package "
+                       "registers by name, and a study file never chooses code to import; draw the map with "
+                       "`mmsverify report PROBLEM SOLVER`, naming the solver yourself")
 
 
 #: Folder for the files of a study run by the command (a study read with --from is written beside its JSON).

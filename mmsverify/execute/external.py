@@ -47,8 +47,9 @@ import zipfile
 
 import numpy as np
 
-from mmsverify.errors import SolverError
+from mmsverify.errors import MMSError, SolverError
 from mmsverify.execute.meshfiles import MESH_FORMATS, read_mesh_columns
+from mmsverify.fileio import read_text, regular_file
 from mmsverify.problem.record import SIDES
 from mmsverify.execute.solvers import Solution
 
@@ -109,10 +110,27 @@ def _toml_value(v, where):
         v = float(v)
         return "nan" if math.isnan(v) else ("inf" if v > 0 else "-inf") if math.isinf(v) else repr(v)
     if isinstance(v, str):
-        return json.dumps(v)
+        return _toml_string(v, where)
     if isinstance(v, (list, tuple)):
         return "[" + ", ".join(_toml_value(e, where) for e in v) + "]"
     raise SolverError(f"{where}: case-file values are numbers, text, booleans or lists of them; got {v!r}")
+
+
+def _toml_string(text, where):
+    """A TOML basic string: characters outside the Basic Multilingual Plane written as they are (JSON's
+    surrogate-pair escapes are not valid TOML), quotes, backslashes and control characters escaped."""
+    if any("\ud800" <= c <= "\udfff" for c in text):
+        raise SolverError(f"{where}: the text {text!r} holds a lone surrogate, which no UTF-8 file can hold")
+    return '"' + "".join(_TOML_ESCAPES.get(c) or (f"\\u{ord(c):04x}" if c < " " or c == "\x7f" else c)
+                         for c in text) + '"'
+
+
+_TOML_ESCAPES = {'"': '\\"', "\\": "\\\\", "\b": "\\b", "\t": "\\t", "\n": "\\n", "\f": "\\f", "\r": "\\r"}
+
+
+def _toml_key(key, where):
+    """A bare key when TOML allows one, else a quoted key (a field named in letters beyond ASCII)."""
+    return key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else _toml_string(key, where)
 
 
 def write_case(case, directory, output, *, fmt="toml", params=None):
@@ -155,7 +173,7 @@ def write_case(case, directory, output, *, fmt="toml", params=None):
                  "# Solve the problem on this grid and write the solution to `output`."]
         for k, v in data.items():
             if isinstance(v, dict):
-                lines += [f"{k}.{sub} = {_toml_value(sv, where)}" for sub, sv in v.items()]
+                lines += [f"{k}.{_toml_key(sub, where)} = {_toml_value(sv, where)}" for sub, sv in v.items()]
             else:
                 lines.append(f"{k} = {_toml_value(v, where)}")
         path, text = directory / "case.toml", "\n".join(lines) + "\n"
@@ -171,7 +189,7 @@ def write_case(case, directory, output, *, fmt="toml", params=None):
 def read_case(path):
     """Read a case file (TOML or JSON by suffix) into a dict; for programs written in Python."""
     path = Path(path)
-    text = path.read_text(encoding="utf-8")
+    text = read_text(path, "case file", 1 << 24)
     if path.suffix == ".json":
         return json.loads(text)
     import tomllib
@@ -345,8 +363,20 @@ def _too_big(size, limit, path):
                                           "write fewer points or raise max_bytes")
 
 
+def _regular_file(path, limit):
+    """Refuse a device, pipe, socket or folder before it is opened, and a file over ``limit`` bytes."""
+    try:
+        size = regular_file(path, "solution file").st_size
+    except MMSError as exc:
+        raise ProgramFailed("bad output", str(exc)) from None
+    _too_big(size, limit, path)
+
+
 def _read_csv(path):
-    text = path.read_text(encoding="utf-8")
+    try:
+        text = read_text(path, "solution file", 1 << 40)  # the size was checked by read_solution
+    except MMSError as exc:
+        raise ProgramFailed("bad output", str(exc)) from None
     lines = text.splitlines()
     head = next((i for i, line in enumerate(lines) if line.strip() and not line.lstrip().startswith("#")), None)
     if head is None:
@@ -356,6 +386,10 @@ def _read_csv(path):
     if any(not _KEY.fullmatch(n) for n in names):
         raise ProgramFailed("bad output", f"{path}: the first line must name the columns, e.g. 'x,y,volume,u'; "
                                           f"got {lines[head][:80]!r}")
+    repeated = sorted({n for n in names if names.count(n) > 1})
+    if repeated:
+        raise ProgramFailed("bad output", f"{path}: the header names the column(s) {', '.join(repeated)} more "
+                                          "than once; name each column once")
     body = "\n".join(lines[head + 1:])
     if not any(ln.strip() and not ln.lstrip().startswith("#") for ln in lines[head + 1:]):  # loadtxt would warn
         raise ProgramFailed("bad output", f"{path} has a header but no rows")
@@ -426,7 +460,7 @@ def read_solution(path, problem, fmt=None, *, max_bytes=1 << 30):
     fmt = fmt or path.suffix.lstrip(".")
     if fmt not in OUTPUT_FORMATS:
         raise SolverError(f"unknown solution format {fmt!r}; use one of {', '.join(OUTPUT_FORMATS)}")
-    _too_big(path.stat().st_size, max_bytes, path)
+    _regular_file(path, max_bytes)
     try:
         if fmt in MESH_FORMATS:
             cols = _read_mesh(path, problem)

@@ -24,7 +24,11 @@ import numpy as np
 
 from mmsverify.errors import SolverError
 
-__all__ = ["Case", "Solution", "resolve_solver", "check_solution", "registered_solvers", "SOLVER_GROUP", "solver_name"]
+__all__ = ["Case", "Solution", "resolve_solver", "check_solution", "registered_solvers", "SOLVER_GROUP", "solver_name", "plain_info"]
+
+#: Key of :func:`plain_info`'s note listing the entries kept as their ``repr``.
+INFO_NOTE = "mmsverify_note"
+_INFO_DEPTH, _INFO_ITEMS, _INFO_TEXT = 8, 10_000, 10_000
 
 
 @dataclass(frozen=True)
@@ -86,6 +90,49 @@ class Solution:
     h: float = None
     unknowns: int = None
     mesh: str = ""
+
+
+def plain_info(info):
+    """``Solution.info`` as data that JSON holds, so that a study's files are written whatever a solver reports.
+
+    Text, booleans, ``None``, whole and floating-point numbers (NumPy scalars
+    as Python ones, non-finite ones kept for the checks and written as
+    ``null``), lists and string-keyed dicts pass; small arrays become lists.
+    Anything else, and containers nested deeper than 8 levels or with more
+    than 10 000 items, is kept as its ``repr`` (at most 10 000 characters),
+    and the key ``mmsverify_note`` says which entries were.
+
+    >>> plain_info({"iterations": 12, "solver": object.__new__(type("Krylov", (), {"__repr__": lambda s: "K"}))})
+    {'iterations': 12, 'solver': 'K', 'mmsverify_note': 'kept as text (repr), JSON cannot hold them: solver'}
+    """
+    if not isinstance(info, dict):
+        return {}
+    as_text = []
+
+    def plain(x, where, depth):
+        if x is None or isinstance(x, (bool, int, float)) and type(x) in (bool, int, float):
+            return x
+        if isinstance(x, str):
+            return x if len(x) <= _INFO_TEXT else x[:_INFO_TEXT] + " [...]"
+        if isinstance(x, np.generic) and x.dtype.kind in "biuf":
+            return x.item()
+        if isinstance(x, np.ndarray) and x.dtype.kind in "biuf" and x.size <= _INFO_ITEMS:
+            x = x.tolist()
+        if depth < _INFO_DEPTH and isinstance(x, (list, tuple)) and len(x) <= _INFO_ITEMS:
+            return [plain(v, f"{where}[{i}]", depth + 1) for i, v in enumerate(x)]
+        if depth < _INFO_DEPTH and isinstance(x, dict) and len(x) <= _INFO_ITEMS:
+            return {str(k): plain(v, f"{where}.{k}", depth + 1) for k, v in x.items()}
+        as_text.append(where)
+        try:
+            text = repr(x)
+        except Exception as exc:  # a repr that raises is the solver's bug, not a reason to lose the study
+            text = f"<{type(x).__name__} whose repr raised {type(exc).__name__}>"
+        return text if len(text) <= _INFO_TEXT else text[:_INFO_TEXT] + " [...]"
+
+    out = {str(k): plain(v, str(k), 1) for k, v in info.items()}
+    if as_text:
+        out[INFO_NOTE] = "kept as text (repr), JSON cannot hold them: " + ", ".join(as_text[:20])
+    return out
 
 
 #: Entry-point group in which packages register solvers by name ("module:attribute").

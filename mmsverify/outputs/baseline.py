@@ -38,7 +38,7 @@ from mmsverify.problem.record import PROBLEM_DIR
 __all__ = ["FORMAT", "FORMAT_VERSION", "DEFAULT_ERROR_FACTOR", "Baseline", "Finding", "BaselineCheck",
            "baseline_from_study", "save_baseline", "load_baseline", "compare", "check_baseline"]
 
-FORMAT = "mmsverify.outputs.baseline"
+FORMAT = "mmsverify.baseline"
 FORMAT_VERSION = 1
 
 _log = logging.getLogger(__name__)

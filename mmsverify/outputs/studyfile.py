@@ -17,8 +17,9 @@ import json
 import math
 from pathlib import Path
 
-from mmsverify.errors import MMSError
-from mmsverify.fileio import load_json_file, write_atomic
+from mmsverify.errors import GridError, MMSError
+from mmsverify.fileio import (as_int, as_number, load_json_file, need, need_bool, need_choice, need_dict,
+                              need_int, need_list, need_number, need_str, write_atomic)
 from mmsverify.execute.grids import Grid
 from mmsverify.execute.norms import NORMS
 from mmsverify.study.refinement import NORMS_SOURCES, LevelResult, StudyResult, rejudge
@@ -30,7 +31,7 @@ from mmsverify.render.text import CAUTION
 __all__ = ["FORMAT", "FORMAT_VERSION", "CSV_COLUMNS", "study_to_data", "study_from_data", "write_json",
            "read_json", "write_csv", "csv_text"]
 
-FORMAT = "mmsverify.study.refinement"
+FORMAT = "mmsverify.study"
 FORMAT_VERSION = 1
 
 #: Columns of the CSV file, one row per level, field and norm, then one per level and reported quantity
@@ -84,15 +85,151 @@ def study_to_data(result):
     return _clean(data)
 
 
+#: Limits of a study file read back: far above what a study writes (at most 30 levels, a few fields).
+MAX_STUDY_BYTES = 16 * 2**20
+MAX_LEVELS = 1000
+MAX_ENTRIES = 10_000
+_STATUSES = ("ok", "failed")
+_VERDICT_STATUSES = ("confirmed", "below", "above", "inconclusive")
+_MODES = ("combined", "space", "time")
+_ORDER_SOURCES = ("problem", "solver", "caller")
+_AXES = ("space", "time")
+_USED_FOR = ("verdicts", "grids")
+_INCOMPLETE = ("; the file is not a complete mmsverify study (write it with `mmsverify report ... --json` "
+               "or mmsverify.outputs.studyfile.write_json)")
+
+
 def _need(data, key, where):
-    if key not in data:
-        raise MMSError(f"{where}: missing key {key!r}; the file is not a complete mmsverify study "
-                       f"(write it with `mmsverify report ... --json` or mmsverify.outputs.studyfile.write_json)")
-    return data[key]
+    try:
+        return need(data, key, where)
+    except MMSError as exc:
+        raise MMSError(f"{exc}{_INCOMPLETE}") from None
+
+
+def _require(data, keys, where):
+    """Every key of ``keys`` present (the keys ``docs/study.schema.json`` requires)."""
+    missing = [k for k in keys if k not in data]
+    if missing:
+        raise MMSError(f"{where}: missing key(s) {', '.join(map(repr, missing))}{_INCOMPLETE}")
+
+
+_STUDY_KEYS = ("mmsverify_version", "outcome", "problem", "problem_hash", "source", "solver", "mode",
+               "formal_order", "tolerance", "passed", "levels", "orders", "verdicts", "caution")
+_LEVEL_KEYS = ("level", "cells", "steps", "h", "dt", "status", "message", "seconds", "n_points", "errors", "lower",
+               "upper", "t_start", "t_end", "scale")
+
+
+def _optional_number(d, key, where):
+    """A finite number, or None for ``null`` (a steady problem's times)."""
+    return None if d.get(key) is None else need_number(d, key, where)
+
+
+def _numbers(d, key, where, label=None, **limits):
+    """A dict of name to number (``null`` for an undefined one read as NaN), e.g. the three norms."""
+    out = {}
+    for name, value in need_dict(d, key, where, {}, max_len=MAX_ENTRIES).items():
+        out[name] = as_number(value, f"{where}, {label or key}", name, **limits)
+    return out
+
+
+def _level(d, where):
+    """One level entry as a LevelResult; every value read is checked for its type and range."""
+    need(d, "level", where)  # an object, or an error naming the entry
+    _require(d, _LEVEL_KEYS, where)
+    _optional_number(d, "dt", where)
+    lower = need_list(d, "lower", where, max_len=3)
+    upper = need_list(d, "upper", where, max_len=3)
+    cells = need_list(d, "cells", where, max_len=3)
+    if not cells or not len(lower) == len(upper) == len(cells):
+        raise MMSError(f"{where}: cells, lower and upper must list 1 to 3 values each, one per axis; got "
+                       f"{len(cells)}, {len(lower)} and {len(upper)}")
+    t_start, t_end = _optional_number(d, "t_start", where), _optional_number(d, "t_end", where)
+    if (t_start is None) != (t_end is None) or (t_start is not None and not t_end > t_start):
+        raise MMSError(f"{where}: t_start and t_end must both be null (a steady problem) or both numbers with "
+                       f"t_end after t_start; got {t_start!r} and {t_end!r}")
+    try:
+        grid = Grid(need_int(d, "level", where, maximum=MAX_LEVELS),
+                    tuple(as_number(x, f"{where}, lower") for x in lower),
+                    tuple(as_number(x, f"{where}, upper") for x in upper),
+                    tuple(as_int(n, f"{where}, cells", minimum=1) for n in cells),
+                    t_start=t_start, t_end=t_end, steps=need_int(d, "steps", where, None, minimum=1, null=True))
+    except GridError as exc:
+        raise MMSError(f"{where}: {exc}") from None
+    errors = {}
+    for f in need_dict(d, "errors", where, {}, max_len=MAX_ENTRIES):
+        e = _numbers(d["errors"], f, where, f"errors {f}", null=True)
+        missing = [n for n in NORMS if n not in e]
+        if missing:
+            raise MMSError(f"{where}, errors {f}: missing the norm(s) {', '.join(missing)}")
+        errors[f] = e
+    quantities = {}
+    for q in need_dict(d, "quantities", where, {}, max_len=MAX_ENTRIES):
+        quantities[q] = _numbers(d["quantities"], q, where, f"quantities {q}", null=True)
+        missing = [k for k in ("value", "exact", "error") if k not in quantities[q]]
+        if missing:
+            raise MMSError(f"{where}, quantities {q}: missing {', '.join(missing)}")
+    return LevelResult(grid.level, grid, need_number(d, "h", where, positive=True), need_choice(d, "status", where, _STATUSES),
+                       errors, need_number(d, "seconds", where, 0.0, minimum=0),
+                       need_int(d, "n_points", where, 0, maximum=2**62), _numbers(d, "scale", where),
+                       need_str(d, "message", where, ""), quantities=quantities,
+                       info=dict(need_dict(d, "info", where, {}, max_len=MAX_ENTRIES)))
+
+
+def _verdict(v, where):
+    """One stored verdict. Only what was judged and by which rule is taken from the file: the status, the
+    kind and the interval are judged again from the stored errors (:func:`rejudge`), never taken on the
+    file's word; they are still checked for their types."""
+    _require(v, ("field", "norm", "formal", "observed", "tolerance", "status", "reason"), where)
+    need_str(v, "kind", where, "", max_len=200)
+    interval = need_list(v, "interval", where, None, max_len=2) if v.get("interval") is not None else None
+    if interval is not None and len(interval) != 2:
+        raise MMSError(f"{where}, key 'interval': expected null or [lower, upper], got {_short(interval)}")
+    for x in interval or ():
+        as_number(x, f"{where}, interval", null=True)
+    for k in need_list(v, "left_out", where, [], max_len=MAX_LEVELS):
+        as_int(k, f"{where}, left_out", maximum=MAX_LEVELS)
+    return Verdict(need_str(v, "field", where, max_len=1000), need_choice(v, "norm", where, NORMS + ("value",)),
+                   need_number(v, "formal", where), need_number(v, "observed", where, math.nan, null=True),
+                   need_number(v, "tolerance", where, minimum=0), need_choice(v, "status", where, _VERDICT_STATUSES, ""),
+                   need_str(v, "reason", where, ""), at_least=need_bool(v, "at_least", where, False))
+
+
+def _conflict(c, where):
+    return {"axis": need_choice(c, "axis", where, _AXES), "solver": need_number(c, "solver", where, positive=True),
+            "problem": need_number(c, "problem", where, positive=True),
+            "used_for": need_choice(c, "used_for", where, _USED_FOR)}
+
+
+def _check_derived(data, where):
+    """Keys written for other readers and recomputed here: checked for their type only."""
+    need_str(data, "mmsverify_version", where, "", max_len=200)
+    need_choice(data, "outcome", where, ("pass", "fail", "inconclusive"), None)
+    need_bool(data, "passed", where, None)
+    need_str(data, "caution", where, "")
+    for i, n in enumerate(need_list(data, "notes", where, [], max_len=MAX_ENTRIES)):
+        need_str({"note": n}, "note", f"{where}, notes entry {i}")
+    for f, norms in need_dict(data, "orders", where, {}, max_len=MAX_ENTRIES).items():
+        for n in need_dict(data["orders"], f, f"{where}, orders", max_len=MAX_ENTRIES):
+            _orders(norms, n, f"{where}, orders {f}")
+    quantity_orders = need_dict(data, "quantity_orders", where, {}, max_len=MAX_ENTRIES)
+    for q in quantity_orders:
+        _orders(quantity_orders, q, f"{where}, quantity_orders")
+
+
+def _orders(d, key, where):
+    for p in need_list(d, key, where, max_len=MAX_LEVELS):
+        as_number(p, f"{where}, {key}", null=True)
 
 
 def study_from_data(data, where="study data"):
     """Rebuild a :class:`StudyResult` from :func:`study_to_data` output.
+
+    This is the one validator of study data: every value the result is built
+    from is checked for its type and range (finite numbers, known statuses,
+    modes and norms, whole numbers where counts are meant), and the keys
+    that are recomputed rather than read (``outcome``, ``passed``,
+    ``orders``, ...) for their type, so a file either gives a study the
+    reports can draw or an :class:`MMSError` naming ``where`` and the entry.
 
     Raises
     ------
@@ -102,53 +239,51 @@ def study_from_data(data, where="study data"):
     if not isinstance(data, dict):
         raise MMSError(f"{where}: expected a JSON object, got {type(data).__name__}")
     if data.get("format") != FORMAT:
-        raise MMSError(f"{where}: not an mmsverify study file (format {data.get('format')!r}, expected "
+        raise MMSError(f"{where}: not an mmsverify study file (format {_short(data.get('format'))}, expected "
                        f"{FORMAT!r}); `mmsverify run --json` output lacks the grid boxes, write a full file "
                        "with `mmsverify report PROBLEM SOLVER --json PATH`")
-    if data.get("format_version") != FORMAT_VERSION:
-        raise MMSError(f"{where}: format version {data.get('format_version')!r} is not supported by this "
+    version = data.get("format_version")
+    if isinstance(version, bool) or version != FORMAT_VERSION:
+        raise MMSError(f"{where}: format version {_short(version)} is not supported by this "
                        f"release (reads version {FORMAT_VERSION}); rerun the study to write a new file")
-    levels = []
-    for i, d in enumerate(_need(data, "levels", where)):
-        w = f"{where}, level entry {i}"
-        grid = Grid(int(_need(d, "level", w)), tuple(_need(d, "lower", w)), tuple(_need(d, "upper", w)),
-                    tuple(int(n) for n in _need(d, "cells", w)), t_start=d.get("t_start"), t_end=d.get("t_end"),
-                    steps=d.get("steps"))
-        levels.append(LevelResult(grid.level, grid, float(_need(d, "h", w)), _need(d, "status", w),
-                                  {f: dict(e) for f, e in d.get("errors", {}).items()}, float(d.get("seconds", 0.0)),
-                                  int(d.get("n_points", 0)), dict(d.get("scale", {})), d.get("message", ""),
-                                  quantities={q: dict(v) for q, v in d.get("quantities", {}).items()},
-                                  info=dict(d.get("info", {}))))
-    # the stored verdicts give only what was judged and by which rule: the statuses are judged again
-    # from the stored errors (study.rejudge), never taken on the file's word
-    known = {f.name for f in dataclasses.fields(Verdict)}
-    needed = ("field", "norm", "formal", "tolerance")
-    verdicts = []
-    for i, v in enumerate(_need(data, "verdicts", where)):
-        missing = [k for k in needed if k not in v]
-        if missing:
-            raise MMSError(f"{where}, verdict entry {i}: missing {missing}")
-        try:
-            formal, tol = float(v["formal"]), float(v["tolerance"])
-        except (TypeError, ValueError):
-            raise MMSError(f"{where}, verdict entry {i}: formal and tolerance must be numbers") from None
-        kept = {k: v[k] for k in known if k in v and k not in ("interval", "left_out")}
-        kept.update(formal=formal, tolerance=tol, at_least=bool(v.get("at_least", False)),
-                    observed=v.get("observed"), status=v.get("status", ""), reason=v.get("reason", ""))
-        verdicts.append(Verdict(**kept))
-    conflicts = []
-    for i, c in enumerate(data.get("order_conflicts", [])):
-        w = f"{where}, order_conflicts entry {i}"
-        conflicts.append({"axis": str(_need(c, "axis", w)), "solver": float(_need(c, "solver", w)),
-                          "problem": float(_need(c, "problem", w)), "used_for": str(_need(c, "used_for", w))})
-    missing = {str(q): tuple(int(k) for k in lv) for q, lv in data.get("missing_quantities", {}).items()}
+    _require(data, _STUDY_KEYS, where)
+    _check_derived(data, where)
+    levels = tuple(_level(d, f"{where}, level entry {i}")
+                   for i, d in enumerate(need_list(data, "levels", where, max_len=MAX_LEVELS)))
+    verdicts = tuple(_verdict(v, f"{where}, verdict entry {i}")
+                     for i, v in enumerate(_need_list(data, "verdicts", where)))
+    conflicts = tuple(_conflict(c, f"{where}, order_conflicts entry {i}")
+                      for i, c in enumerate(need_list(data, "order_conflicts", where, [], max_len=2)))
+    missing = {}
+    for q, lv in need_dict(data, "missing_quantities", where, {}, max_len=MAX_ENTRIES).items():
+        w = f"{where}, missing_quantities {q}"
+        missing[q] = tuple(as_int(k, w, maximum=MAX_LEVELS) for k in need_list({q: lv}, q, w, max_len=MAX_LEVELS))
+        if not missing[q]:
+            raise MMSError(f"{w}: expected the list of levels that did not report the quantity, got []")
     judged, norms_source = _judged_norms(data, where)
     from mmsverify.problem.rules import parse_rules
-    rules = parse_rules(data.get("rules", {}), f"{where}, rules")
-    return rejudge(StudyResult(_need(data, "problem", where), _need(data, "solver", where), _need(data, "mode", where),
-                       float(_need(data, "formal_order", where)), float(_need(data, "tolerance", where)),
-                       tuple(levels), tuple(verdicts), data.get("problem_hash", ""), data.get("source", ""),
-                       data.get("order_source", "problem"), missing, tuple(conflicts), judged, norms_source, rules))
+    rules = parse_rules(need_dict(data, "rules", where, {}, max_len=MAX_ENTRIES), f"{where}, rules")
+    result = StudyResult(
+        need_str(data, "problem", where, max_len=1000), need_str(data, "solver", where, max_len=1000),
+        need_choice(data, "mode", where, _MODES), need_number(data, "formal_order", where),
+        need_number(data, "tolerance", where, minimum=0), levels, verdicts,
+        need_str(data, "problem_hash", where, "", max_len=200), need_str(data, "source", where, ""),
+        need_choice(data, "order_source", where, _ORDER_SOURCES, "problem"), missing, conflicts, judged,
+        norms_source, rules)
+    try:
+        return rejudge(result)
+    except MMSError as exc:  # the stored errors or rules cannot be judged: say which file holds them
+        raise MMSError(f"{where}: {exc}") from None
+
+
+def _need_list(data, key, where):
+    _need(data, key, where)
+    return need_list(data, key, where, max_len=MAX_ENTRIES)
+
+
+def _short(value):
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
 
 
 def _judged_norms(data, where):
@@ -156,15 +291,15 @@ def _judged_norms(data, where):
     ``"default"`` (no note, the verdicts say which norms were judged)."""
     judged = data.get("judged_norms", {})
     source = data.get("norms_source", "default")
-    if not isinstance(judged, dict) or source not in NORMS_SOURCES:
+    if not isinstance(judged, dict) or not isinstance(source, str) or source not in NORMS_SOURCES:
         raise MMSError(f"{where}: judged_norms must map fields to norms and norms_source be one of "
-                       f"{', '.join(NORMS_SOURCES)}; got {judged!r} and {source!r}; rerun the study to write a "
-                       "new file")
+                       f"{', '.join(NORMS_SOURCES)}; got {_short(judged)} and {_short(source)}; rerun the study "
+                       "to write a new file")
     out = {}
     for f, norms in judged.items():
-        if not isinstance(norms, list) or not norms or any(n not in NORMS for n in norms):
+        if not isinstance(norms, list) or not norms or any(not isinstance(n, str) or n not in NORMS for n in norms):
             raise MMSError(f"{where}: judged_norms of field {f} must be a list of norms among "
-                           f"{', '.join(NORMS)}, got {norms!r}; rerun the study to write a new file")
+                           f"{', '.join(NORMS)}, got {_short(norms)}; rerun the study to write a new file")
         out[str(f)] = tuple(norms)
     return out, source
 
@@ -175,8 +310,8 @@ def write_json(result, path):
 
 
 def read_json(path):
-    """Read a study written by :func:`write_json`."""
-    return study_from_data(load_json_file(path), str(path))
+    """Read a study written by :func:`write_json`; a file that is not one is an MMSError naming the entry."""
+    return study_from_data(load_json_file(path, "study file", max_bytes=MAX_STUDY_BYTES), str(path))
 
 
 def _level_cells(base, lv):

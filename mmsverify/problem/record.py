@@ -78,6 +78,7 @@ import tomllib
 
 import sympy as sp
 
+from mmsverify import fileio
 from mmsverify.errors import ProblemError, MMSError
 from mmsverify.problem.boundary import robin_coefficients
 from mmsverify.problem.expr import canonical_form, parse_expression
@@ -379,6 +380,7 @@ class _Reader:
         fields_tab = self.table("fields", required=True)
         if not fields_tab:
             raise ProblemError(f"{self.where('fields')}: give at least one manufactured field, e.g. u = \"sin(pi*x)\"")
+        _check_reserved_names(self, "fields", fields_tab)
         fields = {}
         for k, v in fields_tab.items():
             if k in names or not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", k):
@@ -405,6 +407,7 @@ class _Reader:
             if not isinstance(eqs, dict) or not eqs:
                 raise ProblemError(f"{self.where('operator')}: a custom operator needs an [operator.equations] "
                                    "table with one equation per field, e.g. u = \"-lap(u)\"")
+            _check_reserved_names(self, "operator", op_tab)
             for k, v in op_tab.items():
                 parameters[k] = self.expression("operator", k, v, with_fields)
             fns = derivative_functions(coords, t)
@@ -447,9 +450,12 @@ class _Reader:
         for k, e in equations.items():
             self.check_size("operator.equations" if kind == "custom" else "operator", k if kind == "custom"
                             else "kind", e, f"the source term of equation {k!r}")
+            _check_differentiable(self, "fields", k if k in fields else next(iter(fields)), e,
+                                  f"the source term of equation {k!r}")
         for k, vec in fluxes.items():
             for c, e in zip(coords, vec):
                 self.check_size("operator", "kind", e, f"the {c}-flux of field {k!r}")
+                _check_differentiable(self, "fields", k, e, f"the {c}-flux of field {k!r}")
 
         boundaries = self._boundaries(fields, axes)
         order = self.table("order")
@@ -611,6 +617,36 @@ class _Reader:
         return out
 
 
+#: Names every expression reads as constants; a field or parameter of the same name would replace them silently.
+_RESERVED_NAMES = {"pi": "the number pi", "E": "Euler's number e"}
+#: What a derivation leaves where a derivative does not exist everywhere (a kink of abs, min, max; a jump).
+_NOT_DIFFERENTIABLE = frozenset({"DiracDelta", "Heaviside", "Derivative", "Subs"})
+
+
+def _check_reserved_names(reader, section, names):
+    """Refuse ``pi`` and ``E`` as names of fields or parameters."""
+    for k in names:
+        if k in _RESERVED_NAMES:
+            reader.fail(section, k, f"{k} is {_RESERVED_NAMES[k]} in every expression; give the {section} entry "
+                                    "another name")
+
+
+def _check_differentiable(reader, section, key, expr, what):
+    """Refuse a derived term holding a derivative that does not exist everywhere (``abs`` twice differentiated
+    gives a Dirac delta): nothing could evaluate it, and a solution with a kink converges at no design order."""
+    stack, seen = [expr], 0
+    while stack and seen <= MAX_EQUATION_NODES:
+        e = stack.pop()
+        seen += 1
+        name = type(e).__name__
+        if name in _NOT_DIFFERENTIABLE:
+            reader.fail(section, key, f"{what} needs a derivative that does not exist everywhere ({name} "
+                                      "appears): abs, min, max and sign have kinks or jumps; manufactured fields "
+                                      "must be smooth in the box, e.g. sqrt((x - 0.5)**2 + 0.01) rather "
+                                      "than abs(x - 0.5)")
+        stack.extend(e.args)
+
+
 def problem_from_text(text, source="<text>"):
     """Read a problem from TOML text; ``source`` names it in error messages.
 
@@ -694,16 +730,16 @@ def load_problem(path):
         else:
             raise ProblemError(f"no problem file {str(path)!r} and no bundled problem of that name; "
                                f"bundled problems: {', '.join(bundled_problems())}")
+    return problem_from_text(_read_problem_file(p), str(p))
+
+
+def _read_problem_file(p):
+    """The text of a problem file: a regular file (devices and pipes are refused before they are opened),
+    at most 4 bytes per allowed character, UTF-8 with an optional byte-order mark."""
     try:
-        if p.stat().st_size > 4 * MAX_FILE_CHARS:  # before reading it into memory
-            raise ProblemError(f"{p}: {p.stat().st_size} bytes is far too large for a problem file "
-                               f"(at most {MAX_FILE_CHARS} characters)")
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise ProblemError(f"{p}: no such problem file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ProblemError(f"{p}: cannot read it ({exc})") from None
-    return problem_from_text(text, str(p))
+        return fileio.read_text(p, "problem file", 4 * MAX_FILE_CHARS)
+    except MMSError as exc:
+        raise ProblemError(str(exc)) from None
 
 
 def bundled_problems():

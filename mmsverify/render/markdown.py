@@ -16,9 +16,29 @@ from mmsverify.render.text import CAUTION
 __all__ = ["markdown_text", "write_markdown"]
 
 
+# Characters that Markdown reads as markup inside a line: emphasis, code, links, raw HTML and entities,
+# table pipes, strike-through. Names and messages come from files and solvers: each is escaped.
+_MARKUP = str.maketrans({c: "\\" + c for c in "\\`*_[]<>|~&"})
+
+
+def _md(text):
+    """Inline text with every markup character escaped, so that it shows as written."""
+    return str(text).translate(_MARKUP)
+
+
 def _cell(text):
-    """Table-safe text: one line, pipes escaped."""
-    return str(text).splitlines()[0].replace("|", "\\|") if str(text) else ""
+    """Table-safe text: one line, markup (pipes included) escaped."""
+    return _md(str(text).splitlines()[0]) if str(text) else ""
+
+
+def _fenced(text):
+    """A code block that ``text`` cannot close: the fence is longer than any run of backquotes in it."""
+    run, longest = 0, 0
+    for c in str(text):
+        run = run + 1 if c == "`" else 0
+        longest = max(longest, run)
+    fence = "`" * max(3, longest + 1)
+    return [fence + "text", str(text), fence]
 
 
 def _table(header, rows):
@@ -43,17 +63,17 @@ def markdown_text(result, images=None):
     """
     kind = result.outcome
     size = axis_name(result)
-    out = [f"# Order verification: {result.problem} solved by {result.solver}", "",
-           f"**Verdict: {kind.upper()}.** {headline(result)}", ""]
+    out = [f"# Order verification: {_md(result.problem)} solved by {_md(result.solver)}", "",
+           f"**Verdict: {kind.upper()}.** {_md(headline(result))}", ""]
     out += _table(["Field", "Norm", "Outcome", "Observed order", "Formal order", "Reason"],
                   [[v.field, v.norm, v.status, fmt_order(v.observed), f"{v.formal:g}", v.reason]
                    for v in result.verdicts])
     if notes(result):
-        out += [""] + [f"- Note: {n}" for n in notes(result)]
+        out += [""] + [f"- Note: {_md(n)}" for n in notes(result)]
     out += ["", "## Evidence", ""]
     out += _table(["Study", ""], study_facts(result))
     for f in result.fields:
-        out += ["", f"### Field {f}", ""]
+        out += ["", f"### Field {_md(f)}", ""]
         header = ["Level", "Grid", size] + [c for n in NORMS for c in (f"{n} error", f"{n} order")] + ["Run time (s)"]
         rows = []
         for r in level_rows(result, f):
@@ -65,7 +85,7 @@ def markdown_text(result, images=None):
             rows.append(row + [f"{r['seconds']:.3g}"])
         out += _table(header, rows)
     for q in result.quantities:
-        out += ["", f"### Quantity {q}", ""]
+        out += ["", f"### Quantity {_md(q)}", ""]
         header, rows, _ = quantity_table(result, q, size)
         out += _table(header, rows)
     if images:
@@ -75,9 +95,9 @@ def markdown_text(result, images=None):
     if result.failed_levels:
         out += ["", "### Failed levels", ""]
         for lv in result.failed_levels:
-            out += [f"Level {lv.level} ({lv.grid.describe()}):", "", "```text", lv.message, "```", ""]
+            out += [f"Level {lv.level} ({lv.grid.describe()}):", "", *_fenced(lv.message), ""]
     out += ["", "## Cautions", ""]
-    out += [f"- {c}" for c in [CAUTION] + extra_cautions(result)]
+    out += [f"- {_md(c)}" for c in [CAUTION] + extra_cautions(result)]
     return "\n".join(out).rstrip() + "\n"
 
 

@@ -30,7 +30,7 @@ from mmsverify.execute.resolutions import level_info, planned_list
 from mmsverify.analysis.order import observed_orders
 from mmsverify.problem.record import get_problem
 from mmsverify.study.settings import MODES, Judging, Refinement, Running
-from mmsverify.execute.solvers import Case, check_solution, resolve_solver, solver_name
+from mmsverify.execute.solvers import Case, check_solution, plain_info, resolve_solver, solver_name
 from mmsverify.analysis.verdict import judge
 from mmsverify.problem.rules import check_rule, check_rules, parse_rules, rule_for
 
@@ -563,6 +563,37 @@ def plan_grids(problem, levels=None, base_cells=None, ratio=None, *, mode="combi
     return grids
 
 
+def _not_finite(problem, what, values, points, t):
+    """The message for manufactured values that are not finite at a point of the level: the problem's fault."""
+    values = np.asarray(values)
+    bad = np.flatnonzero(~np.isfinite(values))
+    i = np.unravel_index(bad[0], values.shape)
+    place = ", ".join(f"{c} = {float(np.broadcast_to(p, values.shape)[i]):.6g}" for c, p in zip(problem.coords, points))
+    when = f" at t = {t:.6g}" if t is not None else ""
+    return (f"the problem's {what} is {values[i]} at ({place}){when}, {bad.size} of {values.size} points; the "
+            "problem, not the solver, needs fixing: a manufactured field and its source terms must be finite "
+            "everywhere in the box of [domain]")
+
+
+def _problem_fault(mms, grid):
+    """Why the level's manufactured data is not finite on the grid's nodes, or None: asked only after a level
+    failed, so that a solver fed an infinite source is not blamed for it."""
+    problem = mms.problem
+    try:
+        points = np.meshgrid(*(grid.nodes(a) for a in range(grid.dim)), indexing="ij", sparse=True)
+        for t in ((grid.t_start, grid.t_end) if problem.transient else (None,)):
+            for name in problem.field_names:
+                for what, fn in (("exact solution", mms.exact), ("source term", mms.source)):
+                    with np.errstate(all="ignore"):  # a division by zero here is what is looked for
+                        values = fn(name, *points, t=t)
+                    values = np.broadcast_to(values, np.broadcast_shapes(*(p.shape for p in points)))
+                    if not np.isfinite(values).all():
+                        return _not_finite(problem, f"{what} of {name}", values, points, t)
+    except Exception:  # the check only improves a message; a failing check leaves the solver's own
+        return None
+    return None
+
+
 def run_level(solver, case, where):
     """Run one level and measure its errors; never raises for solver faults."""
     return _run_level(solver, case, where)
@@ -584,6 +615,8 @@ def _run_level(solver, case, where):
         for name, v in values.items():
             exact = mms.exact(name, *points, t=t)
             scale[name] = float(np.maximum(np.max(exact), -np.min(exact)))  # max |exact|, no temporary
+            if not math.isfinite(scale[name]):  # NaN and infinities reach the max or the min
+                raise SolverError(_not_finite(problem, f"exact solution {name}", exact, points, t))
             # the error goes into the exact values' array, a new one, unless it could be an input's memory
             own = exact.flags.owndata and exact.shape == v.shape and not any(
                 np.may_share_memory(exact, a) for a in (v, *points))
@@ -597,18 +630,28 @@ def _run_level(solver, case, where):
             exact = mms.exact_quantity(name, t=t)
             quantities[name] = {"value": float(q), "exact": exact, "error": abs(float(q) - exact)}
         return LevelResult(grid.level, grid, h, "ok", errors, seconds, int(values[next(iter(values))].size), scale,
-                           quantities=quantities, info=level_info(sol, where))
+                           quantities=quantities, info=plain_info(level_info(sol, where)))
     except SolverError as exc:
         text, own = str(exc), getattr(exc, "location", "")
         if own and text.startswith(own + ", "):  # the solver named problem and level itself: say it once
             text = f"{where}, {text[len(own) + 2:]}"
         elif not text.startswith(where):
             text = f"{where}: {text}"
-        return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start, message=text)
+        return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start,
+                           message=_blame(mms, grid, where, text))
     except Exception as exc:  # the solver under test crashed: record it, keep going
         tail = "".join(traceback.format_exception(type(exc), exc, exc.__traceback__)[-3:]).strip()
         return LevelResult(grid.level, grid, h, "failed", seconds=time.perf_counter() - start,
-                           message=f"{where}: the solver raised {type(exc).__name__}: {exc}\n{tail}")
+                           message=_blame(mms, grid, where,
+                                          f"{where}: the solver raised {type(exc).__name__}: {exc}\n{tail}"))
+
+
+def _blame(mms, grid, where, text):
+    """A failed level's message, led by the problem's fault when its manufactured data is not finite."""
+    if "the problem, not the solver" in text:
+        return text
+    fault = _problem_fault(mms, grid)
+    return text if fault is None else f"{where}: {fault}\n(the solver then reported: {text[len(where) + 2:]})"
 
 
 def run_study(problem, solver, refinement=None, judging=None, running=None, *, options=None):
