@@ -34,6 +34,7 @@ from mmsverify.cli import main
 from mmsverify.errors import MMSError, ProblemError
 from mmsverify.outputs.studyfile import read_json, study_from_data, study_to_data, write_json
 from mmsverify.render.markdown import markdown_text
+from mmsverify.study.settings import Refinement
 
 REPO = Path(__file__).resolve().parent.parent
 SEED = 20261204
@@ -169,8 +170,8 @@ def hostile_studies(bases, rng):
 @pytest.fixture(scope="module")
 def bases():
     """Study data of two real studies: a steady one with quantities and a transient one."""
-    steady = run_study("plate-poisson", "poisson2d", levels=3)
-    transient = run_study("slab-heat", "fd-heat-euler", levels=2)
+    steady = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=3))
+    transient = run_study("slab-heat", "fd-heat-euler", refinement=Refinement(levels=2))
     return [("plate-poisson", study_to_data(steady)), ("slab-heat", study_to_data(transient))]
 
 
@@ -379,7 +380,7 @@ def test_functions_without_a_derivative_everywhere_are_refused_at_load(u):
 @pytest.mark.filterwarnings("ignore:divide by zero:RuntimeWarning")  # the solver meets the pole
 def test_an_exact_solution_that_is_not_finite_is_blamed_on_the_problem():
     problem = problem_from_text(_rod(u="1/(x - 0.5)"), "rod.toml")
-    result = run_study(problem, "fd-diffusion", levels=2)
+    result = run_study(problem, "fd-diffusion", refinement=Refinement(levels=2))
     for lv in result.levels:
         assert not lv.ok
         assert "the problem, not the solver, needs fixing" in lv.message
@@ -395,7 +396,7 @@ def test_a_solver_that_reads_only_finite_points_still_gets_the_blame_right():
         x = np.array([0.25, 0.5, 0.75])
         return Solution(values={"u": np.ones(3)}, points=(x,), weights=np.full(3, 1 / 3))
 
-    result = run_study(problem, at_the_pole, levels=2)
+    result = run_study(problem, at_the_pole, refinement=Refinement(levels=2))
     assert all("exact solution" in lv.message and "(x = 0.5)" in lv.message for lv in result.levels)
 
 
@@ -413,7 +414,7 @@ def test_solution_info_that_json_cannot_hold_keeps_the_report(tmp_path, capsys):
         return Solution(values=s.values, points=s.points, weights=s.weights, time=s.time, info=info,
                         quantities=s.quantities)
 
-    result = run_study("plate-poisson", solve, levels=4)
+    result = run_study("plate-poisson", solve, refinement=Refinement(levels=4))
     assert result.orders_confirmed
     info = result.levels[0].info
     assert info["opaque"] == "<Opaque>" and info["array"] == [0, 1, 2] and info["big"] == 2.5
