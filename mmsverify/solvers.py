@@ -124,9 +124,18 @@ def resolve_solver(spec):
     module, _, attr = target.partition(":")
     try:
         mod = _import_from_here(module)
-    except ImportError as exc:
+    except ModuleNotFoundError as exc:
+        if exc.name and module.split(".")[0] != exc.name.split(".")[0]:
+            raise SolverError(f"solver module {module!r} was found, but importing it failed: it imports "
+                              f"{exc.name!r}, which is not installed ({exc}); install it or fix the import") from None
         raise SolverError(f"cannot import solver module {module!r} ({exc}); check the name and that its "
                           "folder is on PYTHONPATH (run from the folder that contains it)") from None
+    except SyntaxError as exc:
+        raise SolverError(f"solver module {module!r} has a syntax error: {exc.filename}, line {exc.lineno}: "
+                          f"{exc.msg}; fix the module and run again") from None
+    except Exception as exc:  # noqa: BLE001  (any failure while the user's module runs its top level)
+        raise SolverError(f"solver module {module!r} failed while being imported: {type(exc).__name__}: {exc}; "
+                          "fix the module (run `python -c 'import {0}'` to see the traceback)".format(module)) from None
     fn = mod
     for part in attr.split("."):
         fn = getattr(fn, part, None)
