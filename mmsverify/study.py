@@ -104,7 +104,7 @@ class StudyResult:
     @property
     def notes(self):
         """One-line remarks on how the study was read (not failures); empty when there are none."""
-        return _quantity_notes(self) + _order_notes(self) + _norms_notes(self)
+        return _quantity_notes(self) + _order_notes(self) + _norms_notes(self) + _cache_notes(self)
 
     @property
     def orders_confirmed(self):
@@ -197,6 +197,14 @@ def _level_where(problem_name, solver_name, grid):
 def _levels_text(levels):
     levels = list(levels)
     return f"level{'s' if len(levels) > 1 else ''} {', '.join(str(k) for k in levels)}"
+
+
+def _cache_notes(result):
+    reused = sum(lv.message.startswith("reused from the level cache") for lv in result.levels)
+    if not reused:
+        return ()
+    return (f"{reused} level{'s' if reused != 1 else ''} from the cache (not run again); --no-cache runs "
+            "every level",)
 
 
 def _quantity_notes(result):

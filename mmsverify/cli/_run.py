@@ -1,6 +1,7 @@
 """``mmsverify run PROBLEM SOLVER``: a manufactured-solution study."""
 
 import gc
+import os
 import shlex
 import sys
 from pathlib import Path
@@ -36,8 +37,12 @@ def add_execution_options(p):
     g.add_argument("--workers", type=int, metavar="N",
                    help="run the levels in a local pool of N processes (default: one after another)")
     g.add_argument("--timeout", type=float, metavar="SECONDS", help="time limit per level; slower levels fail")
-    g.add_argument("--cache", metavar="DIR", help="keep finished levels in DIR; reruns and resumed studies reuse them")
+    g.add_argument("--cache", metavar="DIR", default=os.environ.get("MMSVERIFY_CACHE") or None,
+                   help="keep finished levels in DIR; reruns and resumed studies reuse them (default "
+                        "$MMSVERIFY_CACHE, else none)")
     g.add_argument("--fresh", action="store_true", help="with --cache: recompute every level and overwrite")
+    g.add_argument("--no-cache", action="store_true",
+                   help="neither read nor write the level cache (overrides --cache and $MMSVERIFY_CACHE)")
     g.add_argument("--dask", metavar="ADDRESS",
                    help="run the levels on a Dask cluster (scheduler address, or 'local' for one on this machine)")
     g.add_argument("--external", metavar="COMMAND",
@@ -89,12 +94,17 @@ def _norm_list(text):
         raise AnalysisError(f"--norms: {exc}") from None
 
 
+def cache_folder(args):
+    """The level-cache folder the options name, or None (``--no-cache``, or no ``--cache``)."""
+    return None if getattr(args, "no_cache", False) else getattr(args, "cache", None)
+
+
 def external_from_args(args):
     """The ExternalSolver that ``--external`` describes, or None."""
     command = getattr(args, "external", None)
     if not command:
         return None
-    workdir = args.workdir or (str(Path(args.cache) / "runs") if args.cache else None)
+    workdir = args.workdir or (str(Path(cache_folder(args)) / "runs") if cache_folder(args) else None)
     return ExternalSolver(shlex.split(command), fmt=args.output_format, case_format=args.case_format,
                           workdir=workdir, params=dict(_param(p) for p in args.param), spacing=args.spacing,
                           timeout=args.timeout)
@@ -135,7 +145,7 @@ def study_from_args(args, problem, solver, progress=None):
     kwargs = dict(levels=args.levels, base_cells=args.base_cells, ratio=args.ratio, mode=args.mode,
                   base_steps=args.base_steps, tolerance=args.tolerance, formal_order=args.formal_order,
                   progress=progress, timeout=getattr(args, "timeout", None),
-                  cache_dir=getattr(args, "cache", None), resume=not getattr(args, "fresh", False),
+                  cache_dir=cache_folder(args), resume=not getattr(args, "fresh", False),
                   options=dict(_param(o) for o in getattr(args, "option", [])) or None,
                   norms=_norm_list(getattr(args, "norms", None)))
     if getattr(args, "dask", None):
