@@ -13,22 +13,26 @@ from ..study import MODES, run_study
 from . import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_INPUT, EXIT_OK
 
 
-def add_study_options(p):
+def add_study_options(p, grid=True):
+    """The options of a study; ``grid=False`` leaves out the plan (levels, mode, formal order, norms), for
+    ``baseline check``, which reruns the baseline's grids under its rules."""
+    p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order (default: problem's)")
+    p.add_argument("--option", action="append", default=[], metavar="NAME=VALUE",
+                   help="solver option passed in case.options, e.g. --option grid=perturbed (repeatable)")
+    add_execution_options(p)
+    if not grid:
+        return
     p.add_argument("--levels", type=int, help="number of grid levels (default: problem's [study], else 4)")
     p.add_argument("--base-cells", type=int, help="cells per direction on the coarsest level (default 8)")
     p.add_argument("--ratio", type=float, help="refinement ratio (default 2)")
     p.add_argument("--mode", choices=MODES, default="combined",
                    help="transient problems: refine space and time together, space only, or time only")
     p.add_argument("--base-steps", type=int, help="time steps on the coarsest level (transient problems)")
-    p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order (default: problem's)")
     p.add_argument("--formal-order", type=float, help="override the formal order (default: the solver's stated "
                                                       "order, else the problem's)")
     p.add_argument("--norms", metavar="LIST",
                    help="norms that get a verdict for every field, comma-separated (default: the norms the solver "
                         "states per field, else L1,L2,Linf; all are reported)")
-    p.add_argument("--option", action="append", default=[], metavar="NAME=VALUE",
-                   help="solver option passed in case.options, e.g. --option grid=perturbed (repeatable)")
-    add_execution_options(p)
 
 
 def add_execution_options(p):
@@ -94,6 +98,11 @@ def _norm_list(text):
         raise AnalysisError(f"--norms: {exc}") from None
 
 
+def option_values(args):
+    """The solver options ``--option NAME=VALUE`` give, as a dict."""
+    return dict(_param(o) for o in getattr(args, "option", []))
+
+
 def cache_folder(args):
     """The level-cache folder the options name, or None (``--no-cache``, or no ``--cache``)."""
     return None if getattr(args, "no_cache", False) else getattr(args, "cache", None)
@@ -110,7 +119,7 @@ def external_from_args(args):
                           timeout=args.timeout)
 
 
-def _dask_client(address, workers):
+def dask_client(address, workers):
     try:
         import distributed
     except ImportError:
@@ -146,10 +155,10 @@ def study_from_args(args, problem, solver, progress=None):
                   base_steps=args.base_steps, tolerance=args.tolerance, formal_order=args.formal_order,
                   progress=progress, timeout=getattr(args, "timeout", None),
                   cache_dir=cache_folder(args), resume=not getattr(args, "fresh", False),
-                  options=dict(_param(o) for o in getattr(args, "option", [])) or None,
+                  options=option_values(args) or None,
                   norms=_norm_list(getattr(args, "norms", None)))
     if getattr(args, "dask", None):
-        client = _dask_client(args.dask, args.workers)
+        client = dask_client(args.dask, args.workers)
         try:
             return run_study(problem, solver, executor=client, **kwargs)
         finally:
