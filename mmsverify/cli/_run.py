@@ -1,7 +1,6 @@
 """``mmsverify run PROBLEM SOLVER``: a manufactured-solution study."""
 
 import gc
-import os
 import shlex
 import sys
 from pathlib import Path
@@ -41,12 +40,10 @@ def add_execution_options(p):
     g.add_argument("--workers", type=int, metavar="N",
                    help="run the levels in a local pool of N processes (default: one after another)")
     g.add_argument("--timeout", type=float, metavar="SECONDS", help="time limit per level; slower levels fail")
-    g.add_argument("--cache", metavar="DIR", default=os.environ.get("MMSVERIFY_CACHE") or None,
-                   help="keep finished levels in DIR; reruns and resumed studies reuse them (default "
-                        "$MMSVERIFY_CACHE, else none)")
+    g.add_argument("--cache", metavar="DIR", help="keep finished levels in DIR; reruns and resumed studies reuse them")
     g.add_argument("--fresh", action="store_true", help="with --cache: recompute every level and overwrite")
     g.add_argument("--no-cache", action="store_true",
-                   help="neither read nor write the level cache (overrides --cache and $MMSVERIFY_CACHE)")
+                   help="neither read nor write the level cache (overrides an earlier --cache, e.g. in a CI script)")
     g.add_argument("--dask", metavar="ADDRESS",
                    help="run the levels on a Dask cluster (scheduler address, or 'local' for one on this machine)")
     g.add_argument("--external", metavar="COMMAND",
