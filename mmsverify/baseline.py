@@ -283,18 +283,19 @@ def _text(v, entry, empty=True):
 def _real(v, entry, low=None, above=None, none=False):
     if v is None and none:
         return None
-    if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or not abs(v) <= 1e300:  # also NaN; no float() of a huge int
         raise _Bad(entry, f"expected a finite number{' or null' if none else ''}, got {_kind(v)}")
     if (low is not None and v < low) or (above is not None and v <= above):
         raise _Bad(entry, f"expected a number {'>= %g' % low if low is not None else '> %g' % above}, got {v!r}")
     return float(v)
 
 
-def _whole(v, entry, low, none=False):
+def _whole(v, entry, low, none=False, high=10 ** 9):
     if v is None and none:
         return None
-    if isinstance(v, bool) or not isinstance(v, int) or v < low:
-        raise _Bad(entry, f"expected a whole number >= {low}{' or null' if none else ''}, got {_kind(v)}")
+    if isinstance(v, bool) or not isinstance(v, int) or not low <= v <= high:
+        raise _Bad(entry, f"expected a whole number from {low} to {high}{' or null' if none else ''}, got "
+                          f"{_kind(v)}")
     return v
 
 
@@ -305,6 +306,8 @@ def _choice(v, entry, allowed):
 
 
 def _kind(v):
+    if isinstance(v, int) and not isinstance(v, bool) and abs(v) > 10 ** 30:
+        return "a whole number of %d digits" % len(str(abs(v)))
     return repr(v) if isinstance(v, (bool, int, float)) or v is None else \
         (repr(v[:40]) if isinstance(v, str) else type(v).__name__.replace("dict", "table"))
 

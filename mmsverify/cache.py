@@ -256,8 +256,9 @@ class BadRecord(ValueError):
 
 def _number(value, where, *, minimum=None, integer=False):
     ok = (isinstance(value, int) if integer else isinstance(value, (int, float))) and not isinstance(value, bool)
-    if not ok or (not integer and not math.isfinite(value)):
-        raise BadRecord(f"{where}: expected a finite {'whole number' if integer else 'number'}, got {value!r:.60}")
+    if not ok or abs(value) > 1e300 or (not integer and not math.isfinite(value)):
+        shown = f"a number of {len(str(value))} digits" if ok and isinstance(value, int) else repr(value)[:60]
+        raise BadRecord(f"{where}: expected a finite {'whole number' if integer else 'number'}, got {shown}")
     if minimum is not None and value < minimum:
         raise BadRecord(f"{where}: expected at least {minimum}, got {value!r}")
     return int(value) if integer else float(value)
@@ -315,8 +316,20 @@ def _reject_constant(name):
     raise ValueError(f"{name} is not a number JSON allows")
 
 
-def read_record(path, key):
+_RECORD_KEYS = ("format", "key", "written", "problem", "problem_hash", "solver", "grid", "level", "result")
+_RESULT_KEYS = ("h", "status", "errors", "seconds", "n_points", "scale", "quantities", "info")
+
+
+def _known(table, keys, where, prefix):
+    unknown = sorted(set(table) - set(keys))
+    if unknown:
+        raise BadRecord(f"{where}: unknown entry '{prefix}{unknown[0][:40]}'")
+
+
+def read_record(path, key, grid=None):
     """Read and check one level record; returns its ``result`` table.
+
+    With ``grid``, the record's grid and level must be that grid's.
 
     Raises
     ------
@@ -338,7 +351,15 @@ def read_record(path, key):
         raise BadRecord(f"{where}: format {rec.get('format')!r:.40}, this release reads {CACHE_FORMAT}")
     if rec.get("key") != key:
         raise BadRecord(f"{where}: entry 'key' does not match the file's name (a record copied over another)")
+    _known(rec, _RECORD_KEYS, where, "")
+    for name in ("written", "problem", "problem_hash", "solver"):
+        if rec.get(name) is not None and not isinstance(rec[name], str):
+            raise BadRecord(f"{where}: entry {name!r}: expected text or null, got {type(rec[name]).__name__}")
+    if grid is not None and (rec.get("grid") != _grid_data(grid) or rec.get("level") != grid.level):
+        raise BadRecord(f"{where}: entries 'grid' and 'level' do not match the level asked for (a record copied "
+                        "over another)")
     r = _table(rec.get("result"), f"{where}: entry 'result'")
+    _known(r, _RESULT_KEYS, where, "result.")
     if r.get("status") != "ok":
         raise BadRecord(f"{where}: entry 'result.status' is {r.get('status')!r:.40}; only 'ok' levels are stored")
     out = {"h": _number(r.get("h"), f"{where}: entry 'result.h'", minimum=0),
@@ -414,7 +435,7 @@ class LevelCache:
         from .study import LevelResult
         path = self.path(key)
         try:
-            r = read_record(path, key)
+            r = read_record(path, key, grid)
         except FileNotFoundError:
             return None
         except (OSError, BadRecord) as exc:
