@@ -187,6 +187,21 @@ def _real_array(v, where, what):
     return a.astype(float, copy=False)
 
 
+def _warn_if_uneven(points, where):
+    """Warn when points without weights are not evenly spaced: equal weights then misweigh the norms."""
+    import warnings
+    for i, p in enumerate(points):
+        axis = np.unique(np.asarray(p))
+        if axis.size < 3:
+            continue
+        steps = np.diff(axis)
+        if steps.max() - steps.min() > 1e-6 * steps.max():
+            warnings.warn(f"{where}: Solution has no weights, but its points are not evenly spaced along axis {i}; "
+                          "every point counts the same in the L1 and L2 norms. Return weights (the cell volume "
+                          "each point stands for)", RuntimeWarning, stacklevel=3)
+            return
+
+
 def check_solution(sol, problem, where):
     """Validate a solver's return value; raise :class:`SolverError` saying what is wrong.
 
@@ -237,6 +252,7 @@ def check_solution(sol, problem, where):
     shape = points[0].shape
     if sol.weights is None:
         weights = np.broadcast_to(1.0, shape)
+        _warn_if_uneven(points, where)
     else:
         raw = _real_array(sol.weights, where, "the weights (cell volumes) are not numeric")
         try:

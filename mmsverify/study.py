@@ -306,12 +306,48 @@ def _verdicts(problem, results, formal, tol, judged):
 
 
 def _stated(solver, name):
-    """The order a solver states as attribute ``name``, as a float, or None."""
+    """The order a solver states as attribute ``name``, as a float, or None (no statement).
+
+    Raises
+    ------
+    SolverError
+        When the statement is not a positive finite number (``"2"``, True,
+        NaN): a statement the tool ignored would judge against another order.
+    """
     try:
         value = getattr(solver, name, None)
     except Exception:  # a property that cannot answer for this solver
         return None
-    return float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else None
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)) \
+            or not np.isfinite(value) or value <= 0:
+        raise SolverError(f"solver {solver_name(solver)}: {name} = {value!r} ({type(value).__name__}) is not an "
+                          f"order; state a positive number, e.g. {name} = 2")
+    return float(value)
+
+
+def _check_all_fields(solver, case, values, where):
+    """A field with equations that the solver did not return fails the level, unless it says it skips it.
+
+    The statement is the solver's attribute ``not_computed`` (field names),
+    read from ``solver.configured(case.options)`` when the solver has it.
+    """
+    missing = [f for f in case.problem.field_names if f not in values]
+    if not missing:
+        return
+    try:
+        if callable(getattr(solver, "configured", None)):
+            solver = solver.configured(case.options)
+        skipped = getattr(solver, "not_computed", ()) or ()
+    except Exception:  # noqa: BLE001  (a property that cannot answer: nothing stated)
+        skipped = ()
+    skipped = (skipped,) if isinstance(skipped, str) else tuple(skipped)
+    missing = [f for f in missing if f not in skipped]
+    if missing:
+        raise SolverError(f"{where}: the problem has equations for field(s) {', '.join(missing)}, but the solver "
+                          "returned no values for them; return them, or state not_computed = "
+                          f"{tuple(missing)!r} on the solver if it does not compute them")
 
 
 def _stated_norms(solver, problem, who):
@@ -478,6 +514,7 @@ def _run_level(solver, case, where):
         sol = solver(case)
         seconds = time.perf_counter() - start
         values, points, weights = check_solution(sol, problem, where)
+        _check_all_fields(solver, case, values, where)
         t = None
         if problem.transient:
             t = grid.t_end if sol.time is None else float(sol.time)
