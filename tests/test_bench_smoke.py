@@ -50,3 +50,8 @@ def _parallel_output(tmp_path):
     if "out" not in _CACHE:  # one run serves the three checks
         _CACHE["out"] = _run("parallel_batch.py", tmp_path)
     return _CACHE["out"]
+
+
+def test_dask_batch_compares_one_and_two_workers(tmp_path):
+    out = _run("dask_batch.py", tmp_path)
+    assert "2 workers against 1" in out and "speed-up" in out and "| yes |" in out
