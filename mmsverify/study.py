@@ -101,6 +101,15 @@ class StudyResult:
     judged_norms: dict = field(default_factory=dict)
     norms_source: str = "default"
 
+    def _repr_html_(self):
+        """Notebook display: verdict, tables and the error figure (see :mod:`mmsverify.notebook`)."""
+        from .notebook import study_html
+        return study_html(self)
+
+    def _repr_markdown_(self):
+        from .notebook import study_markdown
+        return study_markdown(self)
+
     @property
     def notes(self):
         """One-line remarks on how the study was read (not failures); empty when there are none."""
