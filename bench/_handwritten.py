@@ -1,4 +1,4 @@
-"""Energy source of problems/compressible-2d.toml written by hand in NumPy.
+"""Energy source of mmsverify/problem/bundled/compressible-2d.toml written by hand in NumPy.
 
 What a careful person writes without a code generator: every field and its
 first and second derivatives by the chain rule, then the energy equation
@@ -16,7 +16,7 @@ GAMMA, MU, PR = 1.4, 10.0, 1.0
 PI = np.pi
 
 # (constant, (amp_x, kind_x, wave_x), (amp_y, kind_y, wave_y), (amp_xy, kind_xy, wave_xy))
-# as in problems/compressible-2d.toml
+# as in mmsverify/problem/bundled/compressible-2d.toml
 _FIELDS = {
     "rho": (1.0, (0.1, "sin", 0.75), (0.15, "cos", 1.0), (0.08, "cos", 1.25)),
     "u": (70.0, (4.0, "sin", 5 / 3), (-12.0, "cos", 1.5), (7.0, "cos", 0.6)),

@@ -30,7 +30,7 @@ def main(argv=None):
     ap.add_argument("--tiny", action="store_true", help="smoke run: two small studies, one round")
     args = ap.parse_args(argv)
     import distributed
-    from mmsverify.runner import run_studies
+    from mmsverify.execute.runner import run_studies
     jobs = [dict(problem=p, solver=s, **kw) for p, s, kw in (TINY_JOBS if args.tiny else JOBS)]
     repeats = 1 if args.tiny else args.repeats
     run_studies(jobs[:1])  # fill the derivation cache, so that no round pays for derivations

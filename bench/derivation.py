@@ -1,25 +1,18 @@
-"""Issue 9, target 3: deriving compressible Navier-Stokes sources, cold and cached.
+"""Cold derivation of compressible Navier-Stokes sources, each in a fresh process.
 
-For problems/compressible-2d.toml and compressible-3d.toml, each in a fresh
-Python process (so no in-memory cache helps):
-
-* cold: an empty derivation cache; reading the file, differentiating
-  (sources, fluxes), the content hash, then generating the evaluator code
-  (CSE, hoisting, printing) of every source term and exact field;
-* cached: the same again with the cache the cold run left behind.
-
-Imports (mmsverify, sympy, NumPy) are timed apart from derivation. For
-comparison the cold process also times ``sympy.lambdify(..., cse=True)`` of
-the same source terms. Every phase in wall and CPU seconds; the ratio of
-cached to cold. Run: ``python bench/derivation.py``.
+For mmsverify/problem/bundled/compressible-2d.toml and compressible-3d.toml: reading the
+file, differentiating (sources, fluxes), the content hash, then generating
+the evaluator code (CSE, hoisting, printing) of every source term and exact
+field. Imports (mmsverify, sympy, NumPy) are timed apart from derivation.
+For comparison the process also times ``sympy.lambdify(..., cse=True)`` of
+the same source terms. Every phase in wall and CPU seconds.
+Run: ``python bench/derivation.py``.
 """
 
 import argparse
 import json
-import os
 import subprocess
 import sys
-import tempfile
 
 from _common import ROOT, machine, table
 
@@ -55,10 +48,9 @@ print(json.dumps(out))
 """
 
 
-def _run(problem, cache, compare):
-    env = {**os.environ, "MMSVERIFY_CACHE": cache}
+def _run(problem, compare):
     res = subprocess.run([sys.executable, "-c", _CHILD, problem, "compare" if compare else "-"],
-                         capture_output=True, text=True, env=env, cwd=ROOT, timeout=900)
+                         capture_output=True, text=True, cwd=ROOT, timeout=900)
     if res.returncode:
         raise SystemExit(f"child failed for {problem}:\n{res.stderr}")
     return json.loads(res.stdout.strip().splitlines()[-1])
@@ -74,28 +66,18 @@ def main(argv=None):
     phases = ["parse and differentiate", "CSE and code generation"]
     rows = []
     for name in problems:
-        cold, warm = [], []
-        for _ in range(repeats):
-            with tempfile.TemporaryDirectory() as cache:
-                cold.append(_run(name, cache, compare=True))
-                warm.append(_run(name, cache, compare=False))
-        best = {}
-        for label, runs in (("cold", cold), ("cached", warm)):
-            total = min(runs, key=lambda r: sum(r[p][0] for p in phases))
-            best[label] = total
-            cells = [f"{total[p][0]:.3f} / {total[p][1]:.3f}" for p in phases]
-            t_wall, t_cpu = sum(total[p][0] for p in phases), sum(total[p][1] for p in phases)
-            rows.append([name, label, f"{total['import'][0]:.2f} / {total['import'][1]:.2f}", *cells,
-                         f"**{t_wall:.3f}** / {t_cpu:.3f}"])
-        ratio = (sum(best["cached"][p][0] for p in phases) / sum(best["cold"][p][0] for p in phases))
-        lam = best["cold"]["lambdify with CSE (comparison)"]
-        rows.append([name, f"cached/cold ratio {ratio:.3f}; {best['cold']['operations']} operations; "
-                           f"lambdify+CSE alone {lam[0]:.2f} s", "", "", "", ""])
+        runs = [_run(name, compare=True) for _ in range(repeats)]
+        total = min(runs, key=lambda r: sum(r[p][0] for p in phases))
+        cells = [f"{total[p][0]:.3f} / {total[p][1]:.3f}" for p in phases]
+        t_wall, t_cpu = sum(total[p][0] for p in phases), sum(total[p][1] for p in phases)
+        lam = total["lambdify with CSE (comparison)"]
+        rows.append([name, f"{total['import'][0]:.2f} / {total['import'][1]:.2f}", *cells,
+                     f"**{t_wall:.3f}** / {t_cpu:.3f}", f"{lam[0]:.2f}", str(total["operations"])])
     print(f"# Derivation of compressible Navier-Stokes sources, best of {repeats} fresh processes")
     print()
     print("Each cell: wall / CPU seconds. Total = derivation without imports.")
     print()
-    print(table(["problem", "run", "imports", *phases, "total"], rows))
+    print(table(["problem", "imports", *phases, "total", "lambdify+CSE alone", "operations"], rows))
     print()
     print("Machine: " + "; ".join(machine()))
     return 0

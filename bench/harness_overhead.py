@@ -18,13 +18,10 @@ subtracted from it):
 
 Harness = total - solver's own work, for the command and for the
 ``run_study`` call inside it (the command minus parser and design
-warnings). The child runs three times: with an empty derivation cache (a
-problem never seen on this machine), again with the cache that run filled
-(every later run), and with an empty cache and the design checks of ``run``
-worked out ahead of the study in the process itself (as before they moved
-beside the study, into a forked child on the other core; the difference of
-the two empty-cache totals is what that move saves in wall time, and the
-child's CPU seconds are shown apart). Interpreter start and imports (mmsverify, the
+warnings). Nothing derived is kept between processes, so every run is the
+first run of the problem content: it reads and derives the problem,
+generates the evaluators and runs the design checks, synchronously, ahead
+of the study. Interpreter start and imports (mmsverify, the
 solver's module and its libraries pyamg and scipy.fft) are timed apart and
 left out of the total: they are the same for any command (see
 ``bench/first_contact.py``).
@@ -33,7 +30,7 @@ Children run with Python's default bytecode cache (``PYTHONDONTWRITEBYTECODE``
 removed from their environment), as a user's Python runs.
 
 Run: ``python bench/harness_overhead.py [--base 128] [--levels 4] [--repeats 2]``;
-``--tiny`` is a smoke run (base 8, 3 levels). The stage tables show the
+``--tiny`` is a smoke run (base 8, 4 levels). The stage tables show the
 fastest run per state; the spread table the harness share of every run
 (the solver's own time moves by 10-20 % between runs, and the share with it).
 """
@@ -66,7 +63,7 @@ STAGES = (
 )
 
 
-STATES = ("empty derivation cache", "filled derivation cache", "empty cache, design checks inline")
+STATES = ("first run of the content",)
 
 
 class _Clock:
@@ -107,11 +104,12 @@ def _child(argv):
     import mmsverify.cli as cli
     import mmsverify.cli._run as run_cmd
     from importlib import import_module
-    # modules by full name: the package exports functions of the same names (mmsverify.derive, ...)
+    # modules by full name: the package exports functions of the same names (mmsverify.problem.derive, ...)
     cache_mod, derive_mod, problem_mod, study, progress_mod = (
-        import_module(f"mmsverify.{m}") for m in ("cache", "derive", "problem", "study", "progress"))
-    import_module("mmsverify.runner")  # imported by run_study on first use; not part of the timed run
-    files_mod = import_module("mmsverify.report.files")
+        import_module(f"mmsverify.{m}") for m in ("execute.cache", "problem.derive", "problem.record",
+                                                  "study.refinement", "cli.progress"))
+    import_module("mmsverify.execute.runner")  # imported by run_study on first use; not part of the timed run
+    files_mod = import_module("mmsverify.outputs.studyfile")
     import solvers_demo.fd.poisson  # noqa: F401  (the solver's modules and libraries: their imports are not harness)
     import pyamg  # noqa: F401
     import scipy.fft  # noqa: F401
@@ -145,18 +143,13 @@ def _child(argv):
     problem_mod.get_problem = clock.wrap("derive", problem_mod.get_problem)
     study.derive = clock.wrap("derive", study.derive)
     study.check_solution = clock.wrap("check", study.check_solution)
-    study._magnitude_norms = clock.wrap("norms", study._magnitude_norms)
+    study.magnitude_norms = clock.wrap("norms", study.magnitude_norms)
     for name in ("key", "load", "store"):
         setattr(cache_mod.LevelCache, name, clock.wrap("cache", getattr(cache_mod.LevelCache, name)))
     files_mod.write_json = clock.wrap("report", files_mod.write_json)
     study.StudyResult.__str__ = clock.wrap("report", study.StudyResult.__str__)
     cli.build_parser = clock.wrap("parser", cli.build_parser)
     run_cmd.print_design_warnings = clock.wrap("design", run_cmd.print_design_warnings)
-    designbg = import_module("mmsverify.cli._designbg")
-    if os.environ.get("BENCH_DESIGN_INLINE"):
-        designbg.BACKGROUND = False
-    for name in ("poll", "finish"):   # waiting for design warnings worked out beside the study
-        setattr(designbg._Pending, name, clock.wrap("design", getattr(designbg._Pending, name)))
     progress_mod.LevelProgress.__call__ = clock.wrap("progress", progress_mod.LevelProgress.__call__)
 
     import contextlib
@@ -185,15 +178,13 @@ def _share(r):
     return 100 * (tot - r["wall"]["solver"]) / tot
 
 
-def _run_child(cache, args, workdir, inline=False):
+def _run_child(args, workdir):
     cmd = ["run", args.problem, args.solver, "--levels", str(args.levels), "--base-cells", str(args.base),
            "--cache", os.path.join(workdir, "levels"), "--json", os.path.join(workdir, "study.json")]
-    env = {**os.environ, "MMSVERIFY_CACHE": cache}
+    env = dict(os.environ)
     # Python's default: compiled modules are cached (this machine's environment turns that off, which
     # makes every module imported during the run compile its source again; a user's Python does not)
     env.pop("PYTHONDONTWRITEBYTECODE", None)
-    if inline:
-        env["BENCH_DESIGN_INLINE"] = "1"
     res = subprocess.run([sys.executable, __file__, "--child", *cmd], capture_output=True, text=True, env=env,
                          cwd=ROOT, timeout=3600)
     if res.returncode:
@@ -211,20 +202,17 @@ def main(argv=None):
     ap.add_argument("--base", type=int, default=128, help="cells per direction on the coarsest level")
     ap.add_argument("--levels", type=int, default=4)
     ap.add_argument("--repeats", type=int, default=2, help="runs per cache state; the fastest total is shown")
-    ap.add_argument("--tiny", action="store_true", help="smoke run: base 8, 3 levels, 1 repeat")
+    ap.add_argument("--tiny", action="store_true", help="smoke run: base 8, 4 levels, 1 repeat")
     args = ap.parse_args(argv)
     if args.tiny:
-        args.base, args.levels, args.repeats = 8, 3, 1
+        args.base, args.levels, args.repeats = 8, 4, 1
     load0 = os.getloadavg()
     runs, shares = {}, {}
     with tempfile.TemporaryDirectory() as tmp:
         for rep in range(args.repeats):
-            cache = os.path.join(tmp, f"derivation-cache-{rep}")  # a new, empty derivation cache per repeat
             for state in STATES:
                 work = tempfile.mkdtemp(dir=tmp)
-                if state == STATES[2]:
-                    cache = os.path.join(tmp, f"derivation-cache-{rep}-inline")
-                r = _run_child(cache, args, work, inline=state == STATES[2])
+                r = _run_child(args, work)
                 if r["code"] != 0 or not r["passed"]:
                     raise SystemExit(f"the study did not pass (exit {r['code']}); the figure would be meaningless")
                 if state not in runs or r["total"][0] < runs[state]["total"][0]:
@@ -244,8 +232,6 @@ def main(argv=None):
                 [f"**{r['total'][0]:.3f}** / {r['total'][1]:.3f}" for r in runs.values()])
     rows.append(["imports of mmsverify and the solver module (not in total)"] +
                 [f"{r['imports'][0]:.3f} / {r['imports'][1]:.3f}" for r in runs.values()])
-    rows.append(["CPU of child processes (design checks beside the study; not in total)"] +
-                [f"- / {r['child_cpu']:.3f}" for r in runs.values()])
     print(table(header, rows))
     print()
     ratio_rows = []
@@ -257,7 +243,7 @@ def main(argv=None):
             ratio_rows.append([state, clock, f"{tot - cli_only:.3f}", f"{harness - cli_only:.3f}",
                                f"**{100 * (harness - cli_only) / (tot - cli_only):.2f} %**", f"{tot:.3f}",
                                f"{harness:.3f}", f"{100 * harness / tot:.2f} %"])
-    print(table(["derivation cache", "clock", "run_study total s", "run_study harness s", "**harness share, run_study**",
+    print(table(["run", "clock", "run_study total s", "run_study harness s", "**harness share, run_study**",
                  "CLI total s", "CLI harness s", "harness share, CLI"], ratio_rows))
     print()
     spread = []
@@ -265,7 +251,7 @@ def main(argv=None):
         values = sorted(values)
         spread.append([state, str(len(values)), f"{values[0]:.2f} %", f"{statistics.median(values):.2f} %",
                        f"**{values[-1]:.2f} %**"])
-    print(table(["derivation cache", "runs", "harness share, run_study, wall: lowest", "median", "highest"],
+    print(table(["run", "runs", "harness share, run_study, wall: lowest", "median", "highest"],
                 spread))
     print()
     print("run_study = the command minus its CLI-only stages (parser, design warnings). CPU seconds count every "

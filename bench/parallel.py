@@ -17,7 +17,7 @@ Configurations:
 * ``py-sparse``, ``py-sparse-r1.41``: the bundled Python solver (sparse
   direct), ratio 2 and sqrt(2);
 * ``2 studies``: two independent four-level studies (``c-sor-r1.41`` and
-  ``py-sparse-r1.41``) through :func:`mmsverify.runner.run_studies`, one
+  ``py-sparse-r1.41``) through :func:`mmsverify.execute.runner.run_studies`, one
   study per worker, against the same two run one after the other.
 
 BLAS thread pools are limited to one thread per process (set before NumPy
@@ -43,8 +43,8 @@ from pathlib import Path  # noqa: E402
 from _common import ROOT, Timer, machine, table  # noqa: E402
 
 from mmsverify import run_study  # noqa: E402
-from mmsverify.export import write_export  # noqa: E402
-from mmsverify.external import ExternalSolver  # noqa: E402
+from mmsverify.outputs.export import write_export  # noqa: E402
+from mmsverify.execute.external import ExternalSolver  # noqa: E402
 
 PROBLEM = "plate-poisson"
 
@@ -76,7 +76,7 @@ def _measure(solver, base, ratio, repeats):
 
 
 def _studies(jobs, repeats):
-    from mmsverify.runner import run_studies
+    from mmsverify.execute.runner import run_studies
     walls = {1: [], 2: []}
     for _ in range(repeats):
         for workers in (1, 2):

@@ -10,7 +10,7 @@ Three batches, each run with one worker and with two, in interleaved rounds
    ``python -m mmsverify mistakes --workers N``, end to end in a new
    process (interpreter start and imports included);
 3. ``studies``: a batch of independent studies of bundled problems and
-   solvers through ``mmsverify.runner.run_studies(jobs, workers=N)``.
+   solvers through ``mmsverify.execute.runner.run_studies(jobs, workers=N)``.
 
 Next to the wall seconds: the CPU seconds of all processes (this one and
 its workers), which show how much work there was, and the best ratio the
@@ -43,8 +43,8 @@ JOBS = (  # longest first (seconds in one study on this machine), so the pool is
     ("fin-diffusion", "fd-diffusion", dict(levels=4, base_cells=64)),                           # ~0.7
     ("plume-advection", "fv-advection-unlimited", dict(levels=4, base_cells=24)),               # ~0.4
 )
-TINY_JOBS = (("plate-poisson", "poisson2d", dict(levels=3, base_cells=8)),
-             ("fin-diffusion", "fd-diffusion", dict(levels=3, base_cells=8)))
+TINY_JOBS = (("plate-poisson", "poisson2d", dict(levels=4, base_cells=8)),
+             ("fin-diffusion", "fd-diffusion", dict(levels=4, base_cells=8)))
 TINY_KEYS = ["fd-source-shifted", "ok-fd-poisson-2d", "ok-heat-crank-nicolson", "ok-adv-central"]
 
 
@@ -73,7 +73,7 @@ def _command(workers, keys):
 
 
 def _studies(workers, jobs):
-    from mmsverify.runner import run_studies
+    from mmsverify.execute.runner import run_studies
     results = run_studies([dict(problem=p, solver=s, **kw) for p, s, kw in jobs], workers=workers)
     for (p, s, _), r in zip(jobs, results):
         if not r.passed:

@@ -16,11 +16,11 @@ run, with each explicit choice:
 
 Cases:
 
-* ``2-D, one Neumann side``: problems/plate-poisson.toml (the default picks
+* ``2-D, one Neumann side``: mmsverify/problem/bundled/plate-poisson.toml (the default picks
   AMG: the sine transform needs Dirichlet data on every side);
 * ``2-D, Dirichlet``: the same field with Dirichlet data on every side
   (defined below; the default picks the sine transform);
-* ``3-D, Dirichlet``: problems/block-poisson3d.toml (default: sine transform).
+* ``3-D, Dirichlet``: mmsverify/problem/bundled/block-poisson3d.toml (default: sine transform).
 
 Every point runs in a fresh child process: one small unmeasured solve
 first (imports, generated code), then the measured solve; the fastest of
@@ -82,8 +82,8 @@ def _child(case, method, n):
     """One measured solve in this (fresh) process; prints a JSON line."""
     import numpy as np
     from mmsverify import Case, derive
-    from mmsverify.grids import Grid
-    from mmsverify.norms import error_norms
+    from mmsverify.execute.grids import Grid
+    from mmsverify.execute.norms import error_norms
     import solvers_demo.fd.diffusion as diffusion
     from solvers_demo.fd.poisson import solve
 

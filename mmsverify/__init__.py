@@ -3,21 +3,21 @@ the discretization error left in a real simulation."""
 
 __version__ = "0.1.0"
 
-from .errors import MMSError, ProblemError, ExpressionError, GridError, SolverError, AnalysisError
-from .grids import Grid, refinement
-from .problem import Problem, load_problem, problem_from_text, bundled_problems
-from .derive import Manufactured, derive
-from .solvers import Case, Solution
-from .norms import error_norms
-from .order import observed_orders, fit_order, classify_convergence, asymptotic_check, eca_hoekstra
-from .gci import gci, gci_profile
-from .estimate import assess, assess_table, load_levels, plan
-from .verdict import Verdict
-from .study import LevelResult, StudyResult, run_study, plan_grids
-from .spacetime import SpaceTimeResult, run_space_time
-from .external import ExternalSolver
-from .runner import run_studies
-from .cache import LevelCache
+from mmsverify.errors import MMSError, ProblemError, ExpressionError, GridError, SolverError, AnalysisError
+from mmsverify.execute.grids import Grid, refinement
+from mmsverify.problem.record import Problem, load_problem, problem_from_text, bundled_problems
+from mmsverify.problem.derive import Manufactured, derive
+from mmsverify.execute.solvers import Case, Solution
+from mmsverify.execute.norms import error_norms
+from mmsverify.analysis.order import observed_orders, fit_order, classify_convergence, asymptotic_check, eca_hoekstra
+from mmsverify.analysis.gci import gci, gci_profile
+from mmsverify.analysis.estimate import assess, assess_table, load_levels, plan
+from mmsverify.analysis.verdict import Verdict
+from mmsverify.study.refinement import LevelResult, StudyResult, run_study, plan_grids
+from mmsverify.study.spacetime import SpaceTimeResult, run_space_time
+from mmsverify.execute.external import ExternalSolver
+from mmsverify.execute.runner import run_studies
+from mmsverify.execute.cache import LevelCache
 
 __all__ = [
     "MMSError", "ProblemError", "ExpressionError", "GridError", "SolverError", "AnalysisError",

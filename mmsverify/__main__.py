@@ -1,5 +1,5 @@
 import sys
 
-from .cli import console
+from mmsverify.cli import console
 
 sys.exit(console())

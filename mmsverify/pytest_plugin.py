@@ -26,12 +26,12 @@ def pytest_addoption(parser):
 
 
 def _record(request, result):
-    from .report._common import headline, outcome
-    request.node.user_properties.append(("mmsverify", f"{outcome(result)}: {result.problem} with "
+    from mmsverify.render.wording import headline
+    request.node.user_properties.append(("mmsverify", f"{result.outcome}: {result.problem} with "
                                                       f"{result.solver}: {headline(result)}"))
     folder = request.config.getoption("mmsverify_reports")
     if folder:
-        from .report import write_reports
+        from mmsverify.outputs.reports import write_reports
         stem = re.sub(r"[^A-Za-z0-9_.-]+", "_", request.node.nodeid).strip("_")
         count = sum(1 for k, _ in request.node.user_properties if k == "mmsverify")
         write_reports(result, folder, ("html", "json"), stem=f"{stem}_{count}" if count > 1 else stem)
@@ -40,7 +40,7 @@ def _record(request, result):
 @pytest.fixture
 def order_check(request):
     """:func:`mmsverify.testing.assert_order`, recorded on the test (and as a report with --mmsverify-reports)."""
-    from .testing import OrderCheckError, assert_order
+    from mmsverify.testing import OrderCheckError, assert_order
 
     def check(problem, solver, order=None, **kwargs):
         __tracebackhide__ = True

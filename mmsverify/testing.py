@@ -16,8 +16,8 @@ installed) wraps the same function and can also write a report per check.
 This module does not import pytest; the assertion works under any runner.
 """
 
-from .norms import NORMS
-from .study import run_study
+from mmsverify.execute.norms import NORMS
+from mmsverify.study.refinement import run_study
 
 __all__ = ["OrderCheckError", "assert_order", "failure_message"]
 
@@ -83,17 +83,17 @@ def assert_order(problem, solver, order=None, *, norms=("L2",), fields=None, tol
         Expected order (default: the problem's formal order).
     norms : sequence of str
         Norms that must confirm the order (default L2 only; use
-        ``mmsverify.norms.NORMS`` for all three).
+        ``mmsverify.execute.norms.NORMS`` for all three).
     fields : sequence of str, optional
         Fields to check (default all).
     tolerance : float, optional
         Allowed ``|observed - order|`` (default: the problem's).
     levels, base_cells, ratio, mode : optional
-        Refinement plan, as for :func:`~mmsverify.study.run_study`.
+        Refinement plan, as for :func:`~mmsverify.study.refinement.run_study`.
     allow_failed_levels : bool
         By default any failed level fails the check.
     **study_options
-        Further keywords for :func:`~mmsverify.study.run_study`.
+        Further keywords for :func:`~mmsverify.study.refinement.run_study`.
 
     Returns
     -------

@@ -45,7 +45,7 @@ class DemoSolver:
     allowed values), and implement ``_solve(case)``. A scheme whose order
     claim holds only in some norms for a field says so in ``judged_norms``
     (field name -> tuple of norms; fields not named are judged in every
-    norm; see :func:`mmsverify.study.judged_norms`).
+    norm; see :func:`mmsverify.study.refinement.judged_norms`).
 
     Attributes
     ----------

@@ -1,4 +1,5 @@
-"""Ready-made instances of the demo solvers, named in ``mmsverify.solvers.BUNDLED_SOLVERS``.
+"""Ready-made instances of the demo solvers, registered by name in pyproject.toml
+(entry-point group ``mmsverify.solvers``).
 
 ``mmsverify run PROBLEM NAME`` judges against the problem's formal order;
 for a first-order scheme add ``--formal-order 1`` (the instance states its

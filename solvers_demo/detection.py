@@ -20,7 +20,7 @@ import time
 
 import numpy as np
 
-from mmsverify.runner import process_pool
+from mmsverify.execute.runner import process_pool
 
 from .catalogue import entries
 from .studies import verify

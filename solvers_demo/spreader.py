@@ -112,7 +112,7 @@ def write_levels(rows, path):
 
 
 def main(levels=LEVELS, csv=None):
-    from mmsverify.estimate import assess
+    from mmsverify.analysis.estimate import assess
 
     rows = run(levels)
     print(__doc__.split("\n\n")[1].replace("\n", " ").replace("``", ""))

@@ -8,17 +8,17 @@ import numpy as np
 import pytest
 
 from mmsverify import Solution, run_study
-from mmsverify.baseline import (Baseline, baseline_from_study, check_baseline, compare, load_baseline,
+from mmsverify.outputs.baseline import (Baseline, baseline_from_study, check_baseline, compare, load_baseline,
                                 save_baseline)
 from mmsverify.cli import main
 from mmsverify.errors import MMSError, ProblemError
-from mmsverify.problem import PROBLEM_DIR
+from mmsverify.problem.record import PROBLEM_DIR
 from solvers_demo.fd import poisson
 
 
 @pytest.fixture(scope="module")
 def good():
-    return run_study("plate-poisson", "poisson2d", levels=3)
+    return run_study("plate-poisson", "poisson2d", levels=4)
 
 
 def _scaled(result, factor):
@@ -30,7 +30,7 @@ def _scaled(result, factor):
 
 def test_cli_check_passes_on_correct_solver_and_catches_seeded_mistake(tmp_path, capsys):
     base = tmp_path / "ci" / "plate.json"
-    assert main(["baseline", "save", "plate-poisson", "poisson2d", "-o", str(base), "--levels", "3", "--quiet"]) == 0
+    assert main(["baseline", "save", "plate-poisson", "poisson2d", "-o", str(base), "--levels", "4", "--quiet"]) == 0
     capsys.readouterr()
     assert main(["baseline", "check", str(base)]) == 0
     assert capsys.readouterr().out.startswith("NO REGRESSION")
@@ -46,7 +46,7 @@ def test_cli_check_passes_on_correct_solver_and_catches_seeded_mistake(tmp_path,
 def test_cli_check_reports_bad_input(tmp_path, capsys):
     assert main(["baseline", "check", str(tmp_path / "missing.json")]) == 2
     assert "no such baseline file" in capsys.readouterr().err
-    (tmp_path / "study.json").write_text('{"format": "mmsverify.study"}')
+    (tmp_path / "study.json").write_text('{"format": "mmsverify.study.refinement"}')
     assert main(["baseline", "check", str(tmp_path / "study.json")]) == 2
     assert "not an mmsverify baseline" in capsys.readouterr().err
 
@@ -62,7 +62,7 @@ def test_file_round_trip_and_portable_problem_path(good, tmp_path):
     proj = tmp_path / "proj"
     (proj / "ci").mkdir(parents=True)
     shutil.copy(PROBLEM_DIR / "plate-poisson.toml", proj / "plate.toml")
-    save_baseline(run_study(proj / "plate.toml", "poisson2d", levels=3), proj / "ci" / "b.json")
+    save_baseline(run_study(proj / "plate.toml", "poisson2d", levels=4), proj / "ci" / "b.json")
     assert json.loads((proj / "ci" / "b.json").read_text())["problem"]["source"] == "../plate.toml"
     moved = shutil.copytree(proj, tmp_path / "elsewhere")
     assert check_baseline(moved / "ci" / "b.json").passed
@@ -73,7 +73,7 @@ def test_error_rule_uses_the_stated_factor(good):
     worse = compare(base, _scaled(good, 3.0))
     assert not worse.passed
     assert {f.kind for f in worse.findings} == {"error"}
-    assert len(worse.findings) == 3 * 3  # every level, every norm
+    assert len(worse.findings) == 4 * 3  # every level, every norm
     assert "3.0 x the baseline's" in worse.findings[0].message and "allowed 2 x" in worse.findings[0].message
     assert compare(base, _scaled(good, 3.0), error_factor=4.0).passed
     assert compare(base, _scaled(good, 1.9)).passed
@@ -129,12 +129,12 @@ def test_failed_level_fails_the_check(good):
 
 
 def test_changed_problem_is_refused(good, tmp_path):
-    base = baseline_from_study(run_study(PROBLEM_DIR / "plate-poisson.toml", "poisson2d", levels=3))
+    base = baseline_from_study(run_study(PROBLEM_DIR / "plate-poisson.toml", "poisson2d", levels=4))
     edited = tmp_path / "plate.toml"
     edited.write_text((PROBLEM_DIR / "plate-poisson.toml").read_text().replace("a = 0.7", "a = 0.75"))
     with pytest.raises(ProblemError, match="changed since the baseline was saved"):
         check_baseline(base, problem=edited)
-    other = run_study(edited, "poisson2d", levels=3)
+    other = run_study(edited, "poisson2d", levels=4)
     assert compare(base, other).findings[0].kind == "problem"
 
 
@@ -186,12 +186,12 @@ def test_reported_quantities_are_recorded_and_checked(good, tmp_path):
     assert back.quantities == base.quantities
     assert back.quantities["deflection"] == [lv.quantities["deflection"]["error"] for lv in good.levels]
     check = compare(back, good)
-    # the 3 norms of u and the 2 quantities: 5 order checks, (3 + 2) x 3 levels error comparisons
-    assert check.passed and "5 order checks and 15 error comparisons" in str(check)
+    # the 3 norms of u and the 2 quantities: 5 order checks, (3 + 2) x 4 levels error comparisons
+    assert check.passed and "5 order checks and 20 error comparisons" in str(check)
     assert {c[0] for c in check.comparisons} == {"u", "deflection", "edge_slope"}
     # error rule with the baseline's factor (2): a quantity 3 x worse on every level is caught, 1.9 x is not
     worse = compare(back, _quantity_errors_scaled(good, "edge_slope", 3.0))
-    assert [(f.kind, f.field, f.norm) for f in worse.findings] == [("error", "edge_slope", "value")] * 3
+    assert [(f.kind, f.field, f.norm) for f in worse.findings] == [("error", "edge_slope", "value")] * 4
     assert "edge_slope value on level 0" in worse.findings[0].message and "allowed 2 x" in worse.findings[0].message
     assert compare(back, _quantity_errors_scaled(good, "edge_slope", 1.9)).passed
 
@@ -221,7 +221,7 @@ def test_baseline_without_quantities_still_checks(good, tmp_path):
     old = load_baseline(path)
     assert old.quantities == {}
     check = compare(old, _quantity_errors_scaled(good, "deflection", 10.0))
-    assert check.passed and "3 order checks and 9 error comparisons" in str(check)
+    assert check.passed and "3 order checks and 12 error comparisons" in str(check)
     data["quantity_errors"] = {"deflection": [1e-3]}  # one entry for three levels
     path.write_text(json.dumps(data))
     with pytest.raises(MMSError, match=r"old\.json: damaged baseline.*one entry per grid level"):

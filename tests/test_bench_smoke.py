@@ -15,7 +15,7 @@ ROOT = Path(__file__).resolve().parent.parent
 
 
 def _run(script, tmp_path):
-    env = {**os.environ, "MMSVERIFY_CACHE": str(tmp_path / "derivation-cache")}
+    env = dict(os.environ)
     run = subprocess.run([sys.executable, str(ROOT / "bench" / script), "--tiny"], capture_output=True, text=True,
                          env=env, timeout=600, cwd=ROOT)
     assert run.returncode == 0, run.stdout + run.stderr
@@ -25,7 +25,7 @@ def _run(script, tmp_path):
 def test_harness_overhead_splits_a_study_into_solver_and_harness(tmp_path):
     out = _run("harness_overhead.py", tmp_path)
     assert "| solver, own work |" in out and "| error norms |" in out
-    assert "empty derivation cache" in out and "filled derivation cache" in out
+    assert "first run of the content" in out
     assert "harness share" in out and "Machine:" in out
 
 

@@ -10,8 +10,8 @@ import time
 import pytest
 
 from mmsverify import Case, derive, plan_grids, run_study
-from mmsverify.cache import LevelCache, solver_identity
-from mmsverify.external import ExternalSolver
+from mmsverify.execute.cache import LevelCache, solver_identity
+from mmsverify.execute.external import ExternalSolver
 
 PROBLEM = "plate-poisson"
 REPO = Path(__file__).resolve().parent.parent
@@ -211,7 +211,7 @@ KILLED_WRITER = """
 import os, signal, sys
 from types import SimpleNamespace
 sys.path[:0] = [{repo!r}]
-import mmsverify.cache as cache
+import mmsverify.execute.cache as cache
 os.replace = lambda *a: os.kill(os.getpid(), signal.SIGKILL)  # killed between the write and the rename
 grid = SimpleNamespace(lower=(0.0,), upper=(1.0,), cells=(4,), t_start=None, t_end=None, steps=None)
 result = SimpleNamespace(grid=grid, level=0, h=0.25, status="ok", errors={{}}, seconds=0.0, n_points=5,

@@ -12,8 +12,8 @@ import subprocess
 import pytest
 
 from mmsverify.cli import main
-from mmsverify.export import write_export
-from mmsverify.problem import PROBLEM_DIR
+from mmsverify.outputs.export import write_export
+from mmsverify.problem.record import PROBLEM_DIR
 
 REPO = Path(__file__).resolve().parent.parent
 SOURCE = REPO / "solvers_demo" / "c" / "poisson2d.c"

@@ -18,7 +18,7 @@ def test_demo_passes_the_correct_solver_and_catches_the_mistake(capsys):
 
 def test_run_writes_json_and_exit_code_reflects_verdict(tmp_path, capsys):
     out = tmp_path / "r.json"
-    assert main(["run", "plate-poisson", "poisson2d", "--levels", "3", "--json", str(out)]) == 0
+    assert main(["run", "plate-poisson", "poisson2d", "--levels", "4", "--json", str(out)]) == 0
     d = json.loads(out.read_text())
     assert d["passed"] and d["solver"] == "poisson2d"
     assert main(["run", "plate-poisson", "poisson2d-neumann1", "--levels", "3"]) == 1
@@ -59,9 +59,9 @@ def test_run_warns_ahead_of_a_study_whose_design_cannot_catch_mistakes(capsys):
 
 
 def test_quiet_run_prints_the_headline_and_json_reads_back(tmp_path, capsys):
-    from mmsverify.report.files import read_json
+    from mmsverify.outputs.studyfile import read_json
     out = tmp_path / "q.json"
-    assert main(["run", "plate-poisson", "poisson2d", "--levels", "3", "--quiet", "--json", str(out)]) == 0
+    assert main(["run", "plate-poisson", "poisson2d", "--levels", "4", "--quiet", "--json", str(out)]) == 0
     assert capsys.readouterr().out.strip() == "PASS  plate-poisson  solved by  poisson2d"
     assert read_json(out).passed
 
@@ -95,7 +95,7 @@ def test_a_missing_external_program_exits_2_and_names_the_level_once(capsys):
 
 def test_an_external_level_message_names_problem_and_level_once(tmp_path):
     from mmsverify import run_study
-    from mmsverify.external import ExternalSolver
+    from mmsverify.execute.external import ExternalSolver
     result = run_study("plate-poisson", ExternalSolver([str(tmp_path / "absent"), "{case}"]), levels=3)
     for lv in result.levels:
         where = f"level {lv.level} ({lv.grid.describe()})"
@@ -106,7 +106,7 @@ def test_an_external_level_message_names_problem_and_level_once(tmp_path):
 def test_a_study_with_some_levels_run_still_exits_1(tmp_path, monkeypatch, capsys):
     (tmp_path / "flaky_solver.py").write_text(
         "from mmsverify import SolverError\n"
-        "from mmsverify.solvers import resolve_solver\n"
+        "from mmsverify.execute.solvers import resolve_solver\n"
         "def solve(case):\n"
         "    if case.grid.level == 1:\n"
         "        raise SolverError('out of memory on this level')\n"

@@ -7,7 +7,7 @@ import distributed
 import pytest
 
 from mmsverify import run_study
-from mmsverify.runner import run_studies
+from mmsverify.execute.runner import run_studies
 
 JOBS = [dict(problem="plate-poisson", solver="poisson2d", levels=3),
         dict(problem="plate-poisson", solver="poisson2d-neumann1", levels=3),

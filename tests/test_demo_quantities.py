@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from mmsverify import Case, derive, problem_from_text, run_study
-from mmsverify.grids import Grid
+from mmsverify.execute.grids import Grid
 from solvers_demo.fd._quantities import _ONE_SIDED, _interpolate, node_quantities
 from solvers_demo.fd.burgers import FDBurgers
 from solvers_demo.fd.diffusion import FDDiffusion

@@ -90,7 +90,7 @@ def _independent_residuals(problem, point):
         out["p"] = _d(u, point, 0) + _d(v, point, 1)
         return out
     if op == "custom" and problem.name == "reactor-custom":
-        # -d/dx(k(u) du/dx) + r u**3 with k = 1 + 0.2 u**2, r = 0.8 (problems/reactor-custom.toml)
+        # -d/dx(k(u) du/dx) + r u**3 with k = 1 + 0.2 u**2, r = 0.8 (mmsverify/problem/bundled/reactor-custom.toml)
         u = q["u"]
         flux = lambda s: (1 + mpmath.mpf("0.2") * u(s) ** 2) * _d(u, (s,), 0)
         return {"u": -mpmath.diff(flux, mpmath.mpf(point[0])) + mpmath.mpf("0.8") * u(*point) ** 3}

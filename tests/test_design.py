@@ -3,7 +3,7 @@
 import pytest
 
 from mmsverify.errors import ProblemError
-from mmsverify.problem import problem_from_text
+from mmsverify.problem.record import problem_from_text
 
 _HEAD = '[domain]\nx = [0, 1]\n[fields]\nu = "1 + x"\n[bounds]\n'
 
@@ -37,7 +37,7 @@ def test_bad_bounds_name_the_file_line_and_entry(line, message):
 def test_operator_terms_add_up_to_the_residuals(name, transient):
     # the split must lose nothing: sum of terms == residual, symbolically  # common practice
     import sympy as sp
-    from mmsverify.operators import get_operator
+    from mmsverify.problem.operators import get_operator
     op = get_operator(name)
     x, y, t = sp.symbols("x y t")
     X = (x,) if name == "burgers" else (x, y)
@@ -54,9 +54,9 @@ def test_operator_terms_add_up_to_the_residuals(name, transient):
 # -- designs that must be flagged ---------------------------------------------------------
 import numpy as np
 
-from mmsverify.derive import derive
-from mmsverify.design import (admissibility_check, audit, design_warnings, term_sizes, truncation_check)
-from mmsverify.problem import bundled_problems, load_problem
+from mmsverify.problem.derive import derive
+from mmsverify.design.checks import (admissibility_check, audit, design_warnings, term_sizes, truncation_check)
+from mmsverify.problem.record import bundled_problems, load_problem
 
 DATA = __import__("pathlib").Path(__file__).parent / "data"
 
@@ -182,7 +182,12 @@ def test_operator_coefficients_must_be_positive_without_any_bounds_table():
 
 
 # -- designs that must pass ---------------------------------------------------------------
-_FLAGGED = {}  # bundled designs with a real finding, kept visible until their owners change them
+_CONSTANT = "a constant coefficient leaves the face-coefficient part of the scheme unexercised"
+_FLAGGED = {  # bundled designs with a real finding, kept visible until their owners change them
+    "slab-heat": _CONSTANT, "estuary-advection": _CONSTANT, "river-advection": _CONSTANT,
+    "compressible-2d": _CONSTANT + " (constant viscosity and Prandtl number)",
+    "compressible-3d": _CONSTANT + " (constant viscosity and Prandtl number)",
+}
 
 
 @pytest.mark.parametrize("name", [pytest.param(n, marks=pytest.mark.xfail(strict=True, reason=_FLAGGED[n]))
@@ -193,14 +198,16 @@ def test_bundled_problems_pass_every_design_check(name):
 
 def test_roy_subsonic_navier_stokes_design_passes_with_physical_bounds():
     # Roy, Nelson, Smith & Ober 2004, Int. J. Numer. Meth. Fluids 44:599, subsonic case (constants as
-    # bundled in problems/compressible-2d.toml; see its header for their provenance). Subsonic means
+    # bundled in mmsverify/problem/bundled/compressible-2d.toml; see its header for their provenance). Subsonic means
     # Mach < 1 everywhere; density and pressure positive.
-    from mmsverify.problem import PROBLEM_DIR
+    from mmsverify.problem.record import PROBLEM_DIR
     text = (PROBLEM_DIR / "compressible-2d.toml").read_text() + (
         '\n[bounds]\nMach = {expr = "sqrt(u**2 + v**2)/sqrt(gamma*p/rho)", max = 1}\n'
         'T = {expr = "p/(287*rho)", min = 100, max = 600}\n')
     a = audit(problem_from_text(text), starts=4)
-    assert a.ok, a.warnings
+    # the published design holds viscosity and Prandtl number constant: only that is reported
+    assert a.terms.ok and a.truncation.ok and a.admissibility.ok, a.warnings
+    assert {f.name for f in a.coverage.findings} == {"mu", "Pr"}
     checks = {c.name: c for c in a.admissibility.checks}
     assert 0.2 < checks["Mach"].high < 0.45 and checks["rho"].low > 0.7 and checks["p"].low > 5e4
     terms = {(t.equation, t.term): t.relative for t in a.terms.terms}
@@ -209,8 +216,8 @@ def test_roy_subsonic_navier_stokes_design_passes_with_physical_bounds():
 
 @pytest.mark.parametrize("name", bundled_problems())
 def test_structured_terms_add_up_to_the_derived_sources(name):
-    from mmsverify._designmodel import model_from_problem, sample_points
-    from mmsverify.derive import compile_expression
+    from mmsverify.design.model import model_from_problem, sample_points
+    from mmsverify.problem.derive import compile_expression
     p = load_problem(name)
     m = model_from_problem(p)
     pts = sample_points(m, {1: 9, 2: 5, 3: 3}[p.dim], times=3)
@@ -224,7 +231,7 @@ def test_structured_terms_add_up_to_the_derived_sources(name):
 def test_design_warnings_are_prefixed_and_never_raise(monkeypatch):
     warnings = design_warnings(load_problem(DATA / "quadratic-poisson.toml"))
     assert len(warnings) == 1 and warnings[0].startswith("design: every leading truncation-error derivative")
-    import mmsverify.design as design
+    import mmsverify.design.checks as design
 
     def broken(problem):
         raise RuntimeError("boom")
@@ -240,7 +247,7 @@ def test_audit_text_lists_every_section():
 
 
 # -- balancing ------------------------------------------------------------------------------
-from mmsverify.balance import balance
+from mmsverify.design.balance import balance
 
 
 def _with_constants(text, values):
@@ -303,3 +310,44 @@ def test_audit_command_balances_on_request(capsys):
     table = out.split("suggested constants (paste into the problem file):\n")[1].splitlines()
     assert table[0] == "[constants]" and table[1] == "A = 0.4" and table[2].startswith("kw = ")
     assert float(table[2].split("=")[1]) > 0.5        # tuned up towards comparable terms
+
+
+# -- coverage: what the terms need and the solution leaves at zero -----------------------------
+from mmsverify.design.checks import coverage_check
+
+_DIFFUSION = '[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "{u}"\n[operator]\nkind = "diffusion"\nk = {k}\n'
+
+
+def test_a_constant_coefficient_is_reported_with_a_varying_one_to_use():
+    # -d/dx(k du/dx) = -k u_xx - k_x u_x: with k constant the k_x u_x part, where face coefficients of a
+    # conservative scheme enter, is never exercised (Salari & Knupp 2000, SAND2000-1444, sec. 3; from memory)
+    p = problem_from_text(_DIFFUSION.format(u="sin(x)*cos(y)", k="0.5"))
+    report = coverage_check(p)
+    (f,) = report.findings
+    assert f.name == "k" and f.derivatives == ("dk/dx", "dk/dy") and "k = 0.5 is constant" in f.reason
+    assert 'k = "0.5*(1 + 0.25*sin(x + y + 0.3))"' in f.suggestion
+    assert not audit(p, starts=0).ok and any("dk/dx" in w for w in design_warnings(p))
+    # the suggestion, followed, exercises it
+    assert coverage_check(problem_from_text(_DIFFUSION.format(u="sin(x)*cos(y)",
+                                                               k='"0.5*(1 + 0.25*sin(x + y + 0.3))"'))).ok
+
+
+def test_a_coefficient_varying_in_one_direction_only_is_reported():
+    (f,) = coverage_check(problem_from_text(_DIFFUSION.format(u="sin(x)*cos(y)", k='"1 + x/2"'))).findings
+    assert f.derivatives == ("dk/dy",) and "k does not vary in y" in f.reason
+
+
+def test_a_field_derivative_a_term_needs_is_reported():
+    # advection a.grad(u) with a = (1, 0.4): u that does not vary in y leaves the ay*u_y part unexercised
+    text = ('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nc = "sin(x)"\n[operator]\n'
+            'kind = "advection_diffusion"\nk = "1 + 0.2*x*y"\nax = 1.0\nay = 0.4\n')
+    findings = {f.name: f for f in coverage_check(problem_from_text(text)).findings}
+    assert "dc/dy" in findings["c"].derivatives and "c does not vary in y" in findings["c"].reason
+    assert "0.1*sin(2*y + 0.3)" in findings["c"].suggestion
+
+
+def test_operator_defaults_and_switched_off_terms_are_not_reported():
+    # Poisson's k = 1 is the operator's own default; k = 0 switches diffusion off on purpose
+    assert coverage_check(load_problem("plate-poisson")).ok
+    assert coverage_check(load_problem("plume-advection")).ok
+    assert coverage_check(load_problem("fin-diffusion")).ok

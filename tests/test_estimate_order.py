@@ -6,8 +6,8 @@ import pytest
 
 from mmsverify.cli import main
 from mmsverify.errors import AnalysisError
-from mmsverify.estimate import assess
-from mmsverify.gci import gci_profile
+from mmsverify.analysis.estimate import assess
+from mmsverify.analysis.gci import gci_profile
 
 from _helpers import write_profiles
 

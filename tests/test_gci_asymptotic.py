@@ -1,11 +1,11 @@
-"""The asymptotic-range ratio of mmsverify.gci on exact power-law data that
+"""The asymptotic-range ratio of mmsverify.analysis.gci on exact power-law data that
 change by a large factor between levels: reported, never a warning."""
 
 import numpy as np
 import pytest
 
-from mmsverify.estimate import assess, plan
-from mmsverify.gci import gci
+from mmsverify.analysis.estimate import assess, plan
+from mmsverify.analysis.gci import gci
 
 from _helpers import printed
 

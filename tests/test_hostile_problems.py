@@ -1,7 +1,7 @@
 """Hostile problem files: mutated, random, malicious and explosive inputs.
 
 Problem files are shared between people, so every file, however broken,
-must end in a :class:`~mmsverify.problem.Problem` or a clear
+must end in a :class:`~mmsverify.problem.record.Problem` or a clear
 :class:`~mmsverify.errors.MMSError` naming the file, within a time limit,
 and nothing in it may ever run as code.
 
@@ -29,18 +29,18 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-import mmsverify.problem as problem_module
+import mmsverify.problem.record as problem_module
 from mmsverify import derive, plan_grids
 from mmsverify.errors import MMSError, ProblemError
-from mmsverify.problem import Problem, load_problem, problem_from_text
+from mmsverify.problem.record import Problem, load_problem, problem_from_text
 
 REPO = Path(__file__).resolve().parent.parent
 SEED = 20240817
 N_FILES = 1200          # generated files per run (the issue asks for at least 1000)
 PER_FILE_SECONDS = 2.0  # wall time allowed per file: load, plan and one evaluation
-LOAD_BUDGET = 1.0       # problem.MAX_LOAD_SECONDS during the run, so bombs stop quickly
+BOMB_SECONDS = 1.5      # a derivation bomb is refused by a count well within this
 
-BASES = sorted([*(REPO / "problems").glob("*.toml"), *(REPO / "tests" / "data").glob("*.toml")])
+BASES = sorted([*(REPO / "mmsverify" / "problem" / "bundled").glob("*.toml"), *(REPO / "tests" / "data").glob("*.toml")])
 # Loading the compressible problems takes up to a second each; mutate them less often.
 _HEAVY = ("compressible",)
 
@@ -371,10 +371,8 @@ def corpus(n=N_FILES, seed=SEED):
 # -- the checks --------------------------------------------------------------------------------------
 @pytest.fixture
 def hostile_env(tmp_path, monkeypatch):
-    """An empty working folder (a payload that ran would leave a canary file there), no derivation cache."""
+    """An empty working folder (a payload that ran would leave a canary file there)."""
     monkeypatch.chdir(tmp_path)
-    monkeypatch.setenv("MMSVERIFY_CACHE", "off")
-    monkeypatch.setattr(problem_module, "MAX_LOAD_SECONDS", LOAD_BUDGET)
     yield tmp_path
     assert not list(tmp_path.rglob(f"*{CANARY}*")), "a payload in a problem file ran as code"
 
@@ -452,43 +450,29 @@ def test_code_payloads_are_refused_with_a_message_naming_the_place(hostile_env, 
 
 
 @pytest.mark.parametrize("name, text", BOMBS, ids=[b[0] for b in BOMBS])
-def test_derivation_bombs_stop_at_the_budget_or_the_size_cap_naming_the_entry(hostile_env, name, text):
-    # which guard strikes first depends on how warm sympy's caches are; either is a clear, quick refusal.
-    # Start from cold caches, so what earlier tests derived cannot change the path sympy takes here.
+def test_derivation_bombs_stop_at_the_size_caps_naming_the_entry(hostile_env, name, text):
+    # the caps are counts, so the same file is refused the same way however warm sympy's caches are
     from sympy.core.cache import clear_cache
     clear_cache()
-    # a handler or timer left by earlier code would leave no room for the hard limit (it never overrides one)
-    assert signal_state() == ("default", 0.0)
     start = time.perf_counter()
-    with pytest.raises(ProblemError, match=f"loading took longer than {LOAD_BUDGET:g} s|has more than "
-                                           f"{problem_module.MAX_EQUATION_NODES} terms") as info:
+    with pytest.raises(ProblemError, match="(has|would have) more than [0-9]+ terms") as info:
         problem_from_text(text, source=f"{name}.toml")
-    assert time.perf_counter() - start < LOAD_BUDGET + 0.5
+    assert time.perf_counter() - start < BOMB_SECONDS
     assert re.match(rf"{name}\.toml, line \d+, \[operator(\.equations)?\] (kind|u)", str(info.value)), info.value
-    assert signal_state() == ("default", 0.0)
 
 
-def signal_state():
-    import signal
-    handler = signal.getsignal(signal.SIGALRM)
-    return ("default" if handler == signal.SIG_DFL else handler), signal.getitimer(signal.ITIMER_REAL)[0]
-
-
-def test_the_size_cap_on_derived_terms_holds_where_no_time_limit_can(hostile_env, monkeypatch):
-    # In a worker thread SIGALRM cannot interrupt sympy; the node cap still refuses a term that is too large.
-    from concurrent.futures import ThreadPoolExecutor
+def test_the_size_cap_on_derived_terms_refuses_a_term_that_is_too_large(hostile_env, monkeypatch):
     monkeypatch.setattr(problem_module, "MAX_EQUATION_NODES", 2000)
     text = "[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = " + _toml_str(_factors("x", 8, 1) + "*" +
                                                                        _factors("y", 8, 1)) + "\n"
-    with ThreadPoolExecutor(1) as pool:
-        with pytest.raises(ProblemError, match="source term of equation 'u' has more than 2000") as info:
-            pool.submit(problem_from_text, text, "threaded.toml").result()
-    assert str(info.value).startswith("threaded.toml, [operator] kind: ")
+    with pytest.raises(ProblemError, match="source term of equation 'u' has more than 2000") as info:
+        problem_from_text(text, "large.toml")
+    assert str(info.value).startswith("large.toml, [operator] kind: ")
     monkeypatch.setattr(problem_module, "MAX_EQUATION_NODES", 10**6)
-    assert problem_from_text(text, "threaded.toml").equations["u"] != 0
+    assert problem_from_text(text, "large.toml").equations["u"] != 0
 
 
-def test_an_expression_keeps_its_own_time_limit_inside_the_file_budget(hostile_env, monkeypatch):
+def test_products_of_radicals_are_refused_by_their_size(hostile_env):
     # 64th roots of large numbers combine into ever larger ones inside sympy (see test_expr.py)
     leaves = [f"exp(log(1e99+{2 * i + 1})/64)" for i in range(64)]
 
@@ -496,17 +480,10 @@ def test_an_expression_keeps_its_own_time_limit_inside_the_file_budget(hostile_e
         half = len(items) // 2
         return items[0] if len(items) == 1 else f"({join(items[:half])}*{join(items[half:])})"
     text = "[domain]\nx = [0, 1]\n[fields]\nu = " + _toml_str(f"x + {join(leaves)}") + "\n"
-    monkeypatch.setattr(problem_module, "MAX_LOAD_SECONDS", 30.0)
     start = time.perf_counter()
-    with pytest.raises(ProblemError, match=r"radicals.toml, line 4, \[fields\] u: expression took longer than 1"):
-        problem_from_text(text, "radicals.toml")
-    assert time.perf_counter() - start < 3
-    monkeypatch.setattr(problem_module, "MAX_LOAD_SECONDS", 0.3)  # now the file budget is the shorter one
-    start = time.perf_counter()
-    with pytest.raises(ProblemError, match=r"radicals.toml, line 4, \[fields\] u: loading took longer than 0.3 s"):
+    with pytest.raises(ProblemError, match=r"radicals.toml, line 4, \[fields\] u: number exceeds 512 bits"):
         problem_from_text(text, "radicals.toml")
     assert time.perf_counter() - start < 1.5
-    assert signal_state() == ("default", 0.0)
 
 
 @pytest.mark.parametrize("edit, fragment", [
@@ -582,7 +559,7 @@ def test_names_and_descriptions_hold_no_control_characters(hostile_env, key, val
 @pytest.mark.parametrize("key, value", INJECTIONS)
 def test_names_and_descriptions_stay_inert_in_exported_code(hostile_env, key, value):
     import ast
-    from mmsverify.export import write_export
+    from mmsverify.outputs.export import write_export
     text = f"{key} = {_toml_str(value)}\n[domain]\nx = [0, 1]\n[fields]\nu = \"sin(x)\"\n"
     problem = problem_from_text(text, "inject.toml")
     assert getattr(problem, key) == value

@@ -16,8 +16,8 @@ import warnings
 import pytest
 
 from mmsverify import run_study
-from mmsverify.baseline import load_baseline, save_baseline
-from mmsverify.cache import LevelCache, solver_identity
+from mmsverify.outputs.baseline import load_baseline, save_baseline
+from mmsverify.execute.cache import LevelCache, solver_identity
 from mmsverify.cli import main
 from mmsverify.errors import MMSError
 

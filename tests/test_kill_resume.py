@@ -3,8 +3,8 @@
 ``mmsverify run ... --cache DIR --json OUT`` runs in its own process group
 and is killed with SIGKILL (no clean-up of any kind) after a random delay,
 then started again, until one run finishes. After every kill each file the
-study keeps is checked: level records, derivation cache entries and the
-result file. A level whose record existed when a run started must not be
+study keeps is checked: level records and the result file. A level whose
+record existed when a run started must not be
 solved by that run. The finished study must hold the numbers of one run
 that was never interrupted.
 """
@@ -12,7 +12,6 @@ that was never interrupted.
 import json
 import os
 from pathlib import Path
-import pickle
 import random
 import signal
 import subprocess
@@ -23,7 +22,7 @@ import time
 import pytest
 
 from mmsverify import run_study
-from mmsverify.report.files import read_json
+from mmsverify.outputs.studyfile import read_json
 
 REPO = Path(__file__).resolve().parent.parent
 PROBLEM, LEVELS, BASE = "plate-poisson", 4, 4
@@ -56,11 +55,8 @@ def _records(cache):
 
 
 def _check_files(tmp_path):
-    """Everything the study keeps is whole: level records, derivation cache entries, the result file."""
+    """Everything the study keeps is whole: level records and the result file."""
     records = _records(tmp_path / "cache")
-    for entry in (tmp_path / "derive").glob("*.pkl"):
-        with open(entry, "rb") as fh:
-            pickle.load(fh)  # our own entries: a torn pickle raises here
     out = tmp_path / "out.json"
     if out.exists():
         read_json(out)  # a half-written result raises here
@@ -77,7 +73,7 @@ def _started(log, run_id):
 def _scenario(tmp_path, seed, workers):
     (tmp_path / "slow_solver.py").write_text(textwrap.dedent(SLOW_SOLVER))
     log = tmp_path / "calls.log"
-    env = dict(os.environ, CALL_LOG=str(log), MMSVERIFY_CACHE=str(tmp_path / "derive"),
+    env = dict(os.environ, CALL_LOG=str(log),
                PYTHONPATH=os.pathsep.join([str(tmp_path), str(REPO), os.environ.get("PYTHONPATH", "")]))
     cmd = [sys.executable, "-m", "mmsverify", "run", PROBLEM, "slow_solver:solve", "--levels", str(LEVELS),
            "--base-cells", str(BASE), "--cache", str(tmp_path / "cache"), "--json", str(tmp_path / "out.json")]
@@ -101,7 +97,7 @@ def _scenario(tmp_path, seed, workers):
             err = None
         redone += [(run, level) for level in _started(log, run) if level in finished]
         if err is not None:
-            assert proc.returncode in (0, 1), err.decode()[-2000:]
+            assert proc.returncode in (0, 1, 3), err.decode()[-2000:]  # a finished study: any verdict
             break
     else:
         pytest.fail(f"no run finished in {MAX_RUNS} attempts")

@@ -1,4 +1,4 @@
-"""Error norms: the weighted L1, L2 and Linf definitions of mmsverify.norms, on any array layout.
+"""Error norms: the weighted L1, L2 and Linf definitions of mmsverify.execute.norms, on any array layout.
 
 The definitions (volume-weighted means of |e| and e**2, and max |e|) are the
 discrete norms used in order-of-accuracy studies; Roache 1998, Verification

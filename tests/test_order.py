@@ -1,4 +1,4 @@
-"""Tests of mmsverify.order: observed orders, order fits, convergence type,
+"""Tests of mmsverify.analysis.order: observed orders, order fits, convergence type,
 asymptotic range and the least-squares procedure of Eca & Hoekstra (2014)."""
 
 import math
@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from mmsverify.errors import AnalysisError
-from mmsverify.order import (
+from mmsverify.analysis.order import (
     asymptotic_check,
     classify_convergence,
     eca_hoekstra,

@@ -5,10 +5,10 @@ from types import SimpleNamespace
 import pytest
 
 from mmsverify import run_study
-from mmsverify._origin import problem_of_record
+from mmsverify.problem.origin import problem_of_record
 from mmsverify.errors import ProblemError
-from mmsverify.problem import PROBLEM_DIR, load_problem
-from mmsverify.report.pointwise import finest_error
+from mmsverify.problem.record import PROBLEM_DIR, load_problem
+from mmsverify.render.pointwise import finest_error
 
 _TEMPLATE = "{source} | {name} | {hash} | {recorded}"
 

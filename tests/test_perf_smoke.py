@@ -1,13 +1,11 @@
 """Fast paths of derivation and evaluation, checked for correctness (never for speed).
 
-* Generated evaluators (CSE, hoisting, block evaluation, threads) against
+* Generated evaluators (CSE, hoisting, block evaluation) against
   plain sympy.lambdify of the same expression, to round-off.
 * Compressible Navier-Stokes sources against an independent route: the
   equations expanded by hand into non-conservative form and evaluated with
   mpmath numerical derivatives at 40 digits, and, for the energy equation,
   against a hand-written NumPy implementation.
-* The derivation cache: hits give an equal problem, corrupt entries are
-  rebuilt, the cache can be switched off.
 * A tiny run of each bench script, so they keep working.
 """
 
@@ -23,19 +21,18 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from mmsverify import _diskcache, derive, load_problem, problem_from_text
-from mmsverify._evaluate import BLOCK, Evaluator, build_program
-from mmsverify.derive import _Programs
+from mmsverify import derive, load_problem, problem_from_text
+from mmsverify.problem.evaluate import BLOCK, Evaluator, build_program
+from mmsverify.problem.derive import _Programs
 
 ROOT = Path(__file__).resolve().parent.parent
 
 
 @pytest.fixture(autouse=True)
-def private_cache(tmp_path, monkeypatch):
-    """Every test gets its own cache directory."""
-    monkeypatch.setenv("MMSVERIFY_CACHE", str(tmp_path / "cache"))
+def fresh_programs():
+    """Every test generates its evaluators anew."""
     _Programs._memory.clear()
-    yield tmp_path / "cache"
+    yield
     _Programs._memory.clear()
 
 
@@ -120,15 +117,6 @@ def test_three_d_transient_and_partial_dependence():
     assert const(X, Y, Z, 1.0).shape == (13, 11, 9) and np.all(const(X, Y, Z, 1.0) == 3.0)
 
 
-def test_threads_give_identical_values():
-    p = load_problem("compressible-2d")
-    prog = build_program(p.equations["v"], p.coords)
-    x, y = np.linspace(0, 1, 200)[:, None], np.linspace(0, 1, 120)[None, :]
-    one = Evaluator(prog, block=512, threads=1)(x, y)
-    two = Evaluator(prog, block=512, threads=2)(x, y)
-    assert np.array_equal(one, two)
-
-
 def test_whole_powers_erf_and_exact_float_literals():
     x, y = sp.symbols("x y", real=True)
     expr = (x + 2) ** 5 / (y + 3) ** 3 + sp.erf(x) + sp.Float(0.1 + 0.2) * y + sp.Min(x, y)
@@ -147,11 +135,9 @@ def test_pickled_evaluator_and_program_round_trip():
     assert float(again(0.5, 2.0)) == pytest.approx(np.sin(1.0) + np.cos(0.5), rel=1e-15)
 
 
-@pytest.mark.parametrize("name,n,threads", [("compressible-2d", 700, 1), ("compressible-2d", 220, 2),
-                                            ("compressible-3d", 36, 1)])
-def test_peak_temporaries_stay_within_four_full_arrays(name, n, threads, monkeypatch):
+@pytest.mark.parametrize("name,n", [("compressible-2d", 700), ("compressible-2d", 220), ("compressible-3d", 36)])
+def test_peak_temporaries_stay_within_four_full_arrays(name, n):
     # issue 9 target 2: peak temporary memory at most 4 full arrays (output included here)
-    monkeypatch.setenv("MMSVERIFY_THREADS", str(threads))
     p = load_problem(name)
     m = derive(p)
     mesh = np.meshgrid(*[np.linspace(0, 1, n)] * p.dim, indexing="ij")
@@ -309,111 +295,12 @@ def test_compressible_traction_is_the_viscous_stress():
     assert got == pytest.approx(float(expected.subs({x: 0.3, y: 2.0})), rel=1e-13)
 
 
-# -- derivation cache -------------------------------------------------------
-
-def _count_reads(monkeypatch):
-    from mmsverify import problem as problem_module
-    calls = []
-    original = problem_module._Reader.read
-
-    def counting(self):   # derivations that gave a problem (the fast engine may step aside first)
-        problem = original(self)
-        calls.append(self.source)
-        return problem
-    monkeypatch.setattr(problem_module._Reader, "read", counting)
-    return calls
-
-
-def test_cache_hit_returns_an_equal_problem_without_deriving(private_cache, monkeypatch):
-    calls = _count_reads(monkeypatch)
-    text = (ROOT / "problems" / "compressible-2d.toml").read_text()
-    first = problem_from_text(text, "a/compressible-2d.toml")
-    second = problem_from_text(text, "a/compressible-2d.toml")
-    assert calls == ["a/compressible-2d.toml"]
-    assert second == first and second.content_hash() == first.content_hash()
-    assert _diskcache.flush() and any(private_cache.glob("problem-*.pkl"))
-    # same content elsewhere: still a hit; name and source follow the new place
-    text_without_name = text.replace('name = "compressible-2d"\n', "")
-    problem_from_text(text_without_name, "b/first.toml")
-    moved = problem_from_text(text_without_name, "c/second.toml")
-    assert calls == ["a/compressible-2d.toml", "b/first.toml"]
-    assert moved.name == "second" and moved.source == "c/second.toml"
-
-
-def test_corrupt_or_truncated_entry_is_rebuilt(private_cache, monkeypatch):
-    calls = _count_reads(monkeypatch)
-    text = (ROOT / "problems" / "cavity-flow.toml").read_text()
-    good = problem_from_text(text)
-    _diskcache.flush()
-    (entry,) = private_cache.glob("problem-*.pkl")
-    for damage in (b"not a pickle", entry.read_bytes()[:100]):
-        entry.write_bytes(damage)
-        again = problem_from_text(text)
-        assert again.content_hash() == good.content_hash()
-        _diskcache.flush()
-        assert pickle.loads(entry.read_bytes()).content_hash() == good.content_hash()   # rewritten whole
-    assert len(calls) == 3                                     # nothing asked for the sympy tables
-    assert again == good and len(calls) == 5                   # which are read from the kept text
-
-
-def test_cache_can_be_switched_off(tmp_path, monkeypatch):
-    monkeypatch.setenv("MMSVERIFY_CACHE", "off")
-    calls = _count_reads(monkeypatch)
-    text = (ROOT / "problems" / "cavity-flow.toml").read_text()
-    assert problem_from_text(text).content_hash() == problem_from_text(text).content_hash()
-    assert len(calls) == 2
-    assert _diskcache.cache_dir() is None and _diskcache.clear() == 0
-
-
-def test_generated_programs_come_back_from_disk(private_cache, monkeypatch):
-    m = derive("compressible-2d")
-    before = m.source("p", 0.3, 0.4)
-    assert _diskcache.flush() and any(private_cache.glob("programs-*.pkl"))
-    _Programs._memory.clear()                      # as in a new process
-
-    def no_building(*args):
-        raise AssertionError("program rebuilt although it is cached")
-    monkeypatch.setattr(sys.modules["mmsverify.derive"], "build_program", no_building)
-    assert float(derive("compressible-2d").source("p", 0.3, 0.4)) == float(before)
-
-
-def test_entries_of_other_users_or_writable_by_others_are_ignored(private_cache):
-    problem_from_text((ROOT / "problems" / "cavity-flow.toml").read_text())
-    _diskcache.flush()
-    (entry,) = private_cache.glob("problem-*.pkl")
-    key = entry.stem.split("-", 1)[1]
-    assert _diskcache.load("problem", key) is not None
-    entry.chmod(0o666)
-    assert _diskcache.load("problem", key) is None
-
-
-def test_stale_temporaries_are_removed_when_an_entry_is_written(private_cache):
-    # a writer killed between writing and renaming leaves .<kind>-*.tmp; fresh ones may be live writers
-    import os
-    import time
-    private_cache.mkdir(parents=True, exist_ok=True)
-    old, fresh = private_cache / ".problem-old.tmp", private_cache / ".problem-fresh.tmp"
-    for f in (old, fresh):
-        f.write_bytes(b"half a pickle")
-    hour_ago = time.time() - _diskcache.STALE_SECONDS - 60
-    os.utime(old, (hour_ago, hour_ago))
-    assert _diskcache.store("problem", "k" * 40, {"x": 1}) and _diskcache.flush()
-    assert not old.exists() and fresh.exists()
-    assert _diskcache.load("problem", "k" * 40) == {"x": 1}
-
-
-def test_key_depends_on_every_part():
-    assert _diskcache.make_key("problem", "a") != _diskcache.make_key("problem", "b")
-    assert _diskcache.make_key("ab", "c") != _diskcache.make_key("a", "bc")
-
-
 # -- bench scripts stay working -----------------------------------------------
 
 @pytest.mark.parametrize("script", ["evaluators.py", "derivation.py", "first_contact.py"])
-def test_bench_script_runs_at_tiny_size(script, tmp_path):
-    env = {**__import__("os").environ, "MMSVERIFY_CACHE": str(tmp_path / "bench-cache")}
+def test_bench_script_runs_at_tiny_size(script):
     run = subprocess.run([sys.executable, str(ROOT / "bench" / script), "--tiny"], capture_output=True,
-                         text=True, env=env, timeout=600, cwd=ROOT)
+                         text=True, timeout=600, cwd=ROOT)
     assert run.returncode == 0, run.stdout + run.stderr
     assert "ratio" in run.stdout or "total" in run.stdout
     if script == "first_contact.py":        # the demo itself behaved as designed in both runs

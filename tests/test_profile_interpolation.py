@@ -1,4 +1,4 @@
-"""Interpolation of coarse profiles to the fine points in mmsverify.profile.gci_profile:
+"""Interpolation of coarse profiles to the fine points in mmsverify.analysis.profile.gci_profile:
 cubic where the points allow, and an estimate of the linear interpolation error."""
 
 import numpy as np
@@ -6,7 +6,7 @@ import pytest
 
 from mmsverify.cli import main
 from mmsverify.errors import AnalysisError
-from mmsverify.gci import gci_profile
+from mmsverify.analysis.gci import gci_profile
 
 from _helpers import no_nan
 

@@ -6,9 +6,9 @@ import pytest
 
 from mmsverify import run_study
 from mmsverify.cli import build_parser
-from mmsverify.grids import Grid
-from mmsverify.progress import NORMAL, QUIET, VERBOSE, LevelProgress, interactive, verbosity
-from mmsverify.study import LevelResult
+from mmsverify.execute.grids import Grid
+from mmsverify.cli.progress import NORMAL, QUIET, VERBOSE, LevelProgress, interactive, verbosity
+from mmsverify.study.refinement import LevelResult
 
 
 class _Tty(io.StringIO):
@@ -87,12 +87,12 @@ def test_flags_exclude_each_other(capsys):
 
 def test_verbose_logs_to_the_current_stderr(capsys, tmp_path):
     from mmsverify.cli import main
-    assert main(["baseline", "save", "plate-poisson", "poisson2d", "--levels", "3", "-o", str(tmp_path / "b.json"),
+    assert main(["baseline", "save", "plate-poisson", "poisson2d", "--levels", "4", "-o", str(tmp_path / "b.json"),
                  "--quiet"]) == 0
     capsys.readouterr()
     assert main(["--verbose", "baseline", "check", str(tmp_path / "b.json")]) == 0
     err = capsys.readouterr().err
-    assert "mmsverify: INFO: rerunning the 3 levels of baseline plate-poisson" in err
-    assert "3/3 levels run; level 2 done" in err
+    assert "mmsverify: INFO: rerunning the 4 levels of baseline plate-poisson" in err
+    assert "4/4 levels run; level 3 done" in err
     assert main(["--quiet", "baseline", "check", str(tmp_path / "b.json")]) == 0
     assert capsys.readouterr().err == ""

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from mmsverify import Solution, SolverError, run_study
-from mmsverify.runner import run_studies
+from mmsverify.execute.runner import run_studies
 from solvers_demo.fd.poisson import solve as fd_solve
 
 PROBLEM = "plate-poisson"  # 2-D Poisson, second order; the bundled solver confirms it on 4 levels
@@ -59,9 +59,9 @@ def test_process_pool_gives_the_serial_result():
 def test_any_executor_and_progress_callback():
     seen = []
     with ThreadPoolExecutor(2) as pool:
-        result = run_study(PROBLEM, "poisson2d", levels=3, executor=pool, progress=seen.append)
+        result = run_study(PROBLEM, "poisson2d", levels=4, executor=pool, progress=seen.append)
     assert result.passed
-    assert sorted(lv.level for lv in seen) == [0, 1, 2]
+    assert sorted(lv.level for lv in seen) == [0, 1, 2, 3]
 
 
 def test_crash_nan_and_wrong_shape_are_recorded_per_level():
@@ -105,7 +105,7 @@ def test_bad_limits_are_refused():
 
 
 def test_several_studies_in_parallel():
-    jobs = [{"problem": PROBLEM, "solver": "poisson2d", "levels": 3},
+    jobs = [{"problem": PROBLEM, "solver": "poisson2d", "levels": 4},
             {"problem": PROBLEM, "solver": "poisson2d-neumann1", "levels": 3}]
     good, bad = run_studies(jobs, workers=2)
     assert good.solver == "poisson2d" and bad.solver == "poisson2d-neumann1"
@@ -118,17 +118,17 @@ def test_dask_local_cluster():
     distributed = pytest.importorskip("distributed", reason="Dask is optional: pip install 'mmsverify[dask]'")
     with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
                                   dashboard_address=None) as cluster, distributed.Client(cluster) as client:
-        result = run_study(PROBLEM, "poisson2d", levels=3, executor=client)
-    serial = run_study(PROBLEM, "poisson2d", levels=3)
+        result = run_study(PROBLEM, "poisson2d", levels=4, executor=client)
+    serial = run_study(PROBLEM, "poisson2d", levels=4)
     assert _errors(result) == _errors(serial)
 
 
 def test_command_line_workers_timeout_and_dask(capsys):
     from mmsverify.cli import main
-    assert main(["run", PROBLEM, "poisson2d", "--levels", "3", "--workers", "2", "--timeout", "60"]) == 0
+    assert main(["run", PROBLEM, "poisson2d", "--levels", "4", "--workers", "2", "--timeout", "60"]) == 0
     assert "PASS" in capsys.readouterr().out
     pytest.importorskip("distributed", reason="Dask is optional: pip install 'mmsverify[dask]'")
-    assert main(["run", PROBLEM, "poisson2d", "--levels", "3", "--dask", "local", "--workers", "1"]) == 0
+    assert main(["run", PROBLEM, "poisson2d", "--levels", "4", "--dask", "local", "--workers", "1"]) == 0
 
 
 def _thread_counts(_):
@@ -140,7 +140,7 @@ def _thread_counts(_):
 def test_process_pool_workers_share_the_cores(monkeypatch):
     # common practice: N processes on C cores run at most C // N BLAS threads each, or they oversubscribe
     pytest.importorskip("threadpoolctl")
-    from mmsverify.runner import _cores, process_pool
+    from mmsverify.execute.runner import _cores, process_pool
     for v in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         monkeypatch.delenv(v, raising=False)
     share = max(1, _cores() // 2)

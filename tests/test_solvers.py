@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from mmsverify import Solution, SolverError, problem_from_text
-from mmsverify.solvers import check_solution
+from mmsverify.execute.solvers import check_solution
 
 PROBLEM = problem_from_text('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "x*y"')
 X = np.linspace(0.0, 1.0, 5)[:, None]
@@ -29,8 +29,8 @@ def test_axis_points_are_broadcast_and_equal_weights_filled_in():
 
 
 def test_given_weights_are_broadcast():
-    _, _, weights = _check(weights=np.full((1, 4), 0.25))
-    assert weights.shape == (5, 4) and float(weights.sum()) == 5.0
+    _, _, weights = _check(weights=np.full((1, 4), 0.05))
+    assert weights.shape == (5, 4) and float(weights.sum()) == pytest.approx(1.0)
 
 
 @pytest.mark.parametrize("bad", [np.nan, np.inf, -np.inf])
@@ -44,8 +44,14 @@ def test_a_non_finite_value_is_counted(bad):
 
 def test_huge_finite_values_whose_sum_overflows_are_accepted():
     u = np.full((5, 4), 1e308)
-    values, _, _ = _check({"u": u}, weights=np.full((5, 4), 1e308))
+    values, _, _ = _check({"u": u}, weights=np.full((5, 4), 0.05))
     assert np.isfinite(values["u"]).all()
+
+
+def test_weights_whose_sum_overflows_are_refused():
+    # a weight is the area a point stands for: 1e308 each is no area of the unit square
+    with pytest.raises(SolverError, match=r"weights add up to inf, but the domain's area is 1"):
+        _check(weights=np.full((5, 4), 1e308))
 
 
 @pytest.mark.parametrize("which", [0, 1])
@@ -64,8 +70,8 @@ def test_bad_weights_are_refused(weights):
 
 
 def test_zero_weights_somewhere_are_fine():
-    _, _, weights = _check(weights=np.array([[0.0, 1.0, 1.0, 0.0]]))
-    assert float(weights.sum()) == 10.0
+    _, _, weights = _check(weights=np.array([[0.0, 0.1, 0.1, 0.0]]))
+    assert float(weights.sum()) == pytest.approx(1.0)
 
 
 def test_shape_mismatches_name_the_shapes():

@@ -213,8 +213,8 @@ def test_fv_limited_advection_loses_order_at_extrema(grid):
 
 
 def test_bundled_demo_solvers_resolve():
-    from mmsverify.solvers import BUNDLED_SOLVERS, resolve_solver
-    demo = [name for name, target in BUNDLED_SOLVERS.items() if target.startswith("solvers_demo.")]
+    from mmsverify.execute.solvers import registered_solvers, resolve_solver
+    demo = [name for name, target in registered_solvers().items() if target.startswith("solvers_demo.")]
     assert {"poisson2d", "poisson2d-neumann1", "fd-heat-cn", "fv-diffusion-perturbed"} <= set(demo)
     for name in demo:
         solver = resolve_solver(name)

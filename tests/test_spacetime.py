@@ -6,7 +6,7 @@ import scipy.sparse as sps
 import scipy.sparse.linalg as spla
 
 from mmsverify import GridError, Solution
-from mmsverify.spacetime import run_space_time
+from mmsverify.study.spacetime import run_space_time
 
 
 def theta_heat(theta):
@@ -87,7 +87,8 @@ def test_a_refinement_past_the_budget_is_not_run_and_the_result_says_so():
     r = run_space_time("slab-heat", "fd-heat-cn", levels=3, refine_budget=0)
     assert {lv.grid.cells[0] for lv in r.time.levels} == {128}   # 8 * 2**(3 + 1), never refined
     assert [lv.grid for lv in r.space.levels] == [lv.grid for lv in refined.space.levels]  # untouched
-    assert len(r.notes) == 1
+    assert len(r.notes) == 2 and r.polluted == ("time",)   # the frozen error, then what it does to the verdict
+    assert r.notes[1].startswith("the temporal study is polluted by spatial error")
     note = r.notes[0]
     assert note.startswith("the temporal study's frozen 128 cells per direction")
     assert "past the refinement budget of 0 s" in note and "polluted" in note
@@ -110,7 +111,8 @@ def test_the_suggested_command_freezes_fine_enough():
 
 def test_split_command_budget_option_and_progress_of_every_study(capsys):
     from mmsverify.cli import main
-    assert main(["split", "slab-heat", "fd-heat-cn", "--refine-budget", "0", "--verbose"]) == 1
+    # the temporal study, swamped by the frozen spatial error, is polluted, not failed: inconclusive (3)
+    assert main(["split", "slab-heat", "fd-heat-cn", "--refine-budget", "0", "--verbose"]) == 3
     out, err = capsys.readouterr()
     assert "note: the temporal study's frozen 256 cells" in out and "--refine-budget" in out
     assert "--fine-cells" in out
@@ -129,3 +131,72 @@ def test_split_command_budget_option_and_progress_of_every_study(capsys):
 def test_a_negative_budget_is_refused():
     with pytest.raises(GridError, match="refinement budget"):
         run_space_time("slab-heat", theta_heat(1.0), refine_budget=-1)
+
+
+@pytest.mark.parametrize("mode, option", [("time", "--base-cells"), ("space", "--base-steps")])
+def test_run_in_one_mode_refuses_with_the_command_that_works(mode, option, capsys):
+    # Crank-Nicolson is O(dt**2) (LeVeque 2007, sec. 9.6): with frozen cells guessed at 256, run --mode time
+    # reported it "below" (observed 0.38); the refusal names split, which passes (test above)
+    from mmsverify.cli import main
+    assert main(["run", "slab-heat", "fd-heat-cn", "--mode", mode, "--levels", "3"]) == 2
+    err = capsys.readouterr().err
+    assert "\n    mmsverify split slab-heat fd-heat-cn --levels 3\n" in err
+    assert option in err
+    # with the frozen resolution given, fine enough, the same study runs and passes
+    frozen = ["--base-cells", "4096"] if mode == "time" else ["--base-steps", "4096"]
+    assert main(["run", "slab-heat", "fd-heat-cn", "--mode", mode, "--levels", "3", *frozen]) == 0
+
+
+FAST_HEAT = """
+name = "fast-slab"
+[domain]
+x = [0.0, 1.0]
+t = [0.0, 0.5]
+[fields]
+T = "1 + exp(-3*t) * sin(1.3*pi*x + 0.4) + 0.2*x*cos(6*t)"
+[operator]
+kind = "diffusion"
+k = 0.5
+rho_c = 1.2
+[order]
+space = 2
+time = 2
+"""
+
+
+def test_a_first_order_time_scheme_does_not_fail_the_spatial_study():
+    # Implicit Euler is O(dt) (LeVeque 2007, sec. 9.4), here against a claimed time order 2. The time study
+    # rightly fails. The frozen steps of the spatial study used to be sized by the formal time order, which
+    # left a time error that bent the spatial order of the correct O(h**2) stencil to 1.05 (a spatial FAIL);
+    # sized by the measured time order (1) they leave it negligible
+    from mmsverify import problem_from_text
+    problem = problem_from_text(FAST_HEAT)
+    r = run_space_time(problem, theta_heat(1.0), levels=4)
+    assert not r.time.passed and {v.status for v in r.time.verdicts} == {"below"}
+    assert r.space.passed, str(r.space)
+    assert r.polluted == ()
+
+
+def test_a_polluted_study_is_named_not_failed():
+    # the same scheme with the frozen steps fixed by the caller: the time error swamps the spatial one
+    from mmsverify import problem_from_text
+    problem = problem_from_text(FAST_HEAT)
+    r = run_space_time(problem, theta_heat(1.0), levels=3, fine_steps=16)
+    assert r.polluted == ("space",)
+    assert "space     POLLUTED" in r.summary()
+    assert any(n.startswith("the spatial study is polluted by temporal error") and "measured 0.9" in n
+               for n in r.notes), r.notes
+    assert r.outcome == "fail"      # the time study fails on its own evidence
+
+
+def test_only_polluted_studies_failing_is_inconclusive():
+    from mmsverify.study.spacetime import SpaceTimeResult
+
+    class Study:
+        def __init__(self, outcome):
+            self.outcome, self.passed = outcome, outcome == "pass"
+    fail, ok, unsure = Study("fail"), Study("pass"), Study("inconclusive")
+    assert SpaceTimeResult(fail, ok, ok, polluted=("space",)).outcome == "inconclusive"
+    assert SpaceTimeResult(fail, fail, ok, polluted=("space",)).outcome == "fail"
+    assert SpaceTimeResult(ok, unsure, ok).outcome == "inconclusive"
+    assert SpaceTimeResult(ok, ok, ok).outcome == "pass"

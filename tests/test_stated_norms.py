@@ -6,9 +6,9 @@ import pytest
 
 from mmsverify import AnalysisError, MMSError, SolverError, run_study
 from mmsverify.cli import main
-from mmsverify.norms import NORMS
-from mmsverify.report.files import read_json, study_from_data, study_to_data, write_json
-from mmsverify.study import judged_norms
+from mmsverify.execute.norms import NORMS
+from mmsverify.outputs.studyfile import read_json, study_from_data, study_to_data, write_json
+from mmsverify.study.refinement import judged_norms
 from solvers_demo.ns.staggered import StaggeredNS
 
 LINE = "p judged in L1, L2 as the solver states (Linf measured, not judged)"
@@ -55,8 +55,8 @@ def test_staggered_ns_is_judged_in_the_norms_it_states(cavity):
 
 
 def test_other_formats_carry_the_line(cavity):
-    from mmsverify.report.html import html_text
-    from mmsverify.report.markdown import markdown_text
+    from mmsverify.render.html import html_text
+    from mmsverify.render.markdown import markdown_text
     assert f"- Note: {LINE}" in markdown_text(cavity)
     assert f"<li>Note: {LINE}</li>" in html_text(cavity, figures=False)
 

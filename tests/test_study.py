@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from mmsverify import Grid, GridError, Solution, SolverError, refinement, run_study
-from mmsverify.grids import check_refinement
+from mmsverify.execute.grids import check_refinement
 
 
 @pytest.fixture(scope="module")
@@ -38,12 +38,14 @@ def test_first_order_neumann_variant_is_flagged():
         assert v.status == "below"
         if v.norm == "value":           # the reported quantities fall to first order with the field
             continue
-        assert "formal 2" in v.reason and "observed 0.9" in v.reason or "observed 1.0" in v.reason
+        assert "formal 2" in v.reason and "converging to another order" in v.reason
+        assert v.interval[1] < 1.9 and abs(v.observed - 1.0) < 0.2
 
 
 def test_verdict_reason_states_levels_order_and_tolerance(good):
     v = good.verdicts[1]
-    assert v.reason.startswith("observed 2.00 on levels 3-4; formal 2; within 0.1")
+    assert v.reason.startswith("observed 2.00 [") and "levels 0-4" in v.reason
+    assert "formal 2 +- 0.1; within the tolerance" in v.reason
 
 
 def _one_level_fault(fault):
@@ -76,7 +78,9 @@ def test_a_failing_level_is_recorded_and_the_study_goes_on(fault, words):
     assert words in failed[0].message
     assert "level 1" in failed[0].message
     assert all(lv.ok for lv in r.levels if lv.level != 1)
-    assert r.orders_confirmed and not r.passed  # levels 0, 2, 3 support the order; a failed level is a defect
+    # levels 0, 2, 3 support the order of u; a failed level is a defect. (edge_slope, still bending at
+    # orders 1.78 and 1.99, gets a 95 % interval from one degree of freedom that cannot decide)
+    assert all(v.ok for v in r.verdicts if v.field == "u") and not r.passed
     assert str(r).splitlines()[0].endswith("(level 1 failed; the orders are judged on the others)")
 
 
@@ -129,9 +133,10 @@ def test_a_solver_is_judged_against_the_order_it_states():
     first_order_claim.formal_order = 1
     r = run_study("plate-poisson", first_order_claim, levels=3)
     assert r.formal_order == 1 and r.order_source == "solver"
-    assert {v.status for v in r.verdicts} == {"above"}
+    assert {v.status for v in r.verdicts if v.field == "u"} == {"above"}
+    assert {v.status for v in r.verdicts} <= {"above", "inconclusive"}
     assert "stated by the solver" in str(r)
-    r = run_study("plate-poisson", first_order_claim, levels=3, formal_order=2)
+    r = run_study("plate-poisson", first_order_claim, levels=4, formal_order=2)
     assert r.passed and r.order_source == "caller"
 
 
@@ -196,19 +201,27 @@ def test_a_stated_time_order_is_noted_where_it_was_used():
     assert r.order_conflicts == ({"axis": "time", "solver": 2.0, "problem": 1.0, "used_for": "grids"},)
     assert "note: the solver states time order 2; the problem file's [order] time = 1; the time steps were " \
            "planned with the solver's" in str(r)
-    r = run_study("slab-heat", "fd-heat-cn", levels=2, mode="time")
+    r = run_study("slab-heat", "fd-heat-cn", levels=2, mode="time", base_cells=256)
     assert [c["used_for"] for c in r.order_conflicts] == ["verdicts"]
     assert r.notes == ("the solver states time order 2; the problem file's [order] time = 1; judged against "
                        "the solver's",)
     # given steps in space mode: the stated time order shaped nothing, so nothing to say
     assert run_study("slab-heat", "fd-heat-cn", levels=2, mode="space", base_steps=64).order_conflicts == ()
-    r = run_study("slab-heat", "fd-heat-euler", levels=2, mode="time")
+    r = run_study("slab-heat", "fd-heat-euler", levels=2, mode="time", base_cells=256)
     assert r.order_conflicts == () and r.notes == ()
+
+
+@pytest.mark.parametrize("mode, option", [("time", "base_cells"), ("space", "base_steps")])
+def test_a_one_sided_study_does_not_guess_its_frozen_resolution(mode, option):
+    # Crank-Nicolson (second order in time, Crank & Nicolson 1947) on slab-heat: with the cells frozen at the
+    # count the plan used to guess (256), the spatial error stalled the time order at 0.38 (a false "below")
+    with pytest.raises(GridError, match=f"give the frozen .*\\({option}\\).*mmsverify split"):
+        run_study("slab-heat", "fd-heat-cn", levels=3, mode=mode)
 
 
 def test_no_order_note_when_the_file_states_no_order():
     # a file without [order] holds defaults, not a claim the solver could contradict
-    from mmsverify.problem import load_problem, problem_from_text
+    from mmsverify.problem.record import load_problem, problem_from_text
     text = load_problem("plate-poisson").source
     with open(text, encoding="utf-8") as fh:
         body = fh.read()

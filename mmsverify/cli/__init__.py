@@ -4,35 +4,40 @@ Each command lives in its own module ``_<name>.py`` with a ``register``
 function that adds its sub-parser and sets ``func``. Exit codes:
 
 * 0: every verdict confirmed (or the command succeeded)
-* 1: a verdict failed (observed order off the formal order)
-* 2: bad input (problem file, solver, grid sequence, data), or a study in which no level ran
-* 3: inconclusive (levels failed or errors at round-off; nothing to judge)
+* 1: the evidence says an order is off (a fitted interval outside the tolerance), or a level failed
+* 2: bad input (problem file, solver, grid sequence, data, a tolerance at or above half the formal
+  order), or a study in which no level ran
+* 3: inconclusive: the levels cannot decide (an error floor, too few levels in the asymptotic range,
+  errors at round-off)
 
-Only the chosen command's module is imported: ``main`` hands its arguments
-to :func:`build_parser`, which builds the sub-parser of that command alone
-when the first argument names one (after ``--verbose``/``--quiet``), and
-every sub-parser otherwise (``--help``, no command, an unknown command), so
-the top-level help and argparse's list of valid choices stay complete.
+Other installed packages may add commands through the entry-point group
+``mmsverify.commands`` (name = "module:register"); the demo package adds
+``mistakes`` so.
 """
 
 import argparse
-import gc
 import importlib
 import sys
 
-from ..errors import MMSError
+from mmsverify.errors import MMSError
 
 __all__ = ["main", "console", "EXIT_OK", "EXIT_FAIL", "EXIT_INPUT", "EXIT_INCONCLUSIVE"]
 
 EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_INCONCLUSIVE = 0, 1, 2, 3
 
 # Command modules, in the order `--help` lists them.
-_COMMANDS = ("_demo", "_run", "_derive", "_list", "_split", "_export", "_report", "_baseline", "_estimate", "_audit", "_catalogue")
-# Command names (and aliases) whose module is not `_<name>`; a command missing here and
-# from this rule is still found, by building every sub-parser.
-_MODULE_OF = {"mistakes": "_catalogue"}
-# Top-level options that may come before the command name and take no value.
-_PLAIN_OPTIONS = ("--verbose", "--quiet")
+_COMMANDS = ("_demo", "_run", "_derive", "_list", "_split", "_export", "_report", "_baseline", "_estimate", "_audit")
+#: Entry-point group of commands other packages add: name = "module:register".
+COMMAND_GROUP = "mmsverify.commands"
+
+
+def _plugin_commands():
+    """Commands registered by installed packages: name -> entry point (loaded only when used)."""
+    from importlib.metadata import entry_points
+    found = {}
+    for ep in entry_points(group=COMMAND_GROUP):
+        found.setdefault(ep.name, ep)
+    return found
 
 
 def comma_choices(text, allowed, what):
@@ -44,31 +49,8 @@ def comma_choices(text, allowed, what):
     return chosen
 
 
-def _command_module(name):
-    """The module in ``_COMMANDS`` that registers command ``name``, or None."""
-    module = _MODULE_OF.get(name, f"_{name}")
-    return module if module in _COMMANDS else None
-
-
-def _chosen_module(argv):
-    """The module of the command ``argv`` names, or None when every sub-parser is needed."""
-    for token in argv:
-        if token not in _PLAIN_OPTIONS:  # the first other token is the command, or needs all
-            return _command_module(token) if isinstance(token, str) else None
-    return None
-
-
-def build_parser(argv=None):
-    """The argument parser; with ``argv``, only the sub-parser of the command it names.
-
-    Parameters
-    ----------
-    argv : list of str, optional
-        The arguments the parser will read. When the first of them (after
-        ``--verbose``/``--quiet``) is a command, only that command's module
-        is imported and registered; otherwise, and without ``argv``, every
-        command is. The parser must then be used on these arguments only.
-    """
+def build_parser():
+    """The argument parser with every command, built-in and contributed by installed packages."""
     parser = argparse.ArgumentParser(
         prog="mmsverify",
         description="Prove a PDE solver converges at its design order with manufactured solutions, "
@@ -76,38 +58,31 @@ def build_parser(argv=None):
         epilog="Exit codes: 0 confirmed, 1 order not confirmed, 2 bad input or no level ran, 3 inconclusive.")
     parser.add_argument("--version", action="version", version=f"%(prog)s {__import__('mmsverify').__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    chosen = None if argv is None else _chosen_module(argv)
-    for name in (chosen,) if chosen else _COMMANDS:
+    for name in _COMMANDS:
         importlib.import_module(f"{__name__}.{name}").register(sub)
-    from ..progress import add_verbosity_options
+    for name, ep in _plugin_commands().items():
+        if name not in sub.choices:
+            try:
+                ep.load()(sub)
+            except Exception as exc:  # a broken plugin must not take the built-in commands down
+                print(f"mmsverify: warning: command {name!r} from {ep.value} could not be loaded: {exc}",
+                      file=sys.stderr)
+    from mmsverify.cli.progress import add_verbosity_options
     add_verbosity_options(parser)
     for command in sub.choices.values():
         add_verbosity_options(command, sub=True)
     return parser
 
 
-def main(argv=None, *, own_process=False):
-    """Run the command line; returns the exit code.
-
-    ``own_process=True`` says that this process runs this one command and
-    then exits (the ``mmsverify`` program, ``python -m mmsverify``): every
-    object made before the work starts (modules, the problem, the solver's
-    module) lives until the exit, so it is frozen out of the garbage
-    collector (:func:`gc.freeze`). Otherwise a full collection walks them
-    all once, at a moment set by allocation counts, in the middle of a
-    study: about 25 ms here. In-process callers (tests, notebooks) leave it
-    False, so nothing of theirs is kept from the collector.
-    """
+def main(argv=None):
+    """Run the command line; returns the exit code."""
     argv = sys.argv[1:] if argv is None else list(argv)
-    parser = build_parser(argv)
+    parser = build_parser()
     args = parser.parse_args(argv)
     if not getattr(args, "func", None):
         parser.print_help()
         return EXIT_INPUT
-    args.own_process = own_process
-    if own_process:
-        gc.freeze()   # a study command freezes again once the problem and the solver's module are loaded
-    from ..progress import configure_logging, verbosity
+    from mmsverify.cli.progress import configure_logging, verbosity
     configure_logging(verbosity(args))
     try:
         return int(args.func(args) or 0)
@@ -124,5 +99,5 @@ def main(argv=None, *, own_process=False):
 
 
 def console(argv=None):
-    """Entry of the ``mmsverify`` program and of ``python -m mmsverify``: :func:`main` in a process of its own."""
-    return main(argv, own_process=True)
+    """Entry of the ``mmsverify`` program and of ``python -m mmsverify``."""
+    return main(argv)

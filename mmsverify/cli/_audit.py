@@ -1,7 +1,7 @@
 """``mmsverify audit PROBLEM``: does the manufactured solution exercise what it should?"""
 
-from ..design import SMALL_TERM, audit
-from . import EXIT_FAIL, EXIT_OK
+from mmsverify.design.checks import SMALL_TERM, audit
+from mmsverify.cli import EXIT_FAIL, EXIT_OK
 
 
 def _names(text):
@@ -13,7 +13,7 @@ def _audit(args):
               seed=args.seed, per_axis=args.samples)
     print(a)
     if args.balance:
-        from ..balance import balance
+        from mmsverify.design.balance import balance
         r = balance(args.problem, _names(args.tune) if args.tune else None, args.iterations,
                     max_factor=args.max_factor, threshold=args.threshold, per_axis=args.samples,
                     starts=args.starts, seed=args.seed)

@@ -3,12 +3,13 @@
 import json
 import sys
 
-from ..baseline import (DEFAULT_ERROR_FACTOR, check_baseline, check_data, load_baseline, recorded_solver,
-                        run_record, save_baseline)
-from ..norms import NORMS
-from ..progress import NORMAL, QUIET, VERBOSE, progress_for, verbosity
-from . import EXIT_FAIL, EXIT_INPUT, EXIT_OK, comma_choices
-from ._run import add_study_options, cache_folder, dask_client, external_from_args, option_values, study_from_args
+from mmsverify.outputs.baseline import (DEFAULT_ERROR_FACTOR, check_baseline, check_data, load_baseline,
+                                        recorded_solver, run_record, save_baseline)
+from mmsverify.execute.norms import NORMS
+from mmsverify.cli.progress import NORMAL, QUIET, VERBOSE, progress_for, verbosity
+from mmsverify.cli import EXIT_FAIL, EXIT_INPUT, EXIT_OK, comma_choices
+from mmsverify.cli._run import (add_study_options, cache_folder, dask_client, external_from_args, option_values,
+                                study_from_args)
 
 
 def _one_solver(args, command):
@@ -76,7 +77,7 @@ def _check(args):
         if args.json == "-":
             sys.stdout.write(text)
         else:
-            from ..report.files import write_atomic
+            from mmsverify.fileio import write_atomic
             write_atomic(args.json, text)
     if args.json != "-":
         level = verbosity(args)

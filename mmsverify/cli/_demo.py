@@ -1,8 +1,8 @@
 """``mmsverify demo``: the bundled demonstration, no configuration needed."""
 
-from ..report.text import CAUTION, format_study
-from ..study import run_study
-from . import EXIT_FAIL, EXIT_OK
+from mmsverify.render.text import CAUTION, format_study
+from mmsverify.study.refinement import run_study
+from mmsverify.cli import EXIT_FAIL, EXIT_OK
 
 PROBLEM = "plate-poisson"
 CORRECT = "poisson2d"

@@ -2,7 +2,7 @@
 
 import sympy as sp
 
-from ..derive import derive
+from mmsverify.problem.derive import derive
 
 
 def _derive(args):

@@ -2,7 +2,7 @@
 
 Three forms:
 
-* ``mmsverify estimate levels.csv`` - a level table (see :mod:`mmsverify.levels`);
+* ``mmsverify estimate levels.csv`` - a level table (see :mod:`mmsverify.analysis.gridvalues`);
 * ``mmsverify estimate --values 6.063,5.972,5.863 --cells 18000,8000,4500 --dim 2``;
 * ``mmsverify estimate --profile coarse.csv medium.csv fine.csv --cells ... --dim 2``
   for a line or field sampled on three grids (interpolated to the fine points).
@@ -16,10 +16,10 @@ contradict the order the sizes give, the command refuses and names the files.
 import json
 from pathlib import Path
 
-from ..errors import AnalysisError
-from ..estimate import assess, assess_table, load_levels, load_profile
-from ..gci import gci_profile, plot_profile
-from . import EXIT_FAIL, EXIT_OK
+from mmsverify.errors import AnalysisError
+from mmsverify.analysis.estimate import assess, assess_table, load_levels, load_profile
+from mmsverify.analysis.gci import gci_profile, plot_profile
+from mmsverify.cli import EXIT_FAIL, EXIT_OK
 
 
 # Messages of the Python functions name their keywords; on the command line the flags do that job.

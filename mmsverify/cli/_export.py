@@ -2,7 +2,7 @@
 
 import sys
 
-from ..export import LANGUAGES, export_code, write_export
+from mmsverify.outputs.export import LANGUAGES, export_code, write_export
 
 
 def _export(args):

@@ -1,8 +1,8 @@
 """``mmsverify list``: bundled problems, solvers and operators."""
 
-from ..operators import OPERATORS
-from ..problem import PROBLEM_DIR, bundled_problems, load_problem
-from ..solvers import BUNDLED_SOLVERS
+from mmsverify.problem.operators import OPERATORS
+from mmsverify.problem.record import PROBLEM_DIR, bundled_problems, load_problem
+from mmsverify.execute.solvers import registered_solvers
 
 
 def _list(args):
@@ -17,8 +17,8 @@ def _list(args):
     kind = max(len(r[1]) for r in rows) if rows else 0
     for name, what, text in rows:
         print(f"  {name:<28} {what:<{kind}}  {text}")
-    print("\nSolvers:")
-    for name, target in BUNDLED_SOLVERS.items():
+    print("\nSolvers (registered by installed packages):")
+    for name, target in registered_solvers().items():
         print(f"  {name:<28} {target}")
     print("\nOperators (problem files: [operator] kind = ...):")
     for op in OPERATORS.values():

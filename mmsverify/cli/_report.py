@@ -3,12 +3,12 @@
 import sys
 from pathlib import Path
 
-from ..errors import MMSError
-from ..progress import QUIET, progress_for, verbosity
-from ..report import FORMATS, write_reports
-from ..report._common import headline, outcome
-from . import EXIT_INPUT, comma_choices
-from ._run import add_study_options, exit_code, external_from_args, study_from_args
+from mmsverify.errors import MMSError
+from mmsverify.cli.progress import QUIET, progress_for, verbosity
+from mmsverify.outputs.reports import FORMATS, write_reports
+from mmsverify.render.wording import headline
+from mmsverify.cli import EXIT_INPUT, comma_choices
+from mmsverify.cli._run import add_study_options, exit_code, external_from_args, study_from_args
 
 
 def _formats(text):
@@ -25,7 +25,7 @@ def _report(args):
         if args.problem or args.solver or args.external:
             print("mmsverify report: give either --from FILE or PROBLEM SOLVER, not both", file=sys.stderr)
             return EXIT_INPUT
-        from ..report.files import read_json
+        from mmsverify.outputs.studyfile import read_json
         result = read_json(args.source)
         want_map = args.map
     else:
@@ -38,7 +38,7 @@ def _report(args):
         want_map = not args.no_map
     pointwise = None
     if want_map and {"md", "html"} & set(formats):
-        from ..report.pointwise import finest_error
+        from mmsverify.render.pointwise import finest_error
         try:
             pointwise = finest_error(result, solver=external_from_args(args) or args.solver or None,
                                      problem=args.problem or None)
@@ -47,7 +47,7 @@ def _report(args):
     output = args.output or (Path(args.source).parent if args.source else _DEFAULT_OUTPUT)
     written = write_reports(result, output, formats, pointwise, stem=args.name)
     if verbosity(args) == QUIET:
-        print(f"{outcome(result).upper()}: {headline(result)}")
+        print(f"{result.outcome.upper()}: {headline(result)}")
     else:
         print(result)
         print()

@@ -1,21 +1,21 @@
 """``mmsverify run PROBLEM SOLVER``: a manufactured-solution study."""
 
-import gc
 import shlex
 import sys
 from pathlib import Path
 
-from ..errors import SolverError
-from ..external import OUTPUT_FORMATS, ExternalSolver
-from ..solvers import resolve_solver
-from ..study import MODES, run_study
-from . import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_INPUT, EXIT_OK
+from mmsverify.errors import SolverError
+from mmsverify.execute.external import OUTPUT_FORMATS, ExternalSolver
+from mmsverify.execute.solvers import resolve_solver
+from mmsverify.study.refinement import MODES, run_study
+from mmsverify.cli import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_INPUT, EXIT_OK
 
 
 def add_study_options(p, grid=True):
     """The options of a study; ``grid=False`` leaves out the plan (levels, mode, formal order, norms), for
     ``baseline check``, which reruns the baseline's grids under its rules."""
-    p.add_argument("--tolerance", type=float, help="allowed |observed - formal| order (default: problem's)")
+    p.add_argument("--tolerance", type=float,
+                   help="allowed |observed - formal| order, below half the formal order (default: problem's)")
     p.add_argument("--option", action="append", default=[], metavar="NAME=VALUE",
                    help="solver option passed in case.options, e.g. --option grid=perturbed (repeatable)")
     add_execution_options(p)
@@ -64,10 +64,9 @@ def add_execution_options(p):
 
 def exit_code(result):
     """0 confirmed, 1 an order missed, 3 inconclusive; 2 when no level ran (a set-up the solver refuses)."""
-    from ..report._common import outcome
     if result.levels and not any(lv.ok for lv in result.levels):
         return EXIT_INPUT
-    return {"pass": EXIT_OK, "fail": EXIT_FAIL}.get(outcome(result), EXIT_INCONCLUSIVE)
+    return {"pass": EXIT_OK, "fail": EXIT_FAIL}.get(result.outcome, EXIT_INCONCLUSIVE)
 
 
 def _param(text):
@@ -84,11 +83,11 @@ def _param(text):
 
 
 def _norm_list(text):
-    from ..errors import AnalysisError
-    from ..norms import NORMS
-    from . import comma_choices
+    from mmsverify.errors import AnalysisError
+    from mmsverify.execute.norms import NORMS
+    from mmsverify.cli import comma_choices
     if not text:
-        return None     # the solver's stated norms, else all (see mmsverify.study.judged_norms)
+        return None     # the solver's stated norms, else all (see mmsverify.study.refinement.judged_norms)
     try:
         return comma_choices(text, NORMS, "norm")
     except ValueError as exc:
@@ -127,26 +126,38 @@ def dask_client(address, workers):
     return distributed.Client(address)
 
 
-def settle(args):
-    """In a process of its own (see :func:`mmsverify.cli.main`): load the solver's module, then freeze.
+def _frozen_refused(args, problem, solver):
+    """The GridError for ``--mode time|space`` on a transient problem with the frozen resolution not given.
 
-    The module and its libraries are imported now rather than inside the
-    study, so that they are frozen out of the garbage collector with
-    everything else made so far. A name that cannot be imported fails here,
-    before any work. Cheap to repeat. In ``run`` this comes before the
-    design checks start: a solver module that starts threads when imported
-    makes them run in this process instead of a forked child (see
-    :mod:`._designbg`).
+    Its message holds the commands that work: ``split``, which sizes the
+    frozen resolution from the errors it measures, and this command with
+    the frozen resolution fixed by hand.
     """
-    if not getattr(args, "own_process", False):
-        return
-    if getattr(args, "solver", None) is not None and not getattr(args, "external", None):
-        resolve_solver(args.solver)
-    gc.freeze()
+    from mmsverify.errors import GridError
+    from mmsverify.problem.record import get_problem
+    mode = getattr(args, "mode", "combined")
+    option = {"time": "base_cells", "space": "base_steps"}.get(mode)
+    if option is None or getattr(args, option) is not None or not get_problem(problem).transient:
+        return None
+    name = args.problem if isinstance(args.problem, str) else get_problem(problem).name
+    plan = [f"--{k.replace('_', '-')} {getattr(args, k):g}" for k in ("levels", "base_cells", "base_steps", "ratio")
+            if getattr(args, k, None) is not None]
+    words = ["mmsverify", "split", shlex.quote(name), shlex.quote(str(solver)), *plan]
+    split = " ".join(words) if solver and not getattr(args, "external", None) else None
+    frozen, kind = ("cells", "spatial") if mode == "time" else ("steps", "temporal")
+    text = (f"--mode {mode} keeps the {frozen} frozen, and the {kind} error left at a fixed count of {frozen} can "
+            f"bend the {mode} order of a correct solver, so the count is not guessed. ")
+    if split:
+        text += (f"Run the space-time study, which refines the frozen {frozen} until their error is negligible "
+                 f"(and prints the count it settled on):\n    {split}\nor ")
+    text += f"freeze the {frozen} yourself with --{option.replace('_', '-')} N, fine enough that their error is negligible"
+    return GridError(text)
 
 
 def study_from_args(args, problem, solver, progress=None):
-    settle(args)
+    refused = _frozen_refused(args, problem, solver)
+    if refused is not None:
+        raise refused
     solver = external_from_args(args) or solver
     kwargs = dict(levels=args.levels, base_cells=args.base_cells, ratio=args.ratio, mode=args.mode,
                   base_steps=args.base_steps, tolerance=args.tolerance, formal_order=args.formal_order,
@@ -174,27 +185,25 @@ def _run(args):
     if args.solver is not None and args.external:
         print("mmsverify run: give either a solver or --external, not both", file=sys.stderr)
         return 2
-    from ..problem import get_problem
-    from ..progress import progress_for
+    from mmsverify.problem.record import get_problem
+    from mmsverify.cli.progress import progress_for
     quiet = getattr(args, "quiet", False)
     problem = get_problem(args.problem)  # read once: the design checks and the study share it
-    settle(args)
-    pending = None if quiet else print_design_warnings(args, problem)
+    if args.solver is not None and not args.external:
+        resolve_solver(args.solver)      # a name that cannot be imported fails here, before any work
+    if not quiet:
+        print_design_warnings(args, problem)
     label = args.solver or args.external
     progress = progress_for(args, label=f"{args.problem} / {label}")
-    if pending is not None:
-        progress = _Announcing(progress, pending)
     try:
         result = study_from_args(args, problem, args.solver, progress)
     finally:
         getattr(progress, "close", lambda: None)()  # end a live progress line before the table
-        if pending is not None:
-            pending.finish()
     print(str(result).splitlines()[0] if quiet else result)
     if args.target_error is not None and not quiet:
         print_plans(result, args.target_error)
     if args.json:
-        from ..report.files import write_json
+        from mmsverify.outputs.studyfile import write_json
         write_json(result, args.json)
         if not quiet:
             print(f"\nwrote {args.json}")
@@ -203,8 +212,8 @@ def _run(args):
 
 def print_plans(result, target):
     """Predicted grid and run time to reach ``target`` in the L2 norm, per field."""
-    from ..errors import AnalysisError
-    from ..estimate import plan
+    from mmsverify.errors import AnalysisError
+    from mmsverify.analysis.estimate import plan
     for f in result.fields:
         ok = [lv for lv in result.levels if lv.ok and f in lv.errors]
         print(f"\nplan for field {f}: L2 error {target:g}")
@@ -219,28 +228,18 @@ def print_plans(result, target):
 
 
 def print_design_warnings(args, problem=None):
-    """Warn where the manufactured solution cannot catch mistakes (see :mod:`._designbg`).
-
-    The warnings of a problem seen before come from the derivation cache and
-    are printed at once; otherwise they are worked out beside the study and
-    the pending work is returned (None when printed already).
-    """
-    from ._designbg import start_design_warnings
-    return start_design_warnings(args, problem)
-
-
-class _Announcing:
-    """A progress callback that also prints design warnings worked out beside the study, once ready."""
-
-    def __init__(self, progress, pending):
-        self.progress, self.pending = progress, pending
-
-    def __call__(self, level_result):
-        self.pending.poll(before=getattr(self.progress, "close", None))
-        return self.progress(level_result)
-
-    def close(self):
-        return getattr(self.progress, "close", lambda: None)()
+    """Warn, ahead of the study, where the manufactured solution cannot catch mistakes (:mod:`mmsverify.design`)."""
+    import warnings
+    from mmsverify.design.checks import design_warnings
+    from mmsverify.problem.record import get_problem
+    order = getattr(args, "formal_order", None)
+    orders = {"time_order": order} if getattr(args, "mode", None) == "time" else {"formal_order": order}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")   # numerical warnings of the samples; a failed check says so itself
+        found = design_warnings(get_problem(args.problem if problem is None else problem), **orders)
+    for w in found:
+        print(f"warning: {w}", file=sys.stderr)
+    sys.stderr.flush()
 
 
 def register(sub):

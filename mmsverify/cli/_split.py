@@ -1,11 +1,11 @@
 """``mmsverify split PROBLEM SOLVER``: space and time orders of a transient solver, separately."""
 
-from ..spacetime import run_space_time
-from . import EXIT_FAIL, EXIT_OK
+from mmsverify.study.spacetime import run_space_time
+from mmsverify.cli import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_OK
 
 
 def _split(args):
-    from ..progress import progress_for
+    from mmsverify.cli.progress import progress_for
     levels = args.levels or 4
     shown = []
 
@@ -22,7 +22,7 @@ def _split(args):
     if shown:
         getattr(shown[-1], "close", lambda: None)()  # end a live progress line before the tables
     print(r)
-    return EXIT_OK if r.passed else EXIT_FAIL
+    return {"pass": EXIT_OK, "fail": EXIT_FAIL}.get(r.outcome, EXIT_INCONCLUSIVE)
 
 
 def register(sub):

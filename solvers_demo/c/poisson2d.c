@@ -15,7 +15,7 @@
  *   mmsverify run plate-poisson --external "./poisson2d {case}"
  *
  * Usage: poisson2d CASEFILE. The case file is flat "key = value" text (see
- * mmsverify.external.write_case); this program reads cells, lower, upper,
+ * mmsverify.execute.external.write_case); this program reads cells, lower, upper,
  * output and the optional param.omega, param.tolerance, param.max_sweeps.
  * It writes CSV with columns x, y, volume and the field, one row per node.
  * Exit codes: 0 solved, 2 bad case file or problem, 3 no convergence, 4 I/O.

@@ -64,6 +64,7 @@ class FVAdvection(DemoSolver):
     CHOICES: ClassVar[dict] = {"grid": FAMILIES, "reconstruction": tuple(RECONSTRUCTIONS)}
 
     grid: str = "uniform"
+    seed: int = None     # another table of random displacements for grid="perturbed"
     reconstruction: str = "limited"
     tol: float = 1e-12
     max_iter: int = 400
@@ -78,7 +79,7 @@ class FVAdvection(DemoSolver):
         if problem.parameter_constant("k", 0.0) != 0.0:     # None when k varies
             raise SolverError(f"{self.name}: solves pure advection; problem {problem.name} has diffusion "
                               f"k = {problem.parameters['k']}; set k = 0 or use FDAdvectionDiffusion")
-        mesh = quad_mesh(case.grid, self.grid)
+        mesh = quad_mesh(case.grid, self.grid, self.seed)
         n = mesh.n_cells
         xc, yc = mesh.centroids
         xcv = np.stack([xc, yc], axis=-1)

@@ -71,6 +71,7 @@ class FVDiffusion(DemoSolver):
     CHOICES: ClassVar[dict] = {"grid": FAMILIES, "flux": FLUXES}
 
     grid: str = "uniform"
+    seed: int = None     # another table of random displacements for grid="perturbed"
     flux: str = "corrected"
 
     @property
@@ -79,7 +80,7 @@ class FVDiffusion(DemoSolver):
 
     def _solve(self, case):
         mms, field = case.mms, case.problem.field_names[0]
-        mesh = quad_mesh(case.grid, self.grid)
+        mesh = quad_mesh(case.grid, self.grid, self.seed)
         n = mesh.n_cells
         xc, yc = mesh.centroids
         f, b = mesh.faces, mesh.boundary_faces

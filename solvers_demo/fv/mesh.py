@@ -41,7 +41,7 @@ _SEED = 20030401     # fixed seed
 _TILE = 8            # size of the repeated table of random displacements
 
 
-def _map(family, s, t, nx, ny):
+def _map(family, s, t, nx, ny, seed=None):
     if family == "uniform":
         return s, t
     if family == "stretched":
@@ -50,7 +50,7 @@ def _map(family, s, t, nx, ny):
     if family == "skewed":
         return (s + _GAMMA * np.sin(np.pi * s) * np.sin(2 * np.pi * t) / np.pi,
                 t + _GAMMA * np.sin(np.pi * t) * np.sin(2 * np.pi * s) / np.pi)
-    table = np.random.default_rng(_SEED).uniform(-1.0, 1.0, (2, _TILE, _TILE))
+    table = np.random.default_rng(_SEED if seed is None else seed).uniform(-1.0, 1.0, (2, _TILE, _TILE))
     i = np.arange(nx + 1)[:, None] % _TILE
     j = np.arange(ny + 1)[None, :] % _TILE
     ds, dt = table[0][i, j], table[1][i, j]
@@ -150,15 +150,15 @@ class QuadMesh:
         return interior, boundary
 
 
-def quad_mesh(grid, family="uniform"):
-    """The mesh of ``family`` on a 2-D :class:`mmsverify.Grid`."""
+def quad_mesh(grid, family="uniform", seed=None):
+    """The mesh of ``family`` on a 2-D :class:`mmsverify.Grid`; ``seed`` draws another perturbed table."""
     if grid.dim != 2:
         raise GridError(f"level {grid.level}: the finite-volume demo meshes are 2-D; the grid is {grid.dim}-D")
     if family not in FAMILIES:
         raise GridError(f"unknown grid family {family!r}; use one of {', '.join(FAMILIES)}")
     nx, ny = grid.cells
     s, t = np.meshgrid(np.linspace(0.0, 1.0, nx + 1), np.linspace(0.0, 1.0, ny + 1), indexing="ij")
-    ms, mt = _map(family, s, t, nx, ny)
+    ms, mt = _map(family, s, t, nx, ny, seed)
     (x0, y0), (x1, y1) = grid.lower, grid.upper
     mesh = QuadMesh(x0 + (x1 - x0) * ms, y0 + (y1 - y0) * mt, family)
     if not (mesh.areas > 0).all():

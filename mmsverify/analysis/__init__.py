@@ -1,0 +1,1 @@
+"""Analysis: observed orders, fits, convergence type, Richardson/GCI, planning, verdicts."""

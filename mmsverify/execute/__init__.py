@@ -1,0 +1,1 @@
+"""Running levels: grids, the solver protocol and its adapters, executors, the level cache."""

@@ -1,0 +1,364 @@
+"""Execute the levels of a study: serially, in a local process pool or any executor.
+
+:func:`run_levels` is what :func:`~mmsverify.study.refinement.run_study` calls to get
+one :class:`~mmsverify.study.refinement.LevelResult` per level:
+
+* without an executor and ``workers`` the levels run one after another in
+  this process;
+* ``workers=N`` runs them in a local :class:`~concurrent.futures.ProcessPoolExecutor`
+  of N processes (the solver must be picklable: a module-level function, a
+  bundled name or an :class:`~mmsverify.execute.external.ExternalSolver`);
+* ``executor=`` takes any :class:`concurrent.futures.Executor`, or a Dask
+  ``distributed.Client`` (its ``get_executor()`` is used);
+* ``cache=`` (a folder or :class:`~mmsverify.execute.cache.LevelCache`) reuses levels
+  finished before and stores each new success as soon as it arrives, so a
+  study killed midway resumes where it stopped.
+
+Failures never stop a study: a level that raises, times out, returns NaN
+or a wrong shape, or whose worker process dies, becomes a failed
+LevelResult whose message says why.
+
+Time limits (``timeout`` seconds per level) are enforced inside the process
+that runs the level, with ``SIGALRM`` where it runs in a main thread (this
+process, process pools), and by :class:`~mmsverify.execute.external.ExternalSolver`
+for external programs in any executor. A pure-Python solver in a thread
+(thread pools, Dask workers) cannot be interrupted; the study then gives up
+waiting after ``timeout`` times the number of levels plus a minute. Signals
+are handled between Python bytecodes, so a single long call into compiled
+code finishes before the limit takes effect.
+"""
+
+from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, Executor, ProcessPoolExecutor, wait
+from contextlib import contextmanager
+import contextvars
+from dataclasses import replace
+import os
+import pickle
+import signal
+import threading
+import time
+import warnings
+
+from mmsverify.execute.cache import LevelCache, solver_identity
+from mmsverify.errors import MMSError, SolverError
+from mmsverify.study.refinement import LevelResult, run_level
+
+__all__ = ["run_levels", "run_studies", "LevelTimeout", "remaining_time", "as_executor", "process_pool"]
+
+_DEADLINE = contextvars.ContextVar("mmsverify_level_deadline", default=None)
+_ALARM_GRACE = 1.0  # seconds; lets an external program's own time-out (and kill) report first
+_ALARM_REPEAT = 0.5  # seconds between further alarms of a level whose time is up
+_WAIT_SLACK = 60.0   # seconds added to the overall wait when limits cannot be enforced in workers
+_MAX_MESSAGE = 10_000  # characters of a failed level's message that are kept (start and end)
+
+
+class LevelTimeout(SolverError):
+    """A level ran past the study's time limit."""
+
+
+def remaining_time():
+    """Seconds left for the level running in this thread, or None without a limit."""
+    deadline = _DEADLINE.get()
+    return None if deadline is None else deadline - time.monotonic()
+
+
+@contextmanager
+def _time_limit(seconds, where):
+    if not seconds:
+        yield
+        return
+    token = _DEADLINE.set(time.monotonic() + seconds)
+    alarm = hasattr(signal, "setitimer") and threading.current_thread() is threading.main_thread()
+    active = [True]
+    if alarm:
+        def _expired(signum, frame):
+            if active[0]:       # an alarm handled after the level ended does nothing
+                signal.setitimer(signal.ITIMER_REAL, _ALARM_REPEAT)  # again, should the solver swallow this
+                raise LevelTimeout(f"{where}: no result within {seconds:g} s; the level was stopped")
+        previous = signal.signal(signal.SIGALRM, _expired)
+        signal.setitimer(signal.ITIMER_REAL, seconds + _ALARM_GRACE)
+    try:
+        yield
+    finally:
+        active[0] = False       # first and without a call: a pending alarm cannot cut the clean-up short
+        if alarm:
+            signal.setitimer(signal.ITIMER_REAL, 0)
+            signal.signal(signal.SIGALRM, previous)
+        _DEADLINE.reset(token)
+
+
+def _cores():
+    try:
+        return len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        return os.cpu_count() or 1
+
+
+_THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+def _share_cores(workers):
+    """Worker initializer: BLAS and OpenMP thread pools get this worker's share of the cores.
+
+    Thread counts the user set in the environment are left as they are.
+    Libraries loaded later (and programs the worker starts) see the
+    environment variables; those already loaded are limited through
+    threadpoolctl.
+    """
+    if any(os.environ.get(v) for v in _THREAD_VARIABLES):
+        return
+    share = max(1, _cores() // workers)
+    for v in _THREAD_VARIABLES:
+        os.environ[v] = str(share)
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # without it the libraries already loaded keep their default
+        return
+    threadpool_limits(share)
+
+
+def process_pool(workers):
+    """A local pool of ``workers`` processes that share the cores instead of competing for them.
+
+    Each worker limits its BLAS and OpenMP thread pools (NumPy's, SciPy's,
+    and those of programs it starts) to ``cores // workers`` threads,
+    unless the environment already sets ``OMP_NUM_THREADS``,
+    ``OPENBLAS_NUM_THREADS`` or ``MKL_NUM_THREADS``: two workers on two
+    cores that each start two BLAS threads spend time waiting on each other
+    (measured in ``bench/parallel_batch.py``).
+    """
+    return ProcessPoolExecutor(max_workers=workers, initializer=_share_cores, initargs=(workers,))
+
+
+def _failed(case, where, message):
+    return LevelResult(case.grid.level, case.grid, case.grid.h, "failed", message=f"{where}: {message}")
+
+
+def _shorten(text, limit=_MAX_MESSAGE):
+    """A message of at most about ``limit`` characters: its start and its end, the middle left out."""
+    if len(text) <= limit:
+        return text
+    head, tail = limit * 2 // 3, limit // 3
+    return f"{text[:head]}\n[... {len(text) - head - tail} characters left out ...]\n{text[-tail:]}"
+
+
+def _escaped(exc):
+    """What a solver did when something other than an Exception left it, or an error could not be printed."""
+    if isinstance(exc, SystemExit):
+        return f"the solver called sys.exit({exc.code!r}); a solver returns a Solution or raises an exception"
+    first = exc
+    while first.__context__ is not None and first.__context__ is not first:
+        first = first.__context__  # the solver's own error, if recording it failed
+    try:
+        text = str(first)
+    except Exception:  # its __str__ fails too
+        text = "(its message cannot be printed)"
+    return f"the solver raised {type(first).__name__}: {text}"
+
+
+def _execute(solve, case, where, timeout):
+    """Run one level where it is sent (this process or a worker); never raises for solver faults.
+
+    A solver that measures its own grid size (``Solution.info["h"]``, as
+    :class:`~mmsverify.execute.external.ExternalSolver` does from cell volumes) sets
+    the level's h, except in a time-refinement study. Only ``KeyboardInterrupt``
+    (the user's) passes through; ``sys.exit`` in a solver fails its level.
+    Messages are kept to about ``_MAX_MESSAGE`` characters.
+    """
+    try:
+        with _time_limit(timeout, where):
+            result = run_level(solve, case, where)
+    except LevelTimeout as exc:  # the limit struck outside the solver call (while measuring errors)
+        return LevelResult(case.grid.level, case.grid, case.grid.h, "failed", message=_shorten(str(exc)))
+    except KeyboardInterrupt:
+        raise
+    except BaseException as exc:  # SystemExit, or an error whose message fails while it is recorded
+        return _failed(case, where, _shorten(_escaped(exc)))
+    h = result.info.get("h")
+    time_mode = case.problem.transient and case.options.get("mode") == "time"
+    if result.ok and h is not None and not time_mode:
+        value = None
+        if not isinstance(h, bool):
+            try:
+                value = float(h)
+            except (TypeError, ValueError, OverflowError):
+                pass
+        if value is None or not 0 < value < float("inf"):
+            return _failed(case, where, f"the solver reported info['h'] = {_shorten(repr(h), 80)}; the grid "
+                                        "size must be a positive finite number")
+        result = replace(result, h=value)
+    if len(result.message) > _MAX_MESSAGE:
+        result = replace(result, message=_shorten(result.message))
+    return result
+
+
+def as_executor(executor):
+    """Accept None, a :class:`concurrent.futures.Executor` or a Dask ``Client``."""
+    if executor is None or isinstance(executor, Executor):
+        return executor
+    if callable(getattr(executor, "get_executor", None)):
+        return executor.get_executor()
+    raise SolverError(f"executor must be a concurrent.futures.Executor or a dask.distributed.Client, "
+                      f"got {type(executor).__name__}")
+
+
+def _check_picklable(solve):
+    try:
+        pickle.dumps(solve)
+    except Exception as exc:
+        raise SolverError(f"the solver {solve!r} cannot be sent to worker processes ({type(exc).__name__}: {exc}); "
+                          "use a module-level function, 'module:function', a bundled name, or run without "
+                          "workers") from None
+
+
+def run_levels(solve, cases, wheres, *, executor=None, workers=None, timeout=None, cache=None, resume=True,
+               solver_id=None, progress=None):
+    """Run every case and return their LevelResults in the order given.
+
+    Parameters
+    ----------
+    solve : callable
+        The solver, ``solve(case) -> Solution``.
+    cases, wheres : sequences
+        One :class:`~mmsverify.execute.solvers.Case` and one description per level.
+    executor : Executor or dask Client, optional
+    workers : int, optional
+        Size of a local process pool when no executor is given.
+    timeout : float, optional
+        Seconds per level.
+    cache : path or LevelCache, optional
+        Where finished levels are kept.
+    resume : bool
+        Reuse cached levels (default); False recomputes and overwrites them.
+    solver_id : str, optional
+        Identity of the solver for the cache (default :func:`~mmsverify.execute.cache.solver_identity`).
+    progress : callable, optional
+        Called in this process as ``progress(level_result)`` for every level
+        as it becomes available (reused levels first).
+    """
+    if timeout is not None and not timeout > 0:
+        raise SolverError(f"the time limit per level must be positive, got {timeout!r}")
+    if workers is not None and (int(workers) != workers or workers < 1):
+        raise SolverError(f"workers must be a whole number of at least 1, got {workers!r}")
+    n = len(cases)
+    results, keys = [None] * n, [None] * n
+    if cache is not None:
+        cache = cache if isinstance(cache, LevelCache) else LevelCache(cache)
+        sid = solver_id or solver_identity(solve)
+        for i, case in enumerate(cases):
+            keys[i] = cache.key(case, sid)
+            if resume:
+                results[i] = cache.load(keys[i], case.grid)
+                if results[i] is not None and progress is not None:
+                    progress(results[i])
+
+    def finish(i, result):
+        results[i] = result
+        if cache is not None and result.ok:
+            try:
+                cache.store(keys[i], result, cases[i], solver_id=sid)
+            except OSError as exc:  # a full disk must not lose the study itself
+                warnings.warn(f"{wheres[i]}: could not store the level in {cache.directory} ({exc}); "
+                              "it will be recomputed next time", RuntimeWarning, stacklevel=2)
+        if progress is not None:
+            progress(result)
+
+    pending = [i for i in range(n) if results[i] is None]
+    if not pending:
+        return results
+    pool = as_executor(executor)
+    owned = pool is None and workers is not None
+    if owned:
+        _check_picklable(solve)
+        pool = process_pool(min(int(workers), len(pending)))
+    try:
+        if pool is None:
+            for i in pending:
+                finish(i, _execute(solve, cases[i], wheres[i], timeout))
+        else:
+            _through(pool, owned, solve, cases, wheres, pending, timeout, finish)
+    finally:
+        if owned:
+            pool.shutdown(wait=True, cancel_futures=True)
+    return results
+
+
+def _through(pool, owned, solve, cases, wheres, pending, timeout, finish):
+    # Largest levels first: the finest level dominates, so it should never wait for a worker.
+    order = sorted(pending, key=lambda i: -cases[i].grid.n_cells * (cases[i].grid.steps or 1))
+    futures = {pool.submit(_execute, solve, cases[i], wheres[i], timeout): i for i in order}
+    deadline = None if timeout is None else time.monotonic() + timeout * len(pending) + _WAIT_SLACK
+    waiting, broken = set(futures), []
+    while waiting:
+        left = None if deadline is None else max(0.0, deadline - time.monotonic())
+        done, waiting = wait(waiting, timeout=left, return_when=FIRST_COMPLETED)
+        if not done:
+            for fut in waiting:
+                fut.cancel()
+                i = futures[fut]
+                finish(i, _failed(cases[i], wheres[i], f"no result after waiting {timeout * len(pending) + _WAIT_SLACK:g} "
+                                  "s; the worker could not be interrupted (a Python solver in a thread)"))
+            break
+        for fut in done:
+            i = futures[fut]
+            try:
+                finish(i, fut.result())
+            except BrokenExecutor:
+                broken.append(i)
+            except Exception as exc:  # the worker could not run the task at all
+                finish(i, _failed(cases[i], wheres[i], f"the worker failed: {type(exc).__name__}: {exc}"))
+    died = ("the worker process died while running this level (a crash in compiled code, a kill signal, "
+            "running out of memory or os._exit)")
+    for i in sorted(broken):
+        if not owned:
+            finish(i, _failed(cases[i], wheres[i], died + " or the executor shut down"))
+            continue
+        # A dead worker breaks the whole pool; rerun the affected levels one by one to find the culprit.
+        with ProcessPoolExecutor(max_workers=1) as solo:
+            try:
+                finish(i, solo.submit(_execute, solve, cases[i], wheres[i], timeout).result())
+            except BrokenExecutor:
+                finish(i, _failed(cases[i], wheres[i], died))
+
+
+def _study_job(kwargs):
+    from mmsverify.study.refinement import run_study
+    return run_study(**kwargs)
+
+
+def run_studies(jobs, *, executor=None, workers=None):
+    """Run several studies, each a dict of :func:`~mmsverify.study.refinement.run_study` arguments.
+
+    Studies run in parallel through ``executor`` or a local pool of
+    ``workers`` processes (serially when neither is given); each study runs
+    its own levels serially unless its dict says otherwise. Returns the
+    StudyResults in order; an invalid study raises its error, naming the job.
+    """
+    jobs = [dict(j) for j in jobs]
+    for k, job in enumerate(jobs):
+        if "problem" not in job or "solver" not in job:
+            raise SolverError(f"study job {k} needs 'problem' and 'solver' entries; got {sorted(job)}")
+    pool = as_executor(executor)
+    owned = pool is None and workers is not None
+    if owned:
+        pool = process_pool(min(int(workers), max(len(jobs), 1)))
+    try:
+        if pool is None:
+            outcomes = []
+            for job in jobs:
+                try:
+                    outcomes.append(_study_job(job))
+                except Exception as exc:
+                    outcomes.append(exc)
+        else:
+            futures = [pool.submit(_study_job, job) for job in jobs]
+            outcomes = [fut.exception() or fut.result() for fut in futures]
+    finally:
+        if owned:
+            pool.shutdown(wait=True)
+    for k, (job, out) in enumerate(zip(jobs, outcomes)):
+        if isinstance(out, MMSError):
+            raise type(out)(f"study job {k} ({job['problem']}, {job['solver']}): {out}") from out
+        if isinstance(out, BaseException):
+            raise out
+    return outcomes

@@ -1,0 +1,1 @@
+"""Outputs: reports, exported code, baselines."""

@@ -1,0 +1,1 @@
+"""The manufactured problem: safe parser, problem record, operators, derivation, evaluators."""

@@ -1,0 +1,108 @@
+"""A study as a Markdown report: verdict, evidence (tables, figures), cautions.
+
+:func:`markdown_text` builds the text with links to image files;
+:func:`write_markdown` also draws the figures into a folder beside the
+report (``<name>_figures/``), so the pair can be committed or attached.
+"""
+
+from pathlib import Path
+
+from mmsverify.execute.norms import NORMS
+from mmsverify.render.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
+                      notes, study_facts)
+from mmsverify.render._quantities import quantity_table
+from mmsverify.render.text import CAUTION
+
+__all__ = ["markdown_text", "write_markdown"]
+
+
+def _cell(text):
+    """Table-safe text: one line, pipes escaped."""
+    return str(text).splitlines()[0].replace("|", "\\|") if str(text) else ""
+
+
+def _table(header, rows):
+    lines = ["| " + " | ".join(header) + " |", "|" + "|".join("---" for _ in header) + "|"]
+    lines += ["| " + " | ".join(_cell(c) for c in row) + " |" for row in rows]
+    return lines
+
+
+def markdown_text(result, images=None):
+    """The report as Markdown.
+
+    Parameters
+    ----------
+    result : StudyResult
+    images : dict of str to str, optional
+        Figure name (``"error"``, ``"order"``, ``"cost"``, ``"map"``) to the
+        path or URL the report links to.
+
+    Returns
+    -------
+    str
+    """
+    kind = result.outcome
+    size = axis_name(result)
+    out = [f"# Order verification: {result.problem} solved by {result.solver}", "",
+           f"**Verdict: {kind.upper()}.** {headline(result)}", ""]
+    out += _table(["Field", "Norm", "Outcome", "Observed order", "Formal order", "Reason"],
+                  [[v.field, v.norm, v.status, fmt_order(v.observed), f"{v.formal:g}", v.reason]
+                   for v in result.verdicts])
+    if notes(result):
+        out += [""] + [f"- Note: {n}" for n in notes(result)]
+    out += ["", "## Evidence", ""]
+    out += _table(["Study", ""], study_facts(result))
+    for f in result.fields:
+        out += ["", f"### Field {f}", ""]
+        header = ["Level", "Grid", size] + [c for n in NORMS for c in (f"{n} error", f"{n} order")] + ["Run time (s)"]
+        rows = []
+        for r in level_rows(result, f):
+            row = [r["level"], r["grid"], f"{r['h']:.4g}"]
+            if r["status"] != "ok":
+                row += [f"failed: {r['message']}"] + [""] * (2 * len(NORMS) - 1)
+            else:
+                row += [c for n in NORMS for c in (fmt_num(r[f"error_{n}"]), fmt_order(r[f"order_{n}"]))]
+            rows.append(row + [f"{r['seconds']:.3g}"])
+        out += _table(header, rows)
+    for q in result.quantities:
+        out += ["", f"### Quantity {q}", ""]
+        header, rows, _ = quantity_table(result, q, size)
+        out += _table(header, rows)
+    if images:
+        out += ["", "### Figures"]
+        for name, target in images.items():
+            out += ["", f"![{TITLES.get(name, name)}]({target})", "", f"*{CAPTIONS.get(name, '')}*"]
+    if result.failed_levels:
+        out += ["", "### Failed levels", ""]
+        for lv in result.failed_levels:
+            out += [f"Level {lv.level} ({lv.grid.describe()}):", "", "```text", lv.message, "```", ""]
+    out += ["", "## Cautions", ""]
+    out += [f"- {c}" for c in [CAUTION] + extra_cautions(result)]
+    return "\n".join(out).rstrip() + "\n"
+
+
+def write_markdown(result, path, pointwise=None, fmt="png"):
+    """Write the Markdown report and its figures.
+
+    Parameters
+    ----------
+    result : StudyResult
+    path : path-like
+        The ``.md`` file; figures go to ``<stem>_figures/`` beside it.
+    pointwise : dict, optional
+        Pointwise errors for the error map (see :func:`~mmsverify.render.pointwise.finest_error`).
+    fmt : {"png", "svg"}
+
+    Returns
+    -------
+    Path
+    """
+    from mmsverify.fileio import write_atomic
+    from mmsverify.render.plots import save_figure, study_figures
+    path = Path(path)
+    folder = path.parent / f"{path.stem}_figures"
+    images = {}
+    for name, fig in study_figures(result, pointwise).items():
+        save_figure(fig, folder / f"{name}.{fmt}")
+        images[name] = f"{folder.name}/{name}.{fmt}"
+    return write_atomic(path, markdown_text(result, images))

@@ -1,0 +1,1 @@
+"""Refinement studies: plan the levels, run them, judge the orders."""
