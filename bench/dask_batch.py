@@ -1,6 +1,6 @@
 """Issue 19: a batch of independent studies on a Dask LocalCluster of 2 workers against 1 (target >= 1.6x).
 
-The batch is ``parallel_batch.JOBS`` through ``mmsverify.runner.run_studies(jobs,
+The batch is ``parallel_batch.JOBS`` through ``mmsverify.execute.runner.run_studies(jobs,
 executor=client)``; each cluster (one worker process of one thread, or two)
 is started before its rounds and its start is not timed. Rounds alternate
 (one worker, two, one, two, ...) and the fastest of each is kept. The

@@ -103,11 +103,11 @@ def test_editing_a_module_the_solver_imports_recomputes_the_levels(tmp_path, mon
     helper = tmp_path / "cache_helper.py"
     helper.write_text("SCALE = 1.0\n")
     monkeypatch.syspath_prepend(str(tmp_path))
-    argv = ["run", PROBLEM, "helped_solver:solve", "--levels", "3", "--cache", str(tmp_path / "c")]
+    argv = ["run", PROBLEM, "helped_solver:solve", "--levels", "4", "--cache", str(tmp_path / "c")]
     try:
         assert main(argv) == 0
         assert main(argv) == 0
-        assert "3 levels from the cache" in capsys.readouterr().out
+        assert "4 levels from the cache" in capsys.readouterr().out
         helper.write_text("SCALE = 1.0 + 1e-3  # the edit must reach the result\n")
         sys.modules.pop("cache_helper", None)
         sys.modules.pop("helped_solver", None)
@@ -121,13 +121,13 @@ def test_editing_a_module_the_solver_imports_recomputes_the_levels(tmp_path, mon
 
 def test_no_cache_flag_runs_every_level(tmp_path, capsys):
     from mmsverify.cli import main
-    argv = ["run", PROBLEM, "poisson2d", "--levels", "3", "--cache", str(tmp_path)]
+    argv = ["run", PROBLEM, "poisson2d", "--levels", "4", "--cache", str(tmp_path)]
     assert main(argv) == 0
     capsys.readouterr()
     assert main(argv + ["--no-cache"]) == 0
     assert "from the cache" not in capsys.readouterr().out
     assert main(argv) == 0
-    assert "3 levels from the cache" in capsys.readouterr().out
+    assert "4 levels from the cache" in capsys.readouterr().out
 
 
 def test_special_files_and_links_in_place_of_a_record_are_refused_unread(tmp_path):

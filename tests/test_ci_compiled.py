@@ -45,7 +45,7 @@ def project(tmp_path, monkeypatch):
 
 def test_baseline_of_a_compiled_program_catches_a_boundary_mistake_and_a_stale_build(project, capsys):
     ext = ["--external", "./poisson2d {case}"]
-    assert main(["baseline", "save", "plate-poisson", *ext, "-o", "b.json", "--levels", "3", "--quiet"]) == 0
+    assert main(["baseline", "save", "plate-poisson", *ext, "-o", "b.json", "--levels", "4", "--quiet"]) == 0
     data = json.loads((project / "b.json").read_text())
     assert data["run"]["external"]["command"] == ["./poisson2d", "{case}"]
     capsys.readouterr()
@@ -78,7 +78,7 @@ def test_baseline_of_a_compiled_program_catches_a_boundary_mistake_and_a_stale_b
 
 
 def test_report_runs_an_external_program(project, capsys):
-    assert main(["report", "plate-poisson", "--external", "./poisson2d {case}", "--levels", "3",
+    assert main(["report", "plate-poisson", "--external", "./poisson2d {case}", "--levels", "4",
                  "-o", "rep", "--formats", "json,md", "--quiet"]) == 0
     data = json.loads(next((project / "rep").glob("*.json")).read_text())
     assert data["solver"] == "external:poisson2d"

@@ -9,8 +9,8 @@ import pytest
 from mmsverify import run_study
 from mmsverify.execute.runner import run_studies
 
-JOBS = [dict(problem="plate-poisson", solver="poisson2d", levels=3),
-        dict(problem="plate-poisson", solver="poisson2d-neumann1", levels=3),
+JOBS = [dict(problem="plate-poisson", solver="poisson2d", levels=4),
+        dict(problem="plate-poisson", solver="poisson2d-neumann1", levels=4),
         dict(problem="fin-diffusion", solver="fd-diffusion", levels=3),
         dict(problem="cavity-flow", solver="ns-staggered", levels=3)]
 

@@ -86,7 +86,7 @@ def canary(tmp_path, monkeypatch):
 
 
 def test_hostile_baselines_are_refused_with_exit_2_and_run_nothing(canary, tmp_path, capsys):
-    good = run_study("plate-poisson", "poisson2d", levels=3)
+    good = run_study("plate-poisson", "poisson2d", levels=4)
     save_baseline(good, tmp_path / "good.json", run={"solver": "canary_solver:solve", "external": None,
                                                      "options": {}, "timeout": None})
     data = json.loads((tmp_path / "good.json").read_text())
