@@ -41,6 +41,7 @@ class _Recorder:
         self.formal_order = solver.formal_order
         if hasattr(solver, "time_order"):
             self.time_order = solver.time_order
+        self.not_computed = getattr(solver, "not_computed", ())
 
     def __call__(self, case):
         sol = self.solver(case)

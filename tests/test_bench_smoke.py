@@ -56,3 +56,8 @@ def test_scattered_points_compare_derived_and_hand_written(tmp_path):
     out = _run("scattered.py", tmp_path)
     for quantity in ("source", "exact", "gradient"):
         assert f"| {quantity} | mmsverify |" in out and f"| {quantity} | hand-written NumPy |" in out
+
+
+def test_dask_batch_compares_one_and_two_workers(tmp_path):
+    out = _run("dask_batch.py", tmp_path)
+    assert "2 workers against 1" in out and "speed-up" in out and "| yes |" in out

@@ -116,6 +116,15 @@ class Assessment:
     verdict: str
     warnings: tuple
 
+    def _repr_html_(self):
+        """Notebook display: verdict, values, estimate and a figure (see :mod:`mmsverify.analysis.display`)."""
+        from mmsverify.analysis.display import assessment_html
+        return assessment_html(self)
+
+    def _repr_markdown_(self):
+        from mmsverify.analysis.display import assessment_markdown
+        return assessment_markdown(self)
+
     def __str__(self):
         rows = [(f"{h:.6g}", f"{v:.8g}") for h, v in zip(self.h, self.values)]
         order = fmt_num(self.order, ".3g") + ("" if self.formal_order is None else f" (formal {self.formal_order:g})")
@@ -292,6 +301,14 @@ class AssessmentTable:
 
     def __len__(self):
         return len(self.records)
+
+    def _repr_html_(self):
+        from mmsverify.analysis.display import assessments_html
+        return assessments_html(self)
+
+    def _repr_markdown_(self):
+        from mmsverify.analysis.display import assessments_markdown
+        return assessments_markdown(self)
 
     def __getitem__(self, key):
         if isinstance(key, str):

@@ -8,7 +8,7 @@ from mmsverify.cli.progress import QUIET, progress_for, verbosity
 from mmsverify.outputs.reports import FORMATS, write_reports
 from mmsverify.render.wording import headline
 from mmsverify.cli import EXIT_INPUT, comma_choices
-from mmsverify.cli._run import add_study_options, exit_code, study_from_args
+from mmsverify.cli._run import add_study_options, exit_code, external_from_args, study_from_args
 
 
 def _formats(text):
@@ -22,18 +22,19 @@ def _report(args):
         print(f"mmsverify report: {exc}", file=sys.stderr)
         return EXIT_INPUT
     if args.source:
-        if args.problem or args.solver:
+        if args.problem or args.solver or args.external:
             print("mmsverify report: give either --from FILE or PROBLEM SOLVER, not both", file=sys.stderr)
             return EXIT_INPUT
         from mmsverify.outputs.studyfile import read_json
         result = read_json(args.source)
         want_map = args.map
     else:
-        if not (args.problem and args.solver):
-            print("mmsverify report: name a PROBLEM and a SOLVER (or --from a study JSON file)", file=sys.stderr)
+        if not args.problem or bool(args.solver) == bool(args.external):
+            print("mmsverify report: name a PROBLEM and either a SOLVER or --external COMMAND (or --from a study "
+                  "JSON file)", file=sys.stderr)
             return EXIT_INPUT
-        result = study_from_args(args, args.problem, args.solver,
-                                 progress_for(args, label=f"{args.problem} / {args.solver}"))
+        label = args.solver or args.external
+        result = study_from_args(args, args.problem, args.solver, progress_for(args, label=f"{args.problem} / {label}"))
         want_map = not args.no_map
     pointwise = None
     if want_map and {"md", "html"} & set(formats):
@@ -41,7 +42,8 @@ def _report(args):
         try:
             if args.source:
                 _recorded_solver_is_bundled(result, args.source)
-            pointwise = finest_error(result, solver=args.solver or None, problem=args.problem or None)
+            pointwise = finest_error(result, solver=external_from_args(args) or args.solver or None,
+                                     problem=args.problem or None)
         except MMSError as exc:  # the reports are still worth writing without the map
             print(f"mmsverify report: no error map: {exc}", file=sys.stderr)
     output = args.output or (Path(args.source).parent if args.source else _DEFAULT_OUTPUT)
@@ -78,7 +80,7 @@ def register(sub):
                                    "error and order against grid size, run time and where the error lives), "
                                    "then the cautions. The exit code is that of `mmsverify run`.")
     p.add_argument("problem", nargs="?", help="problem file (.toml) or bundled problem name")
-    p.add_argument("solver", nargs="?", help="bundled solver name or module:function")
+    p.add_argument("solver", nargs="?", help="bundled solver name or module:function (or use --external)")
     add_study_options(p)
     p.add_argument("--from", dest="source", metavar="STUDY_JSON",
                    help="draw the reports from a study JSON written by this command instead of running")

@@ -14,7 +14,16 @@ from mmsverify.study.refinement import MODES, run_study
 from mmsverify.cli import EXIT_FAIL, EXIT_INCONCLUSIVE, EXIT_INPUT, EXIT_OK
 
 
-def add_study_options(p):
+def add_study_options(p, grid=True):
+    """The options of a study; ``grid=False`` leaves out the plan (levels, mode, formal order, norms), for
+    ``baseline check``, which reruns the baseline's grids under its rules."""
+    p.add_argument("--tolerance", type=float,
+                   help="allowed |observed - formal| order, below half the formal order (default: problem's)")
+    p.add_argument("--option", action="append", default=[], metavar="NAME=VALUE",
+                   help="solver option passed in case.options, e.g. --option grid=perturbed (repeatable)")
+    add_execution_options(p)
+    if not grid:
+        return
     p.add_argument("--levels", type=int, help="number of grid levels (default: problem's [study], else 4)")
     p.add_argument("--base-cells", type=int, help="cells per direction on the coarsest level (default 8)")
     p.add_argument("--ratio", type=float, help="refinement ratio (default 2)")
@@ -23,16 +32,11 @@ def add_study_options(p):
     p.add_argument("--mode", choices=MODES, default="combined",
                    help="transient problems: refine space and time together, space only, or time only")
     p.add_argument("--base-steps", type=int, help="time steps on the coarsest level (transient problems)")
-    p.add_argument("--tolerance", type=float,
-                   help="allowed |observed - formal| order, below half the formal order (default: problem's)")
     p.add_argument("--formal-order", type=float, help="override the formal order (default: the solver's stated "
                                                       "order, else the problem's)")
     p.add_argument("--norms", metavar="LIST",
                    help="norms that get a verdict for every field, comma-separated (default: the norms the solver "
                         "states per field, else L1,L2,Linf; all are reported)")
-    p.add_argument("--option", action="append", default=[], metavar="NAME=VALUE",
-                   help="solver option passed in case.options, e.g. --option grid=perturbed (repeatable)")
-    add_execution_options(p)
 
 
 def add_execution_options(p):
@@ -43,6 +47,8 @@ def add_execution_options(p):
     g.add_argument("--timeout", type=float, metavar="SECONDS", help="time limit per level; slower levels fail")
     g.add_argument("--cache", metavar="DIR", help="keep finished levels in DIR; reruns and resumed studies reuse them")
     g.add_argument("--fresh", action="store_true", help="with --cache: recompute every level and overwrite")
+    g.add_argument("--no-cache", action="store_true",
+                   help="neither read nor write the level cache (overrides an earlier --cache, e.g. in a CI script)")
     g.add_argument("--dask", metavar="ADDRESS",
                    help="run the levels on a Dask cluster (scheduler address, or 'local' for one on this machine)")
     g.add_argument("--external", metavar="COMMAND",
@@ -93,18 +99,28 @@ def _norm_list(text):
         raise AnalysisError(f"--norms: {exc}") from None
 
 
+def option_values(args):
+    """The solver options ``--option NAME=VALUE`` give, as a dict."""
+    return dict(_param(o) for o in getattr(args, "option", []))
+
+
+def cache_folder(args):
+    """The level-cache folder the options name, or None (``--no-cache``, or no ``--cache``)."""
+    return None if getattr(args, "no_cache", False) else getattr(args, "cache", None)
+
+
 def external_from_args(args):
     """The ExternalSolver that ``--external`` describes, or None."""
     command = getattr(args, "external", None)
     if not command:
         return None
-    workdir = args.workdir or (str(Path(args.cache) / "runs") if args.cache else None)
+    workdir = args.workdir or (str(Path(cache_folder(args)) / "runs") if cache_folder(args) else None)
     return ExternalSolver(shlex.split(command), fmt=args.output_format, case_format=args.case_format,
                           workdir=workdir, params=dict(_param(p) for p in args.param), spacing=args.spacing,
                           timeout=args.timeout)
 
 
-def _dask_client(address, workers):
+def dask_client(address, workers):
     try:
         import distributed
     except ImportError:
@@ -163,10 +179,10 @@ def study_from_args(args, problem, solver, progress=None):
     judging = Judging(tolerance=args.tolerance, formal_order=args.formal_order,
                       norms=_norm_list(getattr(args, "norms", None)))
     running = Running(progress=progress, timeout=getattr(args, "timeout", None),
-                      cache_dir=getattr(args, "cache", None), resume=not getattr(args, "fresh", False))
-    options = dict(_param(o) for o in getattr(args, "option", [])) or None
+                      cache_dir=cache_folder(args), resume=not getattr(args, "fresh", False))
+    options = option_values(args) or None
     if getattr(args, "dask", None):
-        client = _dask_client(args.dask, args.workers)
+        client = dask_client(args.dask, args.workers)
         try:
             return run_study(problem, solver, refinement, judging, replace(running, executor=client),
                              options=options)

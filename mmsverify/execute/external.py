@@ -25,6 +25,13 @@ case's grid.
 A level that crashes, times out, writes nothing, or writes NaN or ragged
 columns raises :class:`ProgramFailed` with the tail of the program's
 output; the study records it and goes on with the other levels.
+
+A program built from exported code (:mod:`mmsverify.export`) should print
+a line ``content_hash = <hash>`` (the header's ``MMS_CONTENT_HASH``, the
+Python module's ``CONTENT_HASH``, the Fortran module's
+``mms_content_hash``). When it does, the hash is compared with the problem
+being run, and a program built for another problem fails the level with
+"built for another problem: rebuild" instead of a meaningless error.
 """
 
 from dataclasses import dataclass, field
@@ -54,7 +61,7 @@ from mmsverify.problem.record import SIDES
 from mmsverify.execute.solvers import Solution
 
 __all__ = ["ExternalSolver", "ProgramFailed", "write_case", "read_case", "read_solution", "expand_command",
-           "PLACEHOLDERS", "OUTPUT_FORMATS", "CASE_FORMAT_VERSION"]
+           "PLACEHOLDERS", "OUTPUT_FORMATS", "CASE_FORMAT_VERSION", "reported_hash"]
 
 #: Placeholders a command template may use.
 PLACEHOLDERS = ("case", "out", "dir", "level", "problem", "hash")
@@ -71,7 +78,7 @@ class ProgramFailed(SolverError):
     Attributes
     ----------
     kind : str
-        ``"timeout"``, ``"crash"``, ``"no output"``, ``"bad output"`` or ``"nan"``.
+        ``"timeout"``, ``"crash"``, ``"no output"``, ``"bad output"``, ``"nan"`` or ``"wrong problem"``.
     tail : str
         The last part of the program's combined stdout and stderr.
     """
@@ -357,6 +364,34 @@ def _run_program(args, cwd, timeout, env, log_path, tail_chars, log_limit):
 
 
 # -- solution files -------------------------------------------------------
+_REPORTED_HASH = re.compile(rb"^[ \t]*(?:mms_)?content_hash[ \t]*[=:][ \t]*[\"']?(?:sha256:)?([0-9a-f]{12,64})\b",
+                            re.IGNORECASE | re.MULTILINE)
+
+
+def reported_hash(log_path):
+    """The problem content hash a program printed (``content_hash = <hex>``) in its log, or None."""
+    try:
+        with open(log_path, "rb") as fh:
+            head = fh.read(1 << 16)   # the program prints it first; the log keeps its first half whole
+    except OSError:
+        return None
+    found = _REPORTED_HASH.search(head)
+    return found.group(1).decode().lower() if found else None
+
+
+def _check_handshake(log_path, problem, where, tail):
+    """Fail the level when the program reports the content hash of another problem."""
+    said = reported_hash(log_path)
+    if said is None:
+        return
+    own = problem.content_hash()
+    if not own.startswith(said):
+        raise ProgramFailed("wrong problem", f"{where}: built for another problem: the program reports content "
+                                             f"hash {said[:12]}, this problem's is {own[:12]}; rebuild it from "
+                                             f"`mmsverify export {problem.name} --lang c` (or your language's "
+                                             "export)", tail)
+
+
 def _too_big(size, limit, path):
     if size > limit:
         raise ProgramFailed("bad output", f"{path} holds {size} bytes, more than the limit of {limit}; "
@@ -707,6 +742,7 @@ class ExternalSolver:
         if run.timed_out:
             raise ProgramFailed("timeout", f"{where}: no result within {limit:g} s; its process group was killed",
                                 run.tail)
+        _check_handshake(level_dir / "output.log", problem, where, run.tail)
         if run.returncode != 0:
             how = (f"was killed by signal {signal.Signals(-run.returncode).name}" if run.returncode < 0
                    else f"exited with code {run.returncode}")

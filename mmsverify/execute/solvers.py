@@ -183,9 +183,18 @@ def resolve_solver(spec):
     module, _, attr = target.partition(":")
     try:
         mod = _import_from_here(module)
-    except ImportError as exc:
+    except ModuleNotFoundError as exc:
+        if exc.name and module.split(".")[0] != exc.name.split(".")[0]:
+            raise SolverError(f"solver module {module!r} was found, but importing it failed: it imports "
+                              f"{exc.name!r}, which is not installed ({exc}); install it or fix the import") from None
         raise SolverError(f"cannot import solver module {module!r} ({exc}); check the name and that its "
                           "folder is on PYTHONPATH (run from the folder that contains it)") from None
+    except SyntaxError as exc:
+        raise SolverError(f"solver module {module!r} has a syntax error: {exc.filename}, line {exc.lineno}: "
+                          f"{exc.msg}; fix the module and run again") from None
+    except Exception as exc:  # noqa: BLE001  (any failure while the user's module runs its top level)
+        raise SolverError(f"solver module {module!r} failed while being imported: {type(exc).__name__}: {exc}; "
+                          "fix the module (run `python -c 'import {0}'` to see the traceback)".format(module)) from None
     fn = mod
     for part in attr.split("."):
         fn = getattr(fn, part, None)
@@ -235,6 +244,21 @@ def _real_array(v, where, what):
         raise SolverError(f"{where}: {what}: dtype {a.dtype} holds {_KINDS.get(a.dtype.kind, 'non-numeric')} "
                           f"values, not real numbers{hint}")
     return a.astype(float, copy=False)
+
+
+def _warn_if_uneven(points, where):
+    """Warn when points without weights are not evenly spaced: equal weights then misweigh the norms."""
+    import warnings
+    for i, p in enumerate(points):
+        axis = np.unique(np.asarray(p))
+        if axis.size < 3:
+            continue
+        steps = np.diff(axis)
+        if steps.max() - steps.min() > 1e-6 * steps.max():
+            warnings.warn(f"{where}: Solution has no weights, but its points are not evenly spaced along axis {i}; "
+                          "every point counts the same in the L1 and L2 norms. Return weights (the cell volume "
+                          "each point stands for)", RuntimeWarning, stacklevel=3)
+            return
 
 
 def check_solution(sol, problem, where, grid=None):
@@ -296,6 +320,7 @@ def check_solution(sol, problem, where, grid=None):
                           "return the solution at every node or cell of the level")
     if sol.weights is None:
         weights = np.broadcast_to(1.0, shape)
+        _warn_if_uneven(points, where)
     else:
         raw = _real_array(sol.weights, where, "the weights (cell volumes) are not numeric")
         try:

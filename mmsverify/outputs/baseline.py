@@ -26,7 +26,9 @@ from dataclasses import dataclass, field as _field
 import datetime
 import json
 import logging
+import math
 import os
+import stat
 from pathlib import Path
 
 from mmsverify.problem.origin import problem_of_record
@@ -36,10 +38,13 @@ from mmsverify.execute.norms import NORMS
 from mmsverify.problem.record import PROBLEM_DIR
 
 __all__ = ["FORMAT", "FORMAT_VERSION", "DEFAULT_ERROR_FACTOR", "Baseline", "Finding", "BaselineCheck",
-           "baseline_from_study", "save_baseline", "load_baseline", "compare", "check_baseline"]
+           "baseline_from_study", "save_baseline", "load_baseline", "compare", "check_baseline", "run_record",
+           "recorded_solver", "check_data"]
 
 FORMAT = "mmsverify.baseline"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+#: Versions this release reads (1 had no ``run`` table).
+READS_VERSIONS = (1, 2)
 
 _log = logging.getLogger(__name__)
 
@@ -81,6 +86,14 @@ class Baseline:
         ``quantities[name]``: list with the error of a reported quantity's
         value per level (None where the level failed or did not report it);
         empty for baselines saved before quantities were recorded.
+    run : dict
+        How to rerun the study: ``solver`` (the name given when saving, or
+        None), ``external`` (the external program's ``command`` list,
+        ``output_format``, ``case_format``, ``params`` and ``spacing``, or
+        None), ``options`` (the solver options) and ``timeout``. Empty for
+        baselines saved before it was recorded. A check never runs the
+        recorded solver or program unless told to (see
+        :func:`check_baseline`).
     """
 
     problem: str
@@ -97,6 +110,7 @@ class Baseline:
     saved: str = ""
     mmsverify_version: str = ""
     quantities: dict = _field(default_factory=dict)
+    run: dict = _field(default_factory=dict)
 
     def to_data(self, folder=None):
         """Plain JSON-ready data (see ``docs/json-schema.md``).
@@ -113,36 +127,17 @@ class Baseline:
                 "rules": {"order_tolerance": self.tolerance, "error_factor": self.error_factor},
                 "grids": [{"level": g.level, "lower": list(g.lower), "upper": list(g.upper), "cells": list(g.cells),
                            "t_start": g.t_start, "t_end": g.t_end, "steps": g.steps} for g in self.grids],
-                "errors": self.errors, "observed": self.observed, "quantity_errors": self.quantities}
+                "errors": self.errors, "observed": self.observed, "quantity_errors": self.quantities,
+                "run": self.run}
 
     @classmethod
     def from_data(cls, data, where="baseline", folder=None):
         """Rebuild from :meth:`to_data` output; raise :class:`MMSError` naming what is wrong.
 
-        A relative problem path is taken relative to ``folder``.
+        Every entry is checked by type and range (see :func:`_read`); a
+        relative problem path is taken relative to ``folder``.
         """
-        if not isinstance(data, dict) or data.get("format") != FORMAT:
-            raise MMSError(f"{where}: not an mmsverify baseline (expected format {FORMAT!r}); make one with "
-                           "`mmsverify baseline save PROBLEM SOLVER -o FILE`")
-        if data.get("format_version") != FORMAT_VERSION:
-            raise MMSError(f"{where}: baseline format version {data.get('format_version')!r} is not read by this "
-                           f"release (reads {FORMAT_VERSION}); save the baseline again")
-        try:
-            grids = tuple(Grid(int(g["level"]), tuple(g["lower"]), tuple(g["upper"]), tuple(g["cells"]),
-                               t_start=g["t_start"], t_end=g["t_end"], steps=g["steps"]) for g in data["grids"])
-            p, rules = data["problem"], data["rules"]
-            source = p["source"]
-            if source and folder is not None and not Path(source).is_absolute():
-                source = str(Path(folder) / source)
-            quantities = {str(q): list(e) for q, e in data.get("quantity_errors", {}).items()}
-            if any(len(e) != len(grids) for e in quantities.values()):
-                raise ValueError(f"quantity_errors must hold one entry per grid level ({len(grids)})")
-            return cls(p["name"], p["hash"], source, data["mode"], float(data["formal_order"]),
-                       float(rules["order_tolerance"]), float(rules["error_factor"]), grids, data["errors"],
-                       data["observed"], data["recorded_with"], data.get("saved", ""),
-                       data.get("mmsverify_version", ""), quantities)
-        except (KeyError, TypeError, ValueError) as exc:
-            raise MMSError(f"{where}: damaged baseline ({type(exc).__name__}: {exc}); save it again") from None
+        return _read(cls, data, where, folder)
 
     def __str__(self):
         lines = [f"baseline of {self.problem} (hash {self.problem_hash[:12]}), recorded with {self.solver}"
@@ -175,7 +170,7 @@ def _num(x, spec=".3e"):
     return "-" if x is None else format(x, spec)
 
 
-def baseline_from_study(result, error_factor=DEFAULT_ERROR_FACTOR, tolerance=None, allow_failing=False):
+def baseline_from_study(result, error_factor=DEFAULT_ERROR_FACTOR, tolerance=None, allow_failing=False, run=None):
     """Reduce a finished study to a :class:`Baseline`.
 
     Parameters
@@ -187,6 +182,9 @@ def baseline_from_study(result, error_factor=DEFAULT_ERROR_FACTOR, tolerance=Non
         Order tolerance of later checks (default: the study's).
     allow_failing : bool
         Record a study that did not pass (its errors then set a weak bar).
+    run : dict, optional
+        How the study was run, to rerun it (see :attr:`Baseline.run` and
+        :func:`run_record`).
 
     Raises
     ------
@@ -213,7 +211,28 @@ def baseline_from_study(result, error_factor=DEFAULT_ERROR_FACTOR, tolerance=Non
     return Baseline(result.problem, result.problem_hash, result.source, result.mode, result.formal_order,
                     float(result.tolerance if tolerance is None else tolerance), float(error_factor),
                     tuple(lv.grid for lv in result.levels), errors, observed, result.solver, saved, __version__,
-                    quantities)
+                    quantities, _read_run(_plain_run(run)) if run else {})
+
+
+def run_record(solver=None, options=None, timeout=None):
+    """The :attr:`Baseline.run` table for a solver name or an ExternalSolver, its options and time limit."""
+    from mmsverify.execute.external import ExternalSolver
+    ext = None
+    if isinstance(solver, ExternalSolver):
+        ext = {"command": list(solver.command), "output_format": solver.fmt, "case_format": solver.case_format,
+               "params": dict(solver.params), "spacing": solver.spacing}
+        solver = None
+    elif solver is not None and not isinstance(solver, str):
+        solver = None   # a callable has no name that reruns it; the check names its solver
+    return {"solver": solver, "external": ext, "options": dict(options or {}), "timeout": timeout}
+
+
+def _plain_run(run):
+    try:
+        return json.loads(json.dumps(run, allow_nan=False))
+    except (TypeError, ValueError) as exc:
+        raise MMSError(f"the study's options cannot be recorded in a baseline ({exc}); use text, numbers or "
+                       "true/false") from None
 
 
 def save_baseline(result, path, **kwargs):
@@ -224,11 +243,220 @@ def save_baseline(result, path, **kwargs):
     return base
 
 
+# -- reading a baseline: one typed reader at the boundary -------------------
+#: Largest baseline file read (bytes); a baseline of 30 levels and a dozen fields is a few tens of kB.
+MAX_BASELINE_BYTES = 4 << 20
+_MAX_DEPTH = 10
+_SCALAR = (str, int, float, bool)
+
+
+class _Bad(Exception):
+    """One wrong entry: ``entry`` is its dotted path, ``what`` what is wrong with it."""
+
+    def __init__(self, entry, what):
+        super().__init__(entry, what)
+        self.entry, self.what = entry, what
+
+
+def _table(v, entry):
+    if not isinstance(v, dict):
+        raise _Bad(entry, f"expected a table (JSON object), got {_kind(v)}")
+    return v
+
+
+def _list(v, entry, length=None, most=None):
+    if not isinstance(v, list):
+        raise _Bad(entry, f"expected a list, got {_kind(v)}")
+    if length is not None and len(v) != length:
+        raise _Bad(entry, f"expected one entry per grid level ({length}), got {len(v)}")
+    if most is not None and not 1 <= len(v) <= most:
+        raise _Bad(entry, f"expected 1 to {most} entries, got {len(v)}")
+    return v
+
+
+def _text(v, entry, empty=True):
+    if not isinstance(v, str) or (not empty and not v):
+        raise _Bad(entry, f"expected {'text' if empty else 'non-empty text'}, got {_kind(v)}")
+    return v
+
+
+def _real(v, entry, low=None, above=None, none=False):
+    if v is None and none:
+        return None
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or not abs(v) <= 1e300:  # also NaN; no float() of a huge int
+        raise _Bad(entry, f"expected a finite number{' or null' if none else ''}, got {_kind(v)}")
+    if (low is not None and v < low) or (above is not None and v <= above):
+        raise _Bad(entry, f"expected a number {'>= %g' % low if low is not None else '> %g' % above}, got {v!r}")
+    return float(v)
+
+
+def _whole(v, entry, low, none=False, high=10 ** 9):
+    if v is None and none:
+        return None
+    if isinstance(v, bool) or not isinstance(v, int) or not low <= v <= high:
+        raise _Bad(entry, f"expected a whole number from {low} to {high}{' or null' if none else ''}, got "
+                          f"{_kind(v)}")
+    return v
+
+
+def _choice(v, entry, allowed):
+    if not isinstance(v, str) or v not in allowed:
+        raise _Bad(entry, f"expected one of {', '.join(map(repr, allowed))}, got {_kind(v)}")
+    return v
+
+
+def _kind(v):
+    if isinstance(v, int) and not isinstance(v, bool) and abs(v) > 10 ** 30:
+        return "a whole number of %d digits" % len(str(abs(v)))
+    return repr(v) if isinstance(v, (bool, int, float)) or v is None else \
+        (repr(v[:40]) if isinstance(v, str) else type(v).__name__.replace("dict", "table"))
+
+
+def _scalars(v, entry):
+    out = {}
+    for k, x in _table(v, entry).items():
+        if not isinstance(x, _SCALAR) or (isinstance(x, float) and not math.isfinite(x)):
+            raise _Bad(f"{entry}.{k}", f"expected text, a finite number or true/false, got {_kind(x)}")
+        out[k] = x
+    return out
+
+
+def _depth(v, depth=0):
+    if depth > _MAX_DEPTH:
+        raise _Bad("(file)", f"nested deeper than {_MAX_DEPTH} levels")
+    for x in (v.values() if isinstance(v, dict) else v if isinstance(v, list) else ()):
+        _depth(x, depth + 1)
+
+
+def _read_run(v):
+    from mmsverify.execute.external import OUTPUT_FORMATS
+    if v is None or v == {}:
+        return {}
+    v = _table(v, "run")
+    run = {"solver": None if v.get("solver") is None else _text(v["solver"], "run.solver", empty=False),
+           "external": None, "options": _scalars(v.get("options", {}), "run.options"),
+           "timeout": _real(v.get("timeout"), "run.timeout", above=0, none=True)}
+    ext = v.get("external")
+    if ext is not None:
+        ext = _table(ext, "run.external")
+        cmd = _list(ext.get("command"), "run.external.command", most=256)
+        run["external"] = {
+            "command": [_text(a, f"run.external.command[{i}]", empty=i > 0) for i, a in enumerate(cmd)],
+            "output_format": _choice(ext.get("output_format", "csv"), "run.external.output_format", OUTPUT_FORMATS),
+            "case_format": _choice(ext.get("case_format", "toml"), "run.external.case_format", ("toml", "json")),
+            "params": _scalars(ext.get("params", {}), "run.external.params"),
+            "spacing": _choice(ext.get("spacing", "grid"), "run.external.spacing", ("grid", "volumes"))}
+    unknown = sorted(set(v) - {"solver", "external", "options", "timeout"})
+    if unknown:
+        raise _Bad(f"run.{unknown[0]}", "unknown entry")
+    return run
+
+
+def _read(cls, data, where, folder):
+    """A :class:`Baseline` from parsed JSON, every entry checked; MMSError naming the file and the entry."""
+    from mmsverify.study.refinement import MAX_LEVELS, MODES
+    if not isinstance(data, dict) or data.get("format") != FORMAT:
+        raise MMSError(f"{where}: not an mmsverify baseline (expected format {FORMAT!r}); make one with "
+                       "`mmsverify baseline save PROBLEM SOLVER -o FILE`")
+    version = data.get("format_version")
+    if isinstance(version, bool) or version not in READS_VERSIONS:
+        raise MMSError(f"{where}: baseline format version {_kind(version)} is not read by this "
+                       f"release (reads {', '.join(map(str, READS_VERSIONS))}); save the baseline again")
+    try:
+        _depth(data)
+        grids = []
+        for i, g in enumerate(_list(data.get("grids"), "grids", most=MAX_LEVELS)):
+            e = f"grids[{i}]"
+            g = _table(g, e)
+            cells = [_whole(c, f"{e}.cells", 1) for c in _list(g.get("cells"), f"{e}.cells", most=3)]
+            lower = [_real(x, f"{e}.lower") for x in _list(g.get("lower"), f"{e}.lower", length=len(cells))]
+            upper = [_real(x, f"{e}.upper") for x in _list(g.get("upper"), f"{e}.upper", length=len(cells))]
+            try:
+                grids.append(Grid(_whole(g.get("level"), f"{e}.level", 0), tuple(lower), tuple(upper), tuple(cells),
+                                  t_start=_real(g.get("t_start"), f"{e}.t_start", none=True),
+                                  t_end=_real(g.get("t_end"), f"{e}.t_end", none=True),
+                                  steps=_whole(g.get("steps"), f"{e}.steps", 1, none=True)))
+            except (ValueError, TypeError, MMSError) as exc:
+                raise _Bad(e, str(exc)) from None
+        n = len(grids)
+        p = _table(data.get("problem"), "problem")
+        rules = _table(data.get("rules"), "rules")
+        source = _text(p.get("source", ""), "problem.source")
+        if source and folder is not None and not Path(source).is_absolute():
+            source = str(Path(folder) / source)
+        errors = {}
+        for f, per in _table(data.get("errors"), "errors").items():
+            per = _table(per, f"errors.{f}")
+            missing = [m for m in NORMS if m not in per]
+            extra = [m for m in per if m not in NORMS]
+            if missing or extra:
+                raise _Bad(f"errors.{f}", f"expected the norms {', '.join(NORMS)}; "
+                           + (f"missing {', '.join(missing)}" if missing else f"unknown {extra[0]!r:.40}"))
+            errors[f] = {m: [_real(x, f"errors.{f}.{m}[{i}]", low=0, none=True)
+                             for i, x in enumerate(_list(per[m], f"errors.{f}.{m}", length=n))] for m in NORMS}
+        if not errors:
+            raise _Bad("errors", "no field recorded")
+        observed = {f: {m: _real(x, f"observed.{f}.{m}", none=True) for m, x in _table(per, f"observed.{f}").items()}
+                    for f, per in _table(data.get("observed", {}), "observed").items()}
+        quantities = {q: [_real(x, f"quantity_errors.{q}[{i}]", low=0, none=True)
+                          for i, x in enumerate(_list(e, f"quantity_errors.{q}", length=n))]
+                      for q, e in _table(data.get("quantity_errors", {}), "quantity_errors").items()}
+        return cls(_text(p.get("name"), "problem.name", empty=False), _text(p.get("hash", ""), "problem.hash"),
+                   source, _choice(data.get("mode"), "mode", MODES),
+                   _real(data.get("formal_order"), "formal_order", above=0),
+                   _real(rules.get("order_tolerance"), "rules.order_tolerance", low=0),
+                   _real(rules.get("error_factor"), "rules.error_factor", above=1), tuple(grids), errors, observed,
+                   _text(data.get("recorded_with", ""), "recorded_with"), _text(data.get("saved", ""), "saved"),
+                   _text(data.get("mmsverify_version", ""), "mmsverify_version"), quantities,
+                   _read_run(data.get("run")))
+    except _Bad as bad:
+        raise MMSError(f"{where}: damaged baseline, entry {bad.entry}: {bad.what}; save it again with "
+                       "`mmsverify baseline save`") from None
+
+
+def _file_text(path):
+    """The text of a baseline file: a regular file of bounded size (a byte-order mark is dropped)."""
+    try:
+        st = os.stat(path)
+    except FileNotFoundError:
+        raise MMSError(f"{path}: no such baseline file; make one with `mmsverify baseline save`") from None
+    except OSError as exc:
+        raise MMSError(f"{path}: cannot read the baseline file ({exc.strerror})") from None
+    if not stat.S_ISREG(st.st_mode):
+        raise MMSError(f"{path}: not a regular file (a folder, device, pipe or socket); give the baseline's JSON file")
+    if st.st_size > MAX_BASELINE_BYTES:
+        raise MMSError(f"{path}: {st.st_size} bytes, more than a baseline holds ({MAX_BASELINE_BYTES}); "
+                       "is this the right file?")
+    try:
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+        with os.fdopen(fd, "rb") as fh:
+            if not stat.S_ISREG(os.fstat(fh.fileno()).st_mode):
+                raise MMSError(f"{path}: not a regular file")
+            raw = fh.read(MAX_BASELINE_BYTES + 1)
+    except OSError as exc:
+        raise MMSError(f"{path}: cannot read the baseline file ({exc.strerror})") from None
+    if len(raw) > MAX_BASELINE_BYTES:
+        raise MMSError(f"{path}: more than {MAX_BASELINE_BYTES} bytes; is this the right file?")
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise MMSError(f"{path}: not UTF-8 text ({exc.reason} at byte {exc.start})") from None
+
+
+def _no_constant(name):
+    raise ValueError(f"{name} is not a number a baseline may hold")
+
+
 def load_baseline(path):
-    """Read a baseline file."""
-    from mmsverify.fileio import load_json_file
+    """Read a baseline file, checking every entry (see :meth:`Baseline.from_data`)."""
     path = Path(path)
-    data = load_json_file(path, "baseline file", "; make one with `mmsverify baseline save`")
+    text = _file_text(path)
+    try:
+        data = json.loads(text, parse_constant=_no_constant)
+    except RecursionError:
+        raise MMSError(f"{path}: damaged baseline: nested too deeply") from None
+    except ValueError as exc:
+        raise MMSError(f"{path}: cannot read it as JSON ({exc})") from None
     return Baseline.from_data(data, str(path), path.parent)
 
 
@@ -295,10 +523,9 @@ class BaselineCheck:
             lines.append("")
             w = max([6] + [len(c[0]) for c in self.comparisons])
             lines.append(f"  {'field':<{w}} {'norm':<5} {'level':<6} {'baseline':>11} {'current':>11} {'ratio':>8}")
-            for f, n, lv, e0, e1 in self.comparisons:
+            for f, n, lv, e0, e1 in self.comparisons:  # the broken rules are listed once, above
                 ratio = e1 / e0 if e0 > 0 else float("inf")
-                mark = "  !!" if ratio > self.error_factor else ""
-                lines.append(f"  {f:<{w}} {n:<5} {lv:<6} {e0:>11.3e} {e1:>11.3e} {ratio:>8.2f}{mark}")
+                lines.append(f"  {f:<{w}} {n:<5} {lv:<6} {e0:>11.3e} {e1:>11.3e} {ratio:>8.2f}")
         if not self.passed:
             lines.append("")
             lines.append("  If the change is intended (a new scheme, a new problem, other grids), record a new "
@@ -412,26 +639,58 @@ def _check_series(baseline, result, f, n, recorded, current, verdict, rules, fin
     return best
 
 
+def recorded_solver(baseline, rerun_recorded=False):
+    """The solver a baseline was recorded with, when it may be rerun without being named.
+
+    A registered solver name (see
+    :func:`~mmsverify.execute.solvers.registered_solvers`) is installed
+    code and is returned as it is. A
+    ``module:function`` or an external program named by the file is run
+    only with ``rerun_recorded=True``: a baseline is data, and data never
+    chooses the code that runs. Raises MMSError otherwise.
+    """
+    from mmsverify.execute.external import ExternalSolver
+    from mmsverify.execute.solvers import registered_solvers
+    run = baseline.run or {}
+    ext = run.get("external")
+    name = run.get("solver") or (baseline.solver if not run else None)
+    if ext is None and name in registered_solvers():
+        return name
+    what = (f"the external program {' '.join(ext['command'])!r}" if ext else
+            f"the solver {name!r}" if name else f"{baseline.solver!r}, which cannot be rerun by name")
+    if not rerun_recorded or (ext is None and not name):
+        hint = (" or pass --rerun-recorded to run it" if ext or name else "")
+        raise MMSError(f"the baseline was recorded with {what}; a baseline does not choose the code that runs: "
+                       f"name the solver (`mmsverify baseline check FILE SOLVER` or --external COMMAND){hint}")
+    if ext:
+        return ExternalSolver(ext["command"], fmt=ext["output_format"], case_format=ext["case_format"],
+                              params=ext["params"], spacing=ext["spacing"], timeout=run.get("timeout"))
+    return name
+
+
 def check_baseline(baseline, solver=None, *, problem=None, error_factor=None, tolerance=None, norms=None,
-                   running=None, options=None):
+                   running=None, options=None, rerun_recorded=False):
     """Rerun the baseline's grids with a solver and compare.
 
     Parameters
     ----------
     baseline : Baseline or path
     solver : optional
-        Callable, ``module:function`` or bundled name; default the solver
-        the baseline was recorded with.
+        Callable, ``module:function``, bundled name or ExternalSolver;
+        default the solver the baseline was recorded with, when it is a
+        bundled one or ``rerun_recorded`` is True (see :func:`recorded_solver`).
     problem : optional
         Problem object, file or bundled name; default the baseline's file,
         else its bundled name. Its content hash must match the baseline's.
     error_factor, tolerance, norms : optional
         Override the baseline's rules (see :func:`compare`).
-    progress : callable, optional
-        Passed to :func:`~mmsverify.study.refinement.run_study`.
-    **study_options
-        Further keywords for :func:`~mmsverify.study.refinement.run_study` (``options``,
-        ``executor``).
+    running : Running, optional
+        How the levels run (see :mod:`mmsverify.study.settings`); without a
+        time limit of its own, the recorded one applies.
+    options : dict, optional
+        Solver options; default the recorded ones.
+    rerun_recorded : bool
+        Allow rerunning a recorded ``module:function`` or external program.
 
     Returns
     -------
@@ -441,17 +700,36 @@ def check_baseline(baseline, solver=None, *, problem=None, error_factor=None, to
     ------
     ProblemError
         When the problem's content differs from the baseline's.
+    MMSError
+        When no solver is named and the recorded one may not be rerun.
     """
     from mmsverify.study.refinement import run_study
     from mmsverify.study.settings import Judging, Refinement
     if not isinstance(baseline, Baseline):
         baseline = load_baseline(baseline)
     problem = problem_of_record(baseline, problem, mismatch=_CHANGED_PROBLEM)
+    if solver is None:
+        solver = recorded_solver(baseline, rerun_recorded)
+    if options is None:
+        options = (baseline.run or {}).get("options") or None
     _log.info("rerunning the %d levels of baseline %s (recorded with %s)", len(baseline.grids), baseline.problem,
               baseline.solver)
-    result = run_study(problem, baseline.solver if solver is None else solver,
-                       Refinement(grids=baseline.grids, mode=baseline.mode),
+    result = run_study(problem, solver, Refinement(grids=baseline.grids, mode=baseline.mode),
                        Judging(formal_order=baseline.formal_order,
                                tolerance=baseline.tolerance if tolerance is None else tolerance),
                        running, options=options)
     return compare(baseline, result, error_factor, tolerance, norms)
+
+
+def check_data(check):
+    """A :class:`BaselineCheck` as plain JSON-ready data (``mmsverify baseline check --json``)."""
+    b, r = check.baseline, check.result
+    return {"format": "mmsverify.baseline-check", "format_version": 1, "passed": check.passed,
+            "problem": b.problem, "problem_hash": b.problem_hash, "solver": r.solver, "recorded_with": b.solver,
+            "rules": {"formal_order": b.formal_order, "order_tolerance": check.tolerance,
+                      "error_factor": check.error_factor, "norms": list(check.norms)},
+            "findings": [{"kind": f.kind, "field": f.field, "norm": f.norm, "level": f.level if f.level >= 0 else None,
+                          "message": f.message} for f in check.findings],
+            "comparisons": [{"field": f, "norm": n, "level": lv, "baseline": e0, "current": e1}
+                            for f, n, lv, e0, e1 in check.comparisons],
+            "notes": list(check.notes)}

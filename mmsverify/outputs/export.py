@@ -65,6 +65,18 @@ class ExportError(MMSError):
     """A problem cannot be written in the requested language."""
 
 
+class _C(C99CodePrinter):
+    """sympy's C printer with floating-point constants in shortest round-trip form (``repr`` of the double).
+
+    The stock printer writes 17 significant digits (``0.69999999999999996``
+    for 0.7): the same double, but noise to a reader of the header.
+    """
+
+    def _print_Float(self, flt):
+        text = repr(float(flt))
+        return text if any(c in text for c in ".eEni") else text + ".0"
+
+
 class _Fortran(FCodePrinter):
     """sympy's Fortran printer with a real-valued ``sign`` (the stock one goes through complex numbers)."""
 
@@ -169,7 +181,7 @@ def _python(problem, exprs):
 # -- C99 ------------------------------------------------------------------
 def _c(problem, exprs):
     names = function_names(problem, "c", list(exprs))
-    printer = C99CodePrinter({"human": False})
+    printer = _C({"human": False})
 
     def code(e):
         _, unsupported, text = printer.doprint(e)
@@ -221,7 +233,7 @@ def _c(problem, exprs):
             "    return NAN;", "}", "", f"#endif /* {guard} */", ""]
     used = sorted(set(re.findall(r"\bM_[A-Z0-9_]+\b", "\n".join(out[macros_at:]))) & set(_C_MACROS))
     out[macros_at:macros_at] = [line for m in used for line in
-                                (f"#ifndef {m}", f"#define {m} {sp.N(_C_MACROS[m], 21)}", "#endif")] + [""] * bool(used)
+                                (f"#ifndef {m}", f"#define {m} {float(_C_MACROS[m])!r}", "#endif")] + [""] * bool(used)
     return "\n".join(out)
 
 

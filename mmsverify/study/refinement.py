@@ -110,10 +110,20 @@ class StudyResult:
     rules: tuple = ()
     warnings: tuple = ()
 
+    def _repr_html_(self):
+        """Notebook display: verdict, tables and the error figure (see :mod:`mmsverify.render.notebook`)."""
+        from mmsverify.render.notebook import study_html
+        return study_html(self)
+
+    def _repr_markdown_(self):
+        from mmsverify.render.notebook import study_markdown
+        return study_markdown(self)
+
     @property
     def notes(self):
         """One-line remarks on how the study was read (not failures); empty when there are none."""
-        return tuple(self.warnings) + _quantity_notes(self) + _order_notes(self) + _norms_notes(self)
+        return (tuple(self.warnings) + _quantity_notes(self) + _order_notes(self) + _norms_notes(self)
+                + _cache_notes(self))
 
     @property
     def orders_confirmed(self):
@@ -224,6 +234,14 @@ def _level_where(problem_name, solver_name, grid):
 def _levels_text(levels):
     levels = list(levels)
     return f"level{'s' if len(levels) > 1 else ''} {', '.join(str(k) for k in levels)}"
+
+
+def _cache_notes(result):
+    reused = sum(lv.message.startswith("reused from the level cache") for lv in result.levels)
+    if not reused:
+        return ()
+    return (f"{reused} level{'s' if reused != 1 else ''} from the cache (not run again); --no-cache runs "
+            "every level",)
 
 
 def _quantity_notes(result):
@@ -400,12 +418,48 @@ def rejudge(result):
 
 
 def _stated(solver, name):
-    """The order a solver states as attribute ``name``, as a float, or None."""
+    """The order a solver states as attribute ``name``, as a float, or None (no statement).
+
+    Raises
+    ------
+    SolverError
+        When the statement is not a positive finite number (``"2"``, True,
+        NaN): a statement the tool ignored would judge against another order.
+    """
     try:
         value = getattr(solver, name, None)
     except Exception:  # a property that cannot answer for this solver
         return None
-    return float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else None
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)) \
+            or not np.isfinite(value) or value <= 0:
+        raise SolverError(f"solver {solver_name(solver)}: {name} = {value!r} ({type(value).__name__}) is not an "
+                          f"order; state a positive number, e.g. {name} = 2")
+    return float(value)
+
+
+def _check_all_fields(solver, case, values, where):
+    """A field with equations that the solver did not return fails the level, unless it says it skips it.
+
+    The statement is the solver's attribute ``not_computed`` (field names),
+    read from ``solver.configured(case.options)`` when the solver has it.
+    """
+    missing = [f for f in case.problem.field_names if f not in values]
+    if not missing:
+        return
+    try:
+        if callable(getattr(solver, "configured", None)):
+            solver = solver.configured(case.options)
+        skipped = getattr(solver, "not_computed", ()) or ()
+    except Exception:  # noqa: BLE001  (a property that cannot answer: nothing stated)
+        skipped = ()
+    skipped = (skipped,) if isinstance(skipped, str) else tuple(skipped)
+    missing = [f for f in missing if f not in skipped]
+    if missing:
+        raise SolverError(f"{where}: the problem has equations for field(s) {', '.join(missing)}, but the solver "
+                          "returned no values for them; return them, or state not_computed = "
+                          f"{tuple(missing)!r} on the solver if it does not compute them")
 
 
 def _stated_norms(solver, problem, who):
@@ -608,6 +662,7 @@ def _run_level(solver, case, where):
         sol = solver(case)
         seconds = time.perf_counter() - start
         values, points, weights = check_solution(sol, problem, where, grid)
+        _check_all_fields(solver, case, values, where)
         t = None
         if problem.transient:
             t = grid.t_end if sol.time is None else float(sol.time)

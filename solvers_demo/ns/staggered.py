@@ -84,6 +84,11 @@ class StaggeredNS(DemoSolver):
     def formal_order(self):
         return 2
 
+    @property
+    def not_computed(self):
+        """Fields left out of the Solution: all but the one reported at its own location."""
+        return () if self.report == "centres" else tuple(f for f in ("u", "v", "p") if f != self.report)
+
     def _operators(self, g):
         """Affine differences of u and v at their own interior points, in the unknowns X = [U, V, P]."""
         n = g.nu_ + g.nv_ + g.np_
