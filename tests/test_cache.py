@@ -186,7 +186,7 @@ def test_a_killed_study_resumes_without_redoing_finished_levels(counting, tmp_pa
     cache_dir = tmp_path / "cache"
     script = (f"import sys; sys.path[:0] = [{str(tmp_path)!r}, {str(REPO)!r}]\n"
               "import mmsverify\n"
-              f"mmsverify.run_study({PROBLEM!r}, 'counting_solver:solve', levels=4, cache_dir={str(cache_dir)!r})\n")
+              f"mmsverify.run_study({PROBLEM!r}, 'counting_solver:solve', 4, running=mmsverify.Running(cache_dir={str(cache_dir)!r}))\n")
     env = dict(os.environ, HANG_FROM_LEVEL_2="1")
     proc = subprocess.Popen([sys.executable, "-c", script], env=env, stdout=subprocess.DEVNULL,
                             stderr=subprocess.PIPE)

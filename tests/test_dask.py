@@ -8,11 +8,12 @@ import pytest
 
 from mmsverify import run_study
 from mmsverify.execute.runner import run_studies
+from mmsverify.study.settings import Refinement, Running
 
-JOBS = [dict(problem="plate-poisson", solver="poisson2d", levels=4),
-        dict(problem="plate-poisson", solver="poisson2d-neumann1", levels=4),
-        dict(problem="fin-diffusion", solver="fd-diffusion", levels=3),
-        dict(problem="cavity-flow", solver="ns-staggered", levels=3)]
+JOBS = [dict(problem="plate-poisson", solver="poisson2d", refinement=4),
+        dict(problem="plate-poisson", solver="poisson2d-neumann1", refinement=4),
+        dict(problem="fin-diffusion", solver="fd-diffusion", refinement=3),
+        dict(problem="cavity-flow", solver="ns-staggered", refinement=3)]
 
 
 def _numbers(result):
@@ -37,5 +38,5 @@ def test_a_batch_of_studies_on_two_dask_workers_matches_a_serial_run_bit_for_bit
 
 
 def test_the_levels_of_one_study_on_the_cluster_match_too(client):
-    assert _numbers(run_study("plate-poisson", "poisson2d", levels=3, executor=client)) == \
-        _numbers(run_study("plate-poisson", "poisson2d", levels=3))
+    assert _numbers(run_study("plate-poisson", "poisson2d", refinement=Refinement(refinement=3), running=Running(executor=client))) == \
+        _numbers(run_study("plate-poisson", "poisson2d", refinement=Refinement(refinement=3)))

@@ -20,6 +20,7 @@ from mmsverify.outputs.baseline import load_baseline, save_baseline
 from mmsverify.execute.cache import LevelCache, solver_identity
 from mmsverify.cli import main
 from mmsverify.errors import MMSError
+from mmsverify.study.settings import Refinement, Running
 
 SEED = 20261204
 CASES = 320          # per kind; about 9 in 10 are hostile after the mutation (the rest happen to stay valid)
@@ -86,7 +87,7 @@ def canary(tmp_path, monkeypatch):
 
 
 def test_hostile_baselines_are_refused_with_exit_2_and_run_nothing(canary, tmp_path, capsys):
-    good = run_study("plate-poisson", "poisson2d", levels=4)
+    good = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=4))
     save_baseline(good, tmp_path / "good.json", run={"solver": "canary_solver:solve", "external": None,
                                                      "options": {}, "timeout": None})
     data = json.loads((tmp_path / "good.json").read_text())
@@ -128,9 +129,9 @@ def test_special_files_and_huge_baselines_are_refused_unread(tmp_path, capsys):
 
 
 def test_hostile_level_records_are_recomputed_with_a_warning(tmp_path):
-    run_study("plate-poisson", "poisson2d", levels=2, cache_dir=tmp_path)
+    run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2), running=Running(cache_dir=tmp_path))
     cache = LevelCache(tmp_path)
-    grid = run_study("plate-poisson", "poisson2d", levels=2).levels[0].grid
+    grid = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2)).levels[0].grid
     from solvers_demo.fd.poisson import solve
     from mmsverify import Case, derive
     key = cache.key(Case(grid, derive("plate-poisson"), {"mode": "combined"}), solver_identity(solve))
@@ -158,10 +159,10 @@ def test_hostile_level_records_are_recomputed_with_a_warning(tmp_path):
 
 
 def test_a_record_of_another_user_or_writable_by_others_is_refused(tmp_path):
-    run_study("plate-poisson", "poisson2d", levels=2, cache_dir=tmp_path)
+    run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2), running=Running(cache_dir=tmp_path))
     cache = LevelCache(tmp_path)
     record = next(Path(tmp_path, "levels").glob("*.json"))
     record.chmod(0o666)
-    grid = run_study("plate-poisson", "poisson2d", levels=2).levels[0].grid
+    grid = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2)).levels[0].grid
     with pytest.warns(RuntimeWarning, match="writable by other users"):
         assert cache.load(record.stem, grid) is None

@@ -10,17 +10,18 @@ from mmsverify import Solution, SolverError, run_study
 from mmsverify.cli import main
 from solvers_demo.fd import poisson
 from solvers_demo.ns.staggered import StaggeredNS
+from mmsverify.study.settings import Refinement
 
 
 def test_a_declared_field_not_returned_fails_the_level_unless_the_solver_says_so():
     def u_only(case):
         sol = StaggeredNS()(case)
         return dataclasses.replace(sol, values={"u": sol.values["u"]})
-    result = run_study("cavity-flow", u_only, levels=2)
+    result = run_study("cavity-flow", u_only, refinement=Refinement(levels=2))
     assert not any(lv.ok for lv in result.levels)
     assert "field(s) v, p" in result.levels[0].message and "not_computed" in result.levels[0].message
     u_only.not_computed = ("v", "p")
-    assert all(lv.ok for lv in run_study("cavity-flow", u_only, levels=2).levels)
+    assert all(lv.ok for lv in run_study("cavity-flow", u_only, refinement=Refinement(levels=2)).levels)
 
 
 @pytest.mark.parametrize("bad", ["2", True, float("nan"), -1])
@@ -29,7 +30,7 @@ def test_a_wrongly_typed_order_statement_is_an_error(bad):
         return poisson.solve(case)
     solve.formal_order = bad
     with pytest.raises(SolverError, match="is not an order"):
-        run_study("plate-poisson", solve, levels=2)
+        run_study("plate-poisson", solve, refinement=Refinement(levels=2))
 
 
 def _stretched(case):
@@ -44,17 +45,17 @@ def _stretched(case):
 
 def test_missing_weights_on_uneven_points_warn():
     with pytest.warns(RuntimeWarning, match="not evenly spaced"):
-        run_study("plate-poisson", _stretched, levels=2)
+        run_study("plate-poisson", _stretched, refinement=Refinement(levels=2))
     with warnings.catch_warnings():
         warnings.simplefilter("error")    # even points without weights: no warning
-        run_study("plate-poisson", lambda case: dataclasses.replace(poisson.solve(case), weights=None), levels=2)
+        run_study("plate-poisson", lambda case: dataclasses.replace(poisson.solve(case), weights=None), refinement=Refinement(levels=2))
 
 
 def test_a_stated_order_that_differs_from_the_file_is_told(capsys):
     def first(case):
         return poisson.solve(case)
     first.formal_order = 1
-    result = run_study("plate-poisson", first, levels=3)
+    result = run_study("plate-poisson", first, refinement=Refinement(levels=3))
     assert any("the solver states order 1" in n and "[order] space = 2" in n for n in result.notes)
 
 

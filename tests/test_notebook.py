@@ -3,6 +3,7 @@
 import base64
 
 from mmsverify import assess, run_study
+from mmsverify.study.settings import Refinement
 
 
 def _images(html):
@@ -10,7 +11,7 @@ def _images(html):
 
 
 def test_a_study_shows_its_verdict_tables_and_error_figure():
-    result = run_study("plate-poisson", "poisson2d-neumann1", levels=3)
+    result = run_study("plate-poisson", "poisson2d-neumann1", refinement=Refinement(levels=3))
     html = result._repr_html_()
     assert ">FAIL</b>" in html and "<table>" in html and "L2 error" in html
     assert "observed order" in html and "poisson2d-neumann1" in html
@@ -21,7 +22,7 @@ def test_a_study_shows_its_verdict_tables_and_error_figure():
 
 
 def test_names_in_the_display_are_escaped():
-    result = run_study("plate-poisson", "poisson2d", levels=3)
+    result = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=3))
     import dataclasses
     odd = dataclasses.replace(result, solver="<script>alert(1)</script>|x")
     html = odd._repr_html_()

@@ -25,6 +25,7 @@ from dataclasses import dataclass
 
 import pytest
 
+from mmsverify.study.settings import Judging, Refinement
 from mmsverify import problem_from_text, run_study
 from mmsverify.cli import main
 from mmsverify.cli._run import exit_code
@@ -55,9 +56,9 @@ class Case:
     floor: bool = False  # built to hit an error floor: inconclusive is the right answer
 
 
-def _study(problem, solver, **kw):
+def _study(problem, solver, norms=None, rules=None, options=None, **plan):
     def run():
-        result = run_study(problem, solver, **kw)
+        result = run_study(problem, solver, Refinement(**plan), Judging(norms=norms, rules=rules), options=options)
         return exit_code(result), result
     return run
 
