@@ -17,7 +17,7 @@ import sys
 import time
 
 from _common import machine, table
-from parallel_batch import JOBS, TINY_JOBS
+from parallel_batch import JOBS, TINY_JOBS, study_jobs
 
 
 def _numbers(results):
@@ -31,7 +31,7 @@ def main(argv=None):
     args = ap.parse_args(argv)
     import distributed
     from mmsverify.execute.runner import run_studies
-    jobs = [dict(problem=p, solver=s, **kw) for p, s, kw in (TINY_JOBS if args.tiny else JOBS)]
+    jobs = study_jobs(TINY_JOBS if args.tiny else JOBS)
     repeats = 1 if args.tiny else args.repeats
     run_studies(jobs[:1])  # fill the derivation cache, so that no round pays for derivations
     clusters = {n: distributed.LocalCluster(n_workers=n, threads_per_worker=1, processes=True,

@@ -72,11 +72,16 @@ def _command(workers, keys):
     return None, None
 
 
+def study_jobs(rows):
+    """run_study arguments of (problem, solver, plan) rows; a plan's "options" go to the solver."""
+    from mmsverify.study.settings import Refinement
+    return [dict(problem=p, solver=s, refinement=Refinement(**{k: v for k, v in kw.items() if k != "options"}),
+                 options=kw.get("options")) for p, s, kw in rows]
+
+
 def _studies(workers, jobs):
     from mmsverify.execute.runner import run_studies
-    from mmsverify.study.settings import Refinement
-    results = run_studies([dict(problem=p, solver=s, refinement=Refinement(**{k: v for k, v in kw.items() if k != "options"}),
-                                 options=kw.get("options")) for p, s, kw in jobs], workers=workers)
+    results = run_studies(study_jobs(jobs), workers=workers)
     for (p, s, _), r in zip(jobs, results):
         if not r.passed:
             raise SystemExit(f"study {p} / {s} did not pass:\n{r}")

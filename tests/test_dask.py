@@ -38,5 +38,5 @@ def test_a_batch_of_studies_on_two_dask_workers_matches_a_serial_run_bit_for_bit
 
 
 def test_the_levels_of_one_study_on_the_cluster_match_too(client):
-    assert _numbers(run_study("plate-poisson", "poisson2d", refinement=Refinement(refinement=3), running=Running(executor=client))) == \
-        _numbers(run_study("plate-poisson", "poisson2d", refinement=Refinement(refinement=3)))
+    assert _numbers(run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=3), running=Running(executor=client))) == \
+        _numbers(run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=3)))
