@@ -16,8 +16,8 @@ the top-level help and argparse's list of valid choices stay complete.
 """
 
 import argparse
-import gc
 import importlib
+import signal
 import sys
 
 from ..errors import MMSError
@@ -86,17 +86,20 @@ def build_parser(argv=None):
     return parser
 
 
+def _end(signum, frame):
+    raise SystemExit(128 + signum)
+
+
 def main(argv=None, *, own_process=False):
     """Run the command line; returns the exit code.
 
     ``own_process=True`` says that this process runs this one command and
-    then exits (the ``mmsverify`` program, ``python -m mmsverify``): every
-    object made before the work starts (modules, the problem, the solver's
-    module) lives until the exit, so it is frozen out of the garbage
-    collector (:func:`gc.freeze`). Otherwise a full collection walks them
-    all once, at a moment set by allocation counts, in the middle of a
-    study: about 25 ms here. In-process callers (tests, notebooks) leave it
-    False, so nothing of theirs is kept from the collector.
+    then exits (the ``mmsverify`` program, ``python -m mmsverify``): SIGTERM
+    and SIGHUP then end it through ``SystemExit``, like Ctrl-C through
+    ``KeyboardInterrupt``, so that the clean-up on the way out runs: worker
+    processes and external programs (with everything they started) are
+    killed and temporary level folders removed. In-process callers (tests,
+    notebooks) keep their own signal handlers.
     """
     argv = sys.argv[1:] if argv is None else list(argv)
     parser = build_parser(argv)
@@ -106,7 +109,9 @@ def main(argv=None, *, own_process=False):
         return EXIT_INPUT
     args.own_process = own_process
     if own_process:
-        gc.freeze()   # a study command freezes again once the problem and the solver's module are loaded
+        for sig in (signal.SIGTERM, getattr(signal, "SIGHUP", None)):
+            if sig is not None:
+                signal.signal(sig, _end)
     from ..progress import configure_logging, verbosity
     configure_logging(verbosity(args))
     try:
