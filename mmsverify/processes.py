@@ -5,7 +5,7 @@ Two kinds of process run a study's work:
 * **level workers** (:class:`Worker`): a Python process that runs one level
   at a time for the tool and lives for the study. A level with a time limit
   always runs in one, so that the limit is enforced from outside: when it
-  passes, the worker gets SIGTERM (which ends it with ``SystemExit``, so an
+  passes, the worker gets SIGTERM (which ends it with :class:`Terminated`, so an
   external program it runs is killed and its temporary folder removed) and,
   after a short grace, SIGKILL, with every process it started.
 * **external programs** (:mod:`mmsverify.external`): started in a session of
@@ -40,7 +40,7 @@ import sys
 import time
 import traceback
 
-__all__ = ["Worker", "mp_context", "adopt_environment", "kill_tree", "kill_marked", "descendants", "become_subreaper"]
+__all__ = ["Worker", "Terminated", "end_on_signal", "mp_context", "adopt_environment", "kill_tree", "kill_marked", "descendants", "become_subreaper"]
 
 _PROC = Path("/proc")
 _PR_SET_CHILD_SUBREAPER = 36  # from <linux/prctl.h>
@@ -54,7 +54,12 @@ def mp_context():
         ctx = multiprocessing.get_context("forkserver")
         # Workers start from a server that has imported the runner (NumPy with it) once.
         ctx.set_forkserver_preload(["mmsverify.runner"])
-        return ctx
+        try:
+            from multiprocessing import forkserver
+            forkserver.ensure_running()
+            return ctx
+        except OSError:  # its socket cannot be made (a TMPDIR path too long for a Unix socket)
+            pass
     return multiprocessing.get_context("spawn")
 
 
@@ -155,27 +160,46 @@ def kill_marked(marker):
     return _stop_and_kill(find)
 
 
-# -- level workers ------------------------------------------------------------
-def _end(signum, frame):
-    raise SystemExit(128 + signum)
+class Terminated(KeyboardInterrupt):
+    """SIGTERM or SIGHUP received: unwinds like Ctrl-C, so every clean-up on the way out runs."""
 
+    def __init__(self, signum):
+        super().__init__(signum)
+        self.signum = signum
+
+
+def end_on_signal(signum, frame):
+    """Signal handler of SIGTERM and SIGHUP in the tool and its workers."""
+    raise Terminated(signum)
+
+
+# -- level workers ------------------------------------------------------------
 
 def adopt_environment(environ):
     """Take the tool's environment as it is now (a forkserver child has the server's, from its start)."""
     if dict(os.environ) != environ:
         os.environ.clear()
         os.environ.update(environ)
+        import tempfile
+        tempfile.tempdir = None  # temporary folders follow the tool's TMPDIR
 
 
 def _serve(conn, environ, initializer, initargs):
     """Main loop of a worker: run ``fn(*args)`` for each task received, send back the outcome."""
     adopt_environment(environ)
-    signal.signal(signal.SIGTERM, _end)
-    signal.signal(signal.SIGHUP, _end)
+    signal.signal(signal.SIGTERM, end_on_signal)
+    signal.signal(signal.SIGHUP, end_on_signal)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C reaches the tool, which stops the workers
     become_subreaper()
     if initializer is not None:
         initializer(*initargs)
+    try:
+        _loop(conn)
+    except Terminated:  # the tool stops this worker; what the task started is gone already
+        pass
+
+
+def _loop(conn):
     while True:
         try:
             task = conn.recv()
@@ -186,9 +210,9 @@ def _serve(conn, environ, initializer, initargs):
         fn, args = task
         try:
             outcome = ("ok", fn(*args))
+        except Terminated:
+            raise
         except BaseException as exc:  # noqa: BLE001 - sent back to the tool, which decides
-            if isinstance(exc, SystemExit) and exc.code is not None and exc.code >= 128:
-                raise  # the tool's SIGTERM: end now
             outcome = ("error", exc)
         finally:
             kill_tree(os.getpid())  # whatever the task started and left behind

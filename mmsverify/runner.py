@@ -258,7 +258,8 @@ def _farm(tasks, workers, timeout, done):
     None. A worker whose task ran out of time or that died is stopped (its
     whole process tree killed) and replaced for the next task. Every worker
     is stopped on the way out, however this function is left (an error,
-    Ctrl-C, SIGTERM turned into SystemExit by the command line).
+    Ctrl-C, SIGTERM or SIGHUP turned into an exception by the
+    command line).
     """
     queue = list(tasks)
     slots = [None] * min(workers, len(queue))

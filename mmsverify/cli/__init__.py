@@ -21,6 +21,7 @@ import signal
 import sys
 
 from ..errors import MMSError
+from ..processes import end_on_signal
 
 __all__ = ["main", "console", "EXIT_OK", "EXIT_FAIL", "EXIT_INPUT", "EXIT_INCONCLUSIVE"]
 
@@ -86,17 +87,13 @@ def build_parser(argv=None):
     return parser
 
 
-def _end(signum, frame):
-    raise SystemExit(128 + signum)
-
-
 def main(argv=None, *, own_process=False):
     """Run the command line; returns the exit code.
 
     ``own_process=True`` says that this process runs this one command and
     then exits (the ``mmsverify`` program, ``python -m mmsverify``): SIGTERM
-    and SIGHUP then end it through ``SystemExit``, like Ctrl-C through
-    ``KeyboardInterrupt``, so that the clean-up on the way out runs: worker
+    and SIGHUP then end it like Ctrl-C (through
+    :class:`~mmsverify.processes.Terminated`, a ``KeyboardInterrupt``), so that the clean-up on the way out runs: worker
     processes and external programs (with everything they started) are
     killed and temporary level folders removed. In-process callers (tests,
     notebooks) keep their own signal handlers.
@@ -111,7 +108,7 @@ def main(argv=None, *, own_process=False):
     if own_process:
         for sig in (signal.SIGTERM, getattr(signal, "SIGHUP", None)):
             if sig is not None:
-                signal.signal(sig, _end)
+                signal.signal(sig, end_on_signal)
     from ..progress import configure_logging, verbosity
     configure_logging(verbosity(args))
     try:
@@ -119,9 +116,10 @@ def main(argv=None, *, own_process=False):
     except MMSError as exc:
         print(f"mmsverify: error: {exc}", file=sys.stderr)
         return EXIT_INPUT
-    except KeyboardInterrupt:
-        print("mmsverify: interrupted", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as exc:
+        signum = getattr(exc, "signum", None)
+        print("mmsverify: interrupted" + (f" by {signal.Signals(signum).name}" if signum else ""), file=sys.stderr)
+        return 128 + (signum or signal.SIGINT)
     except BrokenPipeError:  # output piped into `head` and the like: stop quietly
         import os
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
