@@ -44,7 +44,7 @@ __all__ = ["Worker", "Terminated", "end_on_signal", "mp_context", "adopt_environ
 
 _PROC = Path("/proc")
 _PR_SET_CHILD_SUBREAPER = 36  # from <linux/prctl.h>
-GRACE = 1.0  # seconds between SIGTERM and SIGKILL of a worker
+GRACE = 0.5  # seconds between SIGTERM and SIGKILL of a worker
 
 
 def mp_context():

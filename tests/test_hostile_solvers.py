@@ -22,6 +22,7 @@ import pytest
 from mmsverify import Case, Solution, derive, run_study
 from mmsverify.external import ExternalSolver
 from mmsverify.grids import Grid
+from mmsverify.processes import GRACE
 from mmsverify.runner import run_levels
 from solvers_demo.fd.poisson import solve as fd_solve
 
@@ -602,7 +603,7 @@ def test_python_solvers_that_will_not_end_are_stopped_with_all_they_started(tmp_
     took = time.monotonic() - start
     hanging = sum(k not in ENDS_NORMALLY for k in HOSTILE_PYTHON)
     # every hanging level costs at most its limit and the kill's grace (SIGTERM, then SIGKILL)
-    assert took < hanging * (HANG + 2 * 1.0) / (workers or 1) + MARGIN, took
+    assert took < hanging * (HANG + 2 * GRACE) / (workers or 1) + MARGIN, took
     for r in results:
         kind = kinds[r.level]
         assert "Traceback" not in r.message, (kind, r.message)
@@ -662,7 +663,7 @@ def test_external_programs_that_will_not_end_are_stopped_with_all_they_started(t
     else:
         results = run_levels(_program_solver(folders), cases, _where(cases), workers=2, timeout=HANG)
     took = time.monotonic() - start
-    assert took < len(kinds) * (HANG + 2 * 1.0) + MARGIN, took
+    assert took < len(kinds) * (HANG + 2 * GRACE) + MARGIN, took
     for r in results:
         kind = kinds[r.level]
         assert "Traceback" not in r.message, (kind, r.message)
