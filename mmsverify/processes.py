@@ -45,6 +45,7 @@ __all__ = ["Worker", "Terminated", "end_on_signal", "mp_context", "adopt_environ
 _PROC = Path("/proc")
 _PR_SET_CHILD_SUBREAPER = 36  # from <linux/prctl.h>
 GRACE = 0.5  # seconds between SIGTERM and SIGKILL of a worker
+STARTUP = 60.0  # seconds a worker may take to start and receive a task (imports of the solver's module)
 
 
 def mp_context():
@@ -208,6 +209,7 @@ def _loop(conn):
         if task is None:
             return
         fn, args = task
+        conn.send(("started", None))  # the limit counts from here, not from the worker's start-up
         try:
             outcome = ("ok", fn(*args))
         except Terminated:
@@ -258,13 +260,18 @@ class Worker:
 
     def submit(self, fn, *args, task=None, timeout=None):
         self.conn.send((fn, args))
-        self.task = task
-        self.deadline = None if timeout is None else time.monotonic() + timeout
+        self.task, self.timeout = task, timeout
+        # Until the worker says it started the task (its start-up and imports done), a longer allowance.
+        self.deadline = None if timeout is None else time.monotonic() + timeout + STARTUP
 
     def receive(self):
-        outcome = self.conn.recv()
+        """The task's outcome, or None when the message only said that the task started."""
+        kind, value = self.conn.recv()
+        if kind == "started":
+            self.deadline = None if self.timeout is None else time.monotonic() + self.timeout
+            return None
         self.task, self.deadline = None, None
-        return outcome
+        return kind, value
 
     def stop(self, grace=GRACE):
         """End the worker: politely when idle, else SIGTERM, then SIGKILL of its whole tree after ``grace``."""

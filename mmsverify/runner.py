@@ -282,11 +282,12 @@ def _farm(tasks, workers, timeout, done):
                 key = w.task
                 if w.conn in ready:
                     try:
-                        kind, value = w.receive()
+                        outcome = w.receive()
                     except (EOFError, OSError):
                         kind, value = "died", None
                     else:
-                        done(key, kind, value)
+                        if outcome is not None:
+                            done(key, *outcome)
                         continue
                 elif w.sentinel in ready:
                     kind, value = "died", None
