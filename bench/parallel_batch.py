@@ -12,8 +12,9 @@ Three batches, each run with one worker and with two, in interleaved rounds
 3. ``studies``: a batch of independent studies of bundled problems and
    solvers through ``mmsverify.execute.runner.run_studies(jobs, workers=N)``.
 
-Next to the wall seconds: the CPU seconds of all processes (this one and
-its workers), which show how much work there was, and the best ratio the
+Next to the wall seconds: the CPU seconds of this process and the children
+it waited for (workers started by forkserver are the server's children and
+are not counted, so the figure understates the work of pools), and the best ratio the
 speed-up the work allows on two cores: min(2, all jobs / longest job), from
 the seconds each job took in the one-worker round.
 Two workers can only approach 2x when both cores are free; the load
@@ -125,7 +126,7 @@ def main(argv=None):
         (w1, c1, work, longest), (w2, c2, _, _) = best[1], best[2]
         bound = f"{min(2.0, work / longest):.2f}x" if work else "-"
         rows.append([name, f"{w1:.2f} / {c1:.2f}", f"{w2:.2f} / {c2:.2f}", f"**{w1 / w2:.2f}x**",
-                     f"{c2 / c1:.2f}", bound])
+                     f"{c2 / c1:.2f}" if c1 else "-", bound])
     print(f"# Independent studies on 2 workers against 1 (fastest of {repeats} interleaved round(s))\n")
     print(table(["batch", "1 worker: wall / CPU s", "2 workers: wall / CPU s", "speed-up (wall 1 / wall 2)",
                  "CPU 2 / CPU 1", "best speed-up the jobs allow"], rows))

@@ -2,6 +2,7 @@
 
 from concurrent.futures import ThreadPoolExecutor
 import os
+from pathlib import Path
 import time
 
 import numpy as np
@@ -35,6 +36,12 @@ class Faulty:
             except Exception:
                 pass
             time.sleep(30)
+        if fault == "swallow all":        # catches even the SystemExit or KeyboardInterrupt of a stop
+            while True:
+                try:
+                    time.sleep(30)
+                except BaseException:
+                    pass
         sol = fd_solve(case)
         if fault == "nan":
             u = sol.values["u"].copy()
@@ -161,3 +168,20 @@ def test_a_solver_that_swallows_the_time_out_is_stopped_again():
     assert failed.level == 1 and "no result within 1 s" in failed.message
     import signal
     assert signal.getsignal(signal.SIGALRM) == signal.SIG_DFL and signal.getitimer(signal.ITIMER_REAL)[0] == 0
+
+
+def test_worker_pools_never_fork_the_tool():
+    # common practice: fork of a process that may run threads is unsafe (Python 3.12+ warns; 3.14 changed the default)
+    from mmsverify.execute.processes import mp_context
+    assert mp_context().get_start_method() in ("forkserver", "spawn")
+    root = Path(__file__).resolve().parent.parent / "mmsverify"
+    for name in ("runner.py", "processes.py", "external.py", "cli/__init__.py", "cli/_run.py"):
+        text = (root / name).read_text(encoding="utf-8")
+        for banned in ("os.fork", "gc.freeze", "threading.Thread", "import _thread", "SIGALRM", "setitimer"):
+            assert banned not in text, (name, banned)
+
+
+def test_a_solver_that_swallows_base_exception_is_stopped_serially_and_the_next_level_runs():
+    result = run_study(PROBLEM, Faulty(level0="swallow all"), levels=2, base_cells=4, timeout=0.5)
+    assert result.levels[0].status == "failed" and "no result within 0.5 s" in result.levels[0].message
+    assert result.levels[1].ok, result.levels[1].message

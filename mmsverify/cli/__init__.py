@@ -17,9 +17,11 @@ Other installed packages may add commands through the entry-point group
 
 import argparse
 import importlib
+import signal
 import sys
 
 from mmsverify.errors import MMSError
+from mmsverify.execute.processes import end_on_signal
 
 __all__ = ["main", "console", "EXIT_OK", "EXIT_FAIL", "EXIT_INPUT", "EXIT_INCONCLUSIVE"]
 
@@ -74,14 +76,28 @@ def build_parser():
     return parser
 
 
-def main(argv=None):
-    """Run the command line; returns the exit code."""
+def main(argv=None, *, own_process=False):
+    """Run the command line; returns the exit code.
+
+    ``own_process=True`` says that this process runs this one command and
+    then exits (the ``mmsverify`` program, ``python -m mmsverify``): SIGTERM
+    and SIGHUP then end it like Ctrl-C (through
+    :class:`~mmsverify.execute.processes.Terminated`, a ``KeyboardInterrupt``), so that the clean-up on the way out runs: worker
+    processes and external programs (with everything they started) are
+    killed and temporary level folders removed. In-process callers (tests,
+    notebooks) keep their own signal handlers.
+    """
     argv = sys.argv[1:] if argv is None else list(argv)
     parser = build_parser()
     args = parser.parse_args(argv)
     if not getattr(args, "func", None):
         parser.print_help()
         return EXIT_INPUT
+    args.own_process = own_process
+    if own_process:
+        for sig in (signal.SIGTERM, getattr(signal, "SIGHUP", None)):
+            if sig is not None:
+                signal.signal(sig, end_on_signal)
     from mmsverify.cli.progress import configure_logging, verbosity
     configure_logging(verbosity(args))
     try:
@@ -89,9 +105,10 @@ def main(argv=None):
     except MMSError as exc:
         print(f"mmsverify: error: {exc}", file=sys.stderr)
         return EXIT_INPUT
-    except KeyboardInterrupt:
-        print("mmsverify: interrupted", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as exc:
+        signum = getattr(exc, "signum", None)
+        print("mmsverify: interrupted" + (f" by {signal.Signals(signum).name}" if signum else ""), file=sys.stderr)
+        return 128 + (signum or signal.SIGINT)
     except BrokenPipeError:  # output piped into `head` and the like: stop quietly
         import os
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())

@@ -1,5 +1,6 @@
 """``mmsverify run PROBLEM SOLVER``: a manufactured-solution study."""
 
+import argparse
 from dataclasses import replace
 import shlex
 import sys
@@ -44,7 +45,9 @@ def add_execution_options(p):
     g = p.add_argument_group("execution")
     g.add_argument("--workers", type=int, metavar="N",
                    help="run the levels in a local pool of N processes (default: one after another)")
-    g.add_argument("--timeout", type=float, metavar="SECONDS", help="time limit per level; slower levels fail")
+    g.add_argument("--timeout", type=_timeout, default=DEFAULT_TIMEOUT, metavar="SECONDS",
+                   help=f"time limit per level: a slower level is stopped (its processes killed) and fails; "
+                        f"default {DEFAULT_TIMEOUT:g} s; 'none' turns the limit off")
     g.add_argument("--cache", metavar="DIR", help="keep finished levels in DIR; reruns and resumed studies reuse them")
     g.add_argument("--fresh", action="store_true", help="with --cache: recompute every level and overwrite")
     g.add_argument("--no-cache", action="store_true",
@@ -65,6 +68,34 @@ def add_execution_options(p):
                    help="parameter for the external program's case file (repeatable)")
     g.add_argument("--spacing", choices=("grid", "volumes"), default="grid",
                    help="h of a level: from the case grid, or (V/N)^(1/d) from the program's cell volumes")
+
+
+#: Seconds per level unless --timeout says otherwise: an hour stops a hung solver or program
+#: within the working day, yet is far above any level a verification study needs
+#: (the bundled studies take seconds; a million-cell 3-D level takes minutes).
+DEFAULT_TIMEOUT = 3600.0
+
+
+def _timeout(text):
+    """``--timeout``: a positive number of seconds, or ``none`` (or 0) for no limit."""
+    if text.strip().lower() in ("none", "off", "0"):
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        value = None
+    if value is None or not 0 < value < float("inf"):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a time limit: give seconds (e.g. 600) or 'none'")
+    return value
+
+
+def describe_timeout(args):
+    """The line that states the time limit per level of a study run from the command line."""
+    limit = getattr(args, "timeout", None)
+    if limit is None:
+        return "time limit per level: none (--timeout none)"
+    how = "default; change with --timeout SECONDS or --timeout none" if limit == DEFAULT_TIMEOUT else "--timeout"
+    return f"time limit per level: {limit:g} s ({how})"
 
 
 def exit_code(result):
@@ -115,7 +146,15 @@ def external_from_args(args):
     if not command:
         return None
     workdir = args.workdir or (str(Path(cache_folder(args)) / "runs") if cache_folder(args) else None)
-    return ExternalSolver(shlex.split(command), fmt=args.output_format, case_format=args.case_format,
+    try:
+        words = shlex.split(command)
+    except ValueError as exc:  # an unbalanced quote
+        raise SolverError(f"--external {command!r}: {exc}; quote each argument with a matching ' or \", "
+                          "or escape the quote with \\") from None
+    if not words:
+        raise SolverError("--external: the command is empty; give the program and its arguments, "
+                          "e.g. --external \"./poisson2d {case}\"")
+    return ExternalSolver(words, fmt=args.output_format, case_format=args.case_format,
                           workdir=workdir, params=dict(_param(p) for p in args.param), spacing=args.spacing,
                           timeout=args.timeout)
 
@@ -210,6 +249,7 @@ def _run(args):
     if args.solver is not None and not args.external:
         resolve_solver(args.solver)      # a name that cannot be imported fails here, before any work
     if not quiet:
+        print(describe_timeout(args), file=sys.stderr)
         print_design_warnings(args, problem)
     label = args.solver or args.external
     progress = progress_for(args, label=f"{args.problem} / {label}")

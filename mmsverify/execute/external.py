@@ -50,6 +50,7 @@ import string
 import subprocess
 import tempfile
 import time
+import uuid
 import zipfile
 
 import numpy as np
@@ -58,6 +59,7 @@ from mmsverify.errors import MMSError, SolverError
 from mmsverify.execute.meshfiles import MESH_FORMATS, read_mesh_columns
 from mmsverify.fileio import read_text, regular_file
 from mmsverify.problem.record import SIDES
+from mmsverify.execute.processes import kill_marked
 from mmsverify.execute.solvers import Solution
 
 __all__ = ["ExternalSolver", "ProgramFailed", "write_case", "read_case", "read_solution", "expand_command",
@@ -335,6 +337,17 @@ def _drain(stream, log, idle=0.1, most=1.0):
 
 
 def _run_program(args, cwd, timeout, env, log_path, tail_chars, log_limit):
+    """Run the program in a session of its own; whatever happens, nothing it started outlives this call.
+
+    The group kill takes the program and the children that stayed in its
+    session. A descendant that started a session of its own (``setsid``,
+    a daemon) leaves the group but keeps the environment, so a unique
+    ``MMSVERIFY_RUN`` mark is set there and every process carrying it is
+    killed at the end (see :mod:`mmsverify.execute.processes`): simpler than
+    tracking parents, and it holds when the orphan is re-parented to init.
+    """
+    marker = f"{uuid.uuid4().hex}"
+    env = {**env, "MMSVERIFY_RUN": marker}
     start = time.perf_counter()
     deadline = None if timeout is None else time.monotonic() + timeout
     Path(log_path).unlink(missing_ok=True)  # a link planted under this name is removed, not followed
@@ -355,6 +368,8 @@ def _run_program(args, cwd, timeout, env, log_path, tail_chars, log_limit):
                 os.killpg(proc.pid, signal.SIGKILL)
             except (ProcessLookupError, PermissionError):
                 pass
+            kill_marked(f"MMSVERIFY_RUN={marker}".encode())  # and those that left its session
+            proc.wait()
             try:
                 _drain(proc.stdout, log)
             finally:
@@ -585,7 +600,9 @@ class ExternalSolver:
         Format of the solution file (see :func:`read_solution`).
     timeout : float, optional
         Seconds per level; the program's process group is killed after it.
-        A study's own time limit (``run_study(timeout=...)``) also applies.
+        A study's own time limit (``run_study(timeout=...)``) also applies:
+        it kills the worker process that runs this solver, which kills the
+        program first.
     workdir : path, optional
         Study folder; each level gets
         ``<problem>-<hash>/<solver>-<digest>/level-<k>-<cells>/`` with its case
@@ -681,11 +698,6 @@ class ExternalSolver:
         return json.dumps({"command": self.command, "fmt": self.fmt, "params": self.params, "env": self.env,
                            "spacing": self.spacing, "files": files}, sort_keys=True, default=repr)
 
-    def _limit(self):
-        from mmsverify.execute.runner import remaining_time
-        limits = [t for t in (self.timeout, remaining_time()) if t is not None]
-        return max(min(limits), 0.01) if limits else None
-
     def __call__(self, case):
         grid, problem = case.grid, case.problem
         location = f"problem {problem.name}, level {grid.level} ({grid.describe()})"
@@ -724,8 +736,7 @@ class ExternalSolver:
         args = expand_command(self.command, {"case": case_path, "out": out, "dir": level_dir, "level": grid.level,
                                              "problem": problem.name, "hash": problem.content_hash()})
         env = {**os.environ, **self.env, "MMSVERIFY_CASE": str(case_path)}
-        limit = self._limit()
-        from mmsverify.execute.runner import LevelTimeout
+        limit = self.timeout
         try:
             cwd = level_dir if self.cwd == "{dir}" else self.cwd
             run = _run_program(args, cwd, limit, env, level_dir / "output.log", self.tail_chars,
@@ -736,9 +747,6 @@ class ExternalSolver:
         except PermissionError:
             raise ProgramFailed("crash", f"{where}: cannot start {args[0]!r}: not executable; "
                                          f"run chmod +x {args[0]}") from None
-        except LevelTimeout as exc:
-            raise ProgramFailed("timeout", f"{exc}; its process group was killed",
-                                _tail(level_dir / "output.log", self.tail_chars)) from None
         if run.timed_out:
             raise ProgramFailed("timeout", f"{where}: no result within {limit:g} s; its process group was killed",
                                 run.tail)

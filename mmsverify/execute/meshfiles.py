@@ -58,7 +58,7 @@ def cell_volumes(points, cell_type, connectivity):
 
 
 def read_mesh_columns(path, coords, fields):
-    """Columns of a mesh file as :func:`mmsverify.external.read_solution` reads them.
+    """Columns of a mesh file as :func:`mmsverify.execute.external.read_solution` reads them.
 
     Returns a dict with one array per coordinate name in ``coords``,
     ``volume``, and every point or cell data array (see the module text).

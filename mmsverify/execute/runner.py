@@ -18,73 +18,35 @@ Failures never stop a study: a level that raises, times out, returns NaN
 or a wrong shape, or whose worker process dies, becomes a failed
 LevelResult whose message says why.
 
-Time limits (``timeout`` seconds per level) are enforced inside the process
-that runs the level, with ``SIGALRM`` where it runs in a main thread (this
-process, process pools), and by :class:`~mmsverify.execute.external.ExternalSolver`
-for external programs in any executor. A pure-Python solver in a thread
-(thread pools, Dask workers) cannot be interrupted; the study then gives up
-waiting after ``timeout`` times the number of levels plus a minute. Signals
-are handled between Python bytecodes, so a single long call into compiled
-code finishes before the limit takes effect.
+Time limits (``timeout`` seconds per level) are enforced from outside:
+a level with a limit runs in a worker process (:class:`~mmsverify.execute.processes.Worker`,
+one per slot, living for the study), and the tool kills the worker and
+everything it started when the limit passes, serially or with
+``workers``. Nothing that runs inside the level (a solver that swallows
+every exception, compiled code, a program in a session of its own) can
+delay that. Levels sent to a caller's executor (a thread pool, Dask) cannot
+be killed from here; the study gives up waiting on them after ``timeout``
+times the number of levels plus a minute, and an
+:class:`~mmsverify.execute.external.ExternalSolver` enforces its own ``timeout``.
 """
 
-from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, Executor, ProcessPoolExecutor, wait
-from contextlib import contextmanager
-import contextvars
+from concurrent.futures import FIRST_COMPLETED, Executor, ProcessPoolExecutor, wait
 from dataclasses import replace
+from multiprocessing.connection import wait as wait_ready
 import os
 import pickle
-import signal
-import threading
 import time
 import warnings
 
 from mmsverify.execute.cache import LevelCache, solver_identity
 from mmsverify.errors import MMSError, SolverError
+from mmsverify.execute.processes import GRACE, Worker, adopt_environment, mp_context
 from mmsverify.study.refinement import LevelResult, run_level
 
-__all__ = ["run_levels", "run_studies", "LevelTimeout", "remaining_time", "as_executor", "process_pool"]
+__all__ = ["run_levels", "run_studies", "as_executor", "process_pool"]
 
-_DEADLINE = contextvars.ContextVar("mmsverify_level_deadline", default=None)
-_ALARM_GRACE = 1.0  # seconds; lets an external program's own time-out (and kill) report first
-_ALARM_REPEAT = 0.5  # seconds between further alarms of a level whose time is up
 _WAIT_SLACK = 60.0   # seconds added to the overall wait when limits cannot be enforced in workers
 _MAX_MESSAGE = 10_000  # characters of a failed level's message that are kept (start and end)
-
-
-class LevelTimeout(SolverError):
-    """A level ran past the study's time limit."""
-
-
-def remaining_time():
-    """Seconds left for the level running in this thread, or None without a limit."""
-    deadline = _DEADLINE.get()
-    return None if deadline is None else deadline - time.monotonic()
-
-
-@contextmanager
-def _time_limit(seconds, where):
-    if not seconds:
-        yield
-        return
-    token = _DEADLINE.set(time.monotonic() + seconds)
-    alarm = hasattr(signal, "setitimer") and threading.current_thread() is threading.main_thread()
-    active = [True]
-    if alarm:
-        def _expired(signum, frame):
-            if active[0]:       # an alarm handled after the level ended does nothing
-                signal.setitimer(signal.ITIMER_REAL, _ALARM_REPEAT)  # again, should the solver swallow this
-                raise LevelTimeout(f"{where}: no result within {seconds:g} s; the level was stopped")
-        previous = signal.signal(signal.SIGALRM, _expired)
-        signal.setitimer(signal.ITIMER_REAL, seconds + _ALARM_GRACE)
-    try:
-        yield
-    finally:
-        active[0] = False       # first and without a call: a pending alarm cannot cut the clean-up short
-        if alarm:
-            signal.setitimer(signal.ITIMER_REAL, 0)
-            signal.signal(signal.SIGALRM, previous)
-        _DEADLINE.reset(token)
 
 
 def _cores():
@@ -95,6 +57,11 @@ def _cores():
 
 
 _THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+def _start_pool_worker(environ, workers):
+    adopt_environment(environ)
+    _share_cores(workers)
 
 
 def _share_cores(workers):
@@ -127,7 +94,8 @@ def process_pool(workers):
     cores that each start two BLAS threads spend time waiting on each other
     (measured in ``bench/parallel_batch.py``).
     """
-    return ProcessPoolExecutor(max_workers=workers, initializer=_share_cores, initargs=(workers,))
+    return ProcessPoolExecutor(max_workers=workers, mp_context=mp_context(),
+                               initializer=_start_pool_worker, initargs=(dict(os.environ), workers))
 
 
 def _failed(case, where, message):
@@ -156,7 +124,7 @@ def _escaped(exc):
     return f"the solver raised {type(first).__name__}: {text}"
 
 
-def _execute(solve, case, where, timeout):
+def _execute(solve, case, where):
     """Run one level where it is sent (this process or a worker); never raises for solver faults.
 
     A solver that measures its own grid size (``Solution.info["h"]``, as
@@ -166,10 +134,7 @@ def _execute(solve, case, where, timeout):
     Messages are kept to about ``_MAX_MESSAGE`` characters.
     """
     try:
-        with _time_limit(timeout, where):
-            result = run_level(solve, case, where)
-    except LevelTimeout as exc:  # the limit struck outside the solver call (while measuring errors)
-        return LevelResult(case.grid.level, case.grid, case.grid.h, "failed", message=_shorten(str(exc)))
+        result = run_level(solve, case, where)
     except KeyboardInterrupt:
         raise
     except BaseException as exc:  # SystemExit, or an error whose message fails while it is recorded
@@ -207,8 +172,8 @@ def _check_picklable(solve):
         pickle.dumps(solve)
     except Exception as exc:
         raise SolverError(f"the solver {solve!r} cannot be sent to worker processes ({type(exc).__name__}: {exc}); "
-                          "use a module-level function, 'module:function', a bundled name, or run without "
-                          "workers") from None
+                          "workers and time limits need one: use a module-level function, 'module:function' "
+                          "or a bundled name, or run without workers and without a time limit") from None
 
 
 def run_levels(solve, cases, wheres, *, executor=None, workers=None, timeout=None, cache=None, resume=True,
@@ -225,7 +190,9 @@ def run_levels(solve, cases, wheres, *, executor=None, workers=None, timeout=Non
     workers : int, optional
         Size of a local process pool when no executor is given.
     timeout : float, optional
-        Seconds per level.
+        Seconds per level. With a limit (or ``workers``) every level runs in
+        a worker process that is killed, with all it started, when its
+        time is up; the solver must then be picklable.
     cache : path or LevelCache, optional
         Where finished levels are kept.
     resume : bool
@@ -267,28 +234,100 @@ def run_levels(solve, cases, wheres, *, executor=None, workers=None, timeout=Non
     if not pending:
         return results
     pool = as_executor(executor)
-    owned = pool is None and workers is not None
-    if owned:
+    if pool is not None:
+        _through(pool, solve, cases, wheres, pending, timeout, finish)
+    elif workers is not None or timeout is not None:
         _check_picklable(solve)
-        pool = process_pool(min(int(workers), len(pending)))
-    try:
-        if pool is None:
-            for i in pending:
-                finish(i, _execute(solve, cases[i], wheres[i], timeout))
-        else:
-            _through(pool, owned, solve, cases, wheres, pending, timeout, finish)
-    finally:
-        if owned:
-            pool.shutdown(wait=True, cancel_futures=True)
+        _in_workers(solve, cases, wheres, pending, timeout, min(int(workers or 1), len(pending)), finish)
+    else:
+        for i in pending:
+            finish(i, _execute(solve, cases[i], wheres[i]))
     return results
 
 
-def _through(pool, owned, solve, cases, wheres, pending, timeout, finish):
-    # Largest levels first: the finest level dominates, so it should never wait for a worker.
-    order = sorted(pending, key=lambda i: -cases[i].grid.n_cells * (cases[i].grid.steps or 1))
-    futures = {pool.submit(_execute, solve, cases[i], wheres[i], timeout): i for i in order}
+def _largest_first(cases, pending):
+    # The finest level dominates, so it should never wait for a worker.
+    return sorted(pending, key=lambda i: -cases[i].grid.n_cells * (cases[i].grid.steps or 1))
+
+
+def _farm(tasks, workers, timeout, done):
+    """Run ``tasks`` (``(key, fn, args)``) in ``workers`` Worker processes, at most ``timeout`` s each.
+
+    ``done(key, kind, value)`` gets every outcome: ``"ok"`` with the value,
+    ``"error"`` with the exception raised, ``"timeout"`` or ``"died"`` with
+    None. A worker whose task ran out of time or that died is stopped (its
+    whole process tree killed) and replaced for the next task. Every worker
+    is stopped on the way out, however this function is left (an error,
+    Ctrl-C, SIGTERM or SIGHUP turned into an exception by the
+    command line).
+    """
+    queue = list(tasks)
+    slots = [None] * min(workers, len(queue))
+    try:
+        while queue or any(w is not None and w.task is not None for w in slots):
+            for k, w in enumerate(slots):
+                if queue and (w is None or w.task is None):
+                    if w is None:
+                        w = slots[k] = Worker(_share_cores, (len(slots),))
+                    key, fn, args = queue.pop(0)
+                    # The grace lets an external program's own time-out (and its tail of output) report first.
+                    w.submit(fn, *args, task=key, timeout=None if timeout is None else timeout + GRACE)
+            busy = [w for w in slots if w is not None and w.task is not None]
+            deadlines = [w.deadline for w in busy if w.deadline is not None]
+            left = None if not deadlines else max(0.0, min(deadlines) - time.monotonic())
+            ready = set(wait_ready([w.conn for w in busy] + [w.sentinel for w in busy], timeout=left))
+            for k, w in enumerate(slots):
+                if w is None or w.task is None:
+                    continue
+                key = w.task
+                if w.conn in ready:
+                    try:
+                        outcome = w.receive()
+                    except (EOFError, OSError):
+                        kind, value = "died", None
+                    else:
+                        if outcome is not None:
+                            done(key, *outcome)
+                        continue
+                elif w.sentinel in ready:
+                    kind, value = "died", None
+                elif w.deadline is not None and time.monotonic() >= w.deadline:
+                    kind, value = "timeout", None
+                else:
+                    continue
+                w.stop()
+                slots[k] = None
+                done(key, kind, value)
+    finally:
+        for w in slots:
+            if w is not None:
+                w.stop()
+
+
+_DIED = ("the worker process died while running this level (a crash in compiled code, a kill signal, "
+         "running out of memory or os._exit)")
+
+
+def _in_workers(solve, cases, wheres, pending, timeout, workers, finish):
+    def done(i, kind, value):
+        if kind == "ok":
+            finish(i, value)
+        elif kind == "timeout":
+            finish(i, _failed(cases[i], wheres[i], f"no result within {timeout:g} s; the level was stopped "
+                                                   "(its process and every process it started were killed)"))
+        elif kind == "died":
+            finish(i, _failed(cases[i], wheres[i], _DIED))
+        else:
+            finish(i, _failed(cases[i], wheres[i], f"the worker failed: {type(value).__name__}: {value}"))
+    _farm([(i, _execute, (solve, cases[i], wheres[i])) for i in _largest_first(cases, pending)], workers, timeout,
+          done)
+
+
+def _through(pool, solve, cases, wheres, pending, timeout, finish):
+    """Levels through a caller's executor: it cannot be killed from here, so waiting has an end."""
+    futures = {pool.submit(_execute, solve, cases[i], wheres[i]): i for i in _largest_first(cases, pending)}
     deadline = None if timeout is None else time.monotonic() + timeout * len(pending) + _WAIT_SLACK
-    waiting, broken = set(futures), []
+    waiting = set(futures)
     while waiting:
         left = None if deadline is None else max(0.0, deadline - time.monotonic())
         done, waiting = wait(waiting, timeout=left, return_when=FIRST_COMPLETED)
@@ -297,28 +336,14 @@ def _through(pool, owned, solve, cases, wheres, pending, timeout, finish):
                 fut.cancel()
                 i = futures[fut]
                 finish(i, _failed(cases[i], wheres[i], f"no result after waiting {timeout * len(pending) + _WAIT_SLACK:g} "
-                                  "s; the worker could not be interrupted (a Python solver in a thread)"))
+                                  "s; the executor's worker could not be interrupted"))
             break
         for fut in done:
             i = futures[fut]
             try:
                 finish(i, fut.result())
-            except BrokenExecutor:
-                broken.append(i)
-            except Exception as exc:  # the worker could not run the task at all
+            except Exception as exc:  # the worker could not run the task at all, or died
                 finish(i, _failed(cases[i], wheres[i], f"the worker failed: {type(exc).__name__}: {exc}"))
-    died = ("the worker process died while running this level (a crash in compiled code, a kill signal, "
-            "running out of memory or os._exit)")
-    for i in sorted(broken):
-        if not owned:
-            finish(i, _failed(cases[i], wheres[i], died + " or the executor shut down"))
-            continue
-        # A dead worker breaks the whole pool; rerun the affected levels one by one to find the culprit.
-        with ProcessPoolExecutor(max_workers=1) as solo:
-            try:
-                finish(i, solo.submit(_execute, solve, cases[i], wheres[i], timeout).result())
-            except BrokenExecutor:
-                finish(i, _failed(cases[i], wheres[i], died))
 
 
 def _study_job(kwargs):
@@ -339,23 +364,21 @@ def run_studies(jobs, *, executor=None, workers=None):
         if "problem" not in job or "solver" not in job:
             raise SolverError(f"study job {k} needs 'problem' and 'solver' entries; got {sorted(job)}")
     pool = as_executor(executor)
-    owned = pool is None and workers is not None
-    if owned:
-        pool = process_pool(min(int(workers), max(len(jobs), 1)))
-    try:
-        if pool is None:
-            outcomes = []
-            for job in jobs:
-                try:
-                    outcomes.append(_study_job(job))
-                except Exception as exc:
-                    outcomes.append(exc)
-        else:
-            futures = [pool.submit(_study_job, job) for job in jobs]
-            outcomes = [fut.exception() or fut.result() for fut in futures]
-    finally:
-        if owned:
-            pool.shutdown(wait=True)
+    outcomes = [None] * len(jobs)
+    if pool is not None:
+        futures = [pool.submit(_study_job, job) for job in jobs]
+        outcomes = [fut.exception() or fut.result() for fut in futures]
+    elif workers is not None:
+        def done(k, kind, value):
+            outcomes[k] = value if kind in ("ok", "error") else SolverError(
+                f"study job {k}: the worker process died while running it")
+        _farm([(k, _study_job, (job,)) for k, job in enumerate(jobs)], int(workers), None, done)
+    else:
+        for k, job in enumerate(jobs):
+            try:
+                outcomes[k] = _study_job(job)
+            except Exception as exc:
+                outcomes[k] = exc
     for k, (job, out) in enumerate(zip(jobs, outcomes)):
         if isinstance(out, MMSError):
             raise type(out)(f"study job {k} ({job['problem']}, {job['solver']}): {out}") from out
