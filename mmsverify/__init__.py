@@ -14,7 +14,8 @@ from mmsverify.analysis.gci import gci, gci_profile
 from mmsverify.analysis.estimate import assess, assess_table, load_levels, plan
 from mmsverify.analysis.verdict import Verdict
 from mmsverify.study.settings import Judging, Refinement, Running
-from mmsverify.study.refinement import LevelResult, StudyResult, run_study, plan_grids
+from mmsverify.execute.level import LevelResult
+from mmsverify.study.refinement import StudyResult, run_study, plan_grids
 from mmsverify.study.spacetime import SpaceTimeResult, run_space_time
 from mmsverify.execute.external import ExternalSolver
 from mmsverify.execute.runner import run_studies

@@ -5,7 +5,7 @@ A test solver writes a marker file when it reaches a chosen level and then
 waits; the test kills the whole group with SIGKILL (no clean-up of any
 kind) as soon as the marker appears, so the kill lands inside that level
 every time, whatever the machine's load. Every file the study keeps is then
-checked: level records, derivation cache entries and the result file. The
+checked: level records and the result file. The
 rerun with the same cache must solve exactly the levels that have no
 record, and the finished study must hold the numbers of a study that was
 never interrupted.
@@ -14,7 +14,6 @@ never interrupted.
 import json
 import os
 from pathlib import Path
-import pickle
 import signal
 import subprocess
 import sys
@@ -24,7 +23,7 @@ import time
 import pytest
 
 from mmsverify import run_study
-from mmsverify.outputs.report.files import read_json
+from mmsverify.outputs.studyfile import read_json
 from mmsverify.study.settings import Refinement
 
 REPO = Path(__file__).resolve().parent.parent
@@ -60,11 +59,8 @@ def _records(cache):
 
 
 def _check_files(tmp_path):
-    """Everything the study keeps is whole: level records, derivation cache entries, the result file."""
+    """Everything the study keeps is whole: level records and the result file."""
     records = _records(tmp_path / "cache")
-    for entry in (tmp_path / "derive").glob("*.pkl"):
-        with open(entry, "rb") as fh:
-            pickle.load(fh)  # our own entries: a torn pickle raises here
     out = tmp_path / "out.json"
     if out.exists():
         read_json(out)  # a half-written result raises here
@@ -96,7 +92,7 @@ def _kill_when_reached(cmd, env, marker, limit=120):
 def _scenario(tmp_path, stop_at, workers):
     (tmp_path / "kill_solver.py").write_text(textwrap.dedent(KILL_SOLVER))
     log, marker = tmp_path / "calls.log", tmp_path / "reached"
-    env = dict(os.environ, CALL_LOG=str(log), MMSVERIFY_CACHE=str(tmp_path / "derive"), MARKER=str(marker),
+    env = dict(os.environ, CALL_LOG=str(log), MARKER=str(marker),
                PYTHONPATH=os.pathsep.join([str(tmp_path), str(REPO), os.environ.get("PYTHONPATH", "")]))
     cmd = [sys.executable, "-m", "mmsverify", "run", PROBLEM, "kill_solver:solve", "--levels", str(LEVELS),
            "--base-cells", str(BASE), "--cache", str(tmp_path / "cache"), "--json", str(tmp_path / "out.json")]
@@ -107,7 +103,7 @@ def _scenario(tmp_path, stop_at, workers):
     assert stop_at not in finished and finished, f"records after the kill: {sorted(finished)}"
     rerun = subprocess.run(cmd, env=dict(env, RUN_ID="1"), stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
                            timeout=300)
-    assert rerun.returncode in (0, 1), rerun.stderr.decode()[-2000:]
+    assert rerun.returncode in (0, 1, 3), rerun.stderr.decode()[-2000:]
     assert sorted(_started(log, 1)) == sorted(set(range(LEVELS)) - set(finished)), \
         "the rerun must solve exactly the levels without a record"
     assert sorted(_check_files(tmp_path)) == list(range(LEVELS))
@@ -123,7 +119,9 @@ def reference():
 @pytest.mark.slow
 # Levels run largest first, so the smallest level is reached last: serially three records exist when
 # it starts; with two workers it is sent once two levels have finished and been stored.
-@pytest.mark.parametrize("stop_at, workers", [(0, None), (1, None), (0, 2)])
+# serially the levels run coarse to fine, so the kill comes inside a finer level; two workers take the
+# largest level first, so the coarsest is the last one they reach
+@pytest.mark.parametrize("stop_at, workers", [(2, None), (3, None), (0, 2)])
 def test_a_study_killed_inside_a_level_resumes_without_loss_or_repetition(tmp_path, reference, stop_at, workers):
     finished, result = _scenario(tmp_path, stop_at, workers)
     assert [lv.errors for lv in result.levels] == [lv.errors for lv in reference.levels]

@@ -175,13 +175,13 @@ def test_worker_pools_never_fork_the_tool():
     from mmsverify.execute.processes import mp_context
     assert mp_context().get_start_method() in ("forkserver", "spawn")
     root = Path(__file__).resolve().parent.parent / "mmsverify"
-    for name in ("runner.py", "processes.py", "external.py", "cli/__init__.py", "cli/_run.py"):
+    for name in ("execute/runner.py", "execute/processes.py", "execute/external.py", "cli/__init__.py", "cli/_run.py"):
         text = (root / name).read_text(encoding="utf-8")
         for banned in ("os.fork", "gc.freeze", "threading.Thread", "import _thread", "SIGALRM", "setitimer"):
             assert banned not in text, (name, banned)
 
 
 def test_a_solver_that_swallows_base_exception_is_stopped_serially_and_the_next_level_runs():
-    result = run_study(PROBLEM, Faulty(level0="swallow all"), levels=2, base_cells=4, timeout=0.5)
+    result = run_study(PROBLEM, Faulty(level0="swallow all"), refinement=Refinement(levels=2, base_cells=4), running=Running(timeout=0.5))
     assert result.levels[0].status == "failed" and "no result within 0.5 s" in result.levels[0].message
     assert result.levels[1].ok, result.levels[1].message

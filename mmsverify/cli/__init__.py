@@ -116,5 +116,5 @@ def main(argv=None, *, own_process=False):
 
 
 def console(argv=None):
-    """Entry of the ``mmsverify`` program and of ``python -m mmsverify``."""
-    return main(argv)
+    """Entry of the ``mmsverify`` program and of ``python -m mmsverify``: :func:`main` in a process of its own."""
+    return main(argv, own_process=True)

@@ -60,7 +60,7 @@ class LevelProgress:
     >>> out = io.StringIO()
     >>> p = LevelProgress(2, "demo", VERBOSE, stream=out, clock=iter([0.0, 1.5, 3.0]).__next__)
     >>> from mmsverify.execute.grids import Grid
-    >>> from mmsverify.study.refinement import LevelResult
+    >>> from mmsverify.execute.level import LevelResult
     >>> p(LevelResult(0, Grid(0, (0.0,), (1.0,), (8,)), 0.125, "ok", seconds=1.2))
     >>> print(out.getvalue().strip())
     demo: 1/2 levels run; level 0 done (8 cells, solver 1.2 s; 1.5 s elapsed)

@@ -430,7 +430,7 @@ class LevelCache:
         None too (the level is recomputed and the record rewritten), with a
         warning that names the file and the entry.
         """
-        from mmsverify.study.refinement import LevelResult
+        from mmsverify.execute.level import LevelResult
         path = self.path(key)
         try:
             r = read_record(path, key, grid)

@@ -41,7 +41,7 @@ import warnings
 from mmsverify.execute.cache import LevelCache, solver_identity
 from mmsverify.errors import MMSError, SolverError
 from mmsverify.execute.processes import GRACE, Worker, adopt_environment, mp_context
-from mmsverify.study.refinement import LevelResult, run_level
+from mmsverify.execute.level import LevelResult, run_level
 
 __all__ = ["run_levels", "run_studies", "as_executor", "process_pool"]
 
@@ -319,8 +319,10 @@ def _in_workers(solve, cases, wheres, pending, timeout, workers, finish):
             finish(i, _failed(cases[i], wheres[i], _DIED))
         else:
             finish(i, _failed(cases[i], wheres[i], f"the worker failed: {type(value).__name__}: {value}"))
-    _farm([(i, _execute, (solve, cases[i], wheres[i])) for i in _largest_first(cases, pending)], workers, timeout,
-          done)
+    # one worker runs the levels coarse to fine, as a study in this process would; several take the largest
+    # first, so that no worker is left with a long level at the end
+    order = _largest_first(cases, pending) if workers > 1 else sorted(pending)
+    _farm([(i, _execute, (solve, cases[i], wheres[i])) for i in order], workers, timeout, done)
 
 
 def _through(pool, solve, cases, wheres, pending, timeout, finish):

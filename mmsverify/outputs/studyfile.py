@@ -22,7 +22,8 @@ from mmsverify.fileio import (as_int, as_number, load_json_file, need, need_bool
                               need_int, need_list, need_number, need_str, write_atomic)
 from mmsverify.execute.grids import Grid
 from mmsverify.execute.norms import NORMS
-from mmsverify.study.refinement import NORMS_SOURCES, LevelResult, StudyResult, rejudge
+from mmsverify.execute.level import LevelResult
+from mmsverify.study.refinement import NORMS_SOURCES, StudyResult, rejudge
 from mmsverify.analysis.verdict import Verdict
 from mmsverify.render.wording import level_rows
 from mmsverify.render._quantities import quantity_rows
