@@ -17,7 +17,7 @@ Configurations:
 * ``py-sparse``, ``py-sparse-r1.41``: the bundled Python solver (sparse
   direct), ratio 2 and sqrt(2);
 * ``2 studies``: two independent four-level studies (``c-sor-r1.41`` and
-  ``py-sparse-r1.41``) through :func:`mmsverify.execute.runner.run_studies`, one
+  ``py-sparse-r1.41``) through :func:`mmsverify.study.batch.run_studies`, one
   study per worker, against the same two run one after the other.
 
 BLAS thread pools are limited to one thread per process (set before NumPy
@@ -77,7 +77,7 @@ def _measure(solver, base, ratio, repeats):
 
 
 def _studies(jobs, repeats):
-    from mmsverify.execute.runner import run_studies
+    from mmsverify.study.batch import run_studies
     walls = {1: [], 2: []}
     for _ in range(repeats):
         for workers in (1, 2):

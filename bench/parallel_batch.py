@@ -10,7 +10,7 @@ Three batches, each run with one worker and with two, in interleaved rounds
    ``python -m mmsverify mistakes --workers N``, end to end in a new
    process (interpreter start and imports included);
 3. ``studies``: a batch of independent studies of bundled problems and
-   solvers through ``mmsverify.execute.runner.run_studies(jobs, workers=N)``.
+   solvers through ``mmsverify.study.batch.run_studies(jobs, workers=N)``.
 
 Next to the wall seconds: the CPU seconds of this process and the children
 it waited for (workers started by forkserver are the server's children and
@@ -81,7 +81,7 @@ def study_jobs(rows):
 
 
 def _studies(workers, jobs):
-    from mmsverify.execute.runner import run_studies
+    from mmsverify.study.batch import run_studies
     results = run_studies(study_jobs(jobs), workers=workers)
     for (p, s, _), r in zip(jobs, results):
         if not r.passed:

@@ -18,7 +18,7 @@ from mmsverify.execute.level import LevelResult
 from mmsverify.study.refinement import StudyResult, run_study, plan_grids
 from mmsverify.study.spacetime import SpaceTimeResult, run_space_time
 from mmsverify.execute.external import ExternalSolver
-from mmsverify.execute.runner import run_studies
+from mmsverify.study.batch import run_studies
 from mmsverify.execute.cache import LevelCache
 
 __all__ = [

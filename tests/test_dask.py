@@ -7,7 +7,7 @@ import distributed
 import pytest
 
 from mmsverify import run_study
-from mmsverify.execute.runner import run_studies
+from mmsverify.study.batch import run_studies
 from mmsverify.study.settings import Refinement, Running
 
 JOBS = [dict(problem="plate-poisson", solver="poisson2d", refinement=4),

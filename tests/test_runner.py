@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from mmsverify import Solution, SolverError, run_study
-from mmsverify.execute.runner import run_studies
+from mmsverify.study.batch import run_studies
 from solvers_demo.fd.poisson import solve as fd_solve
 from mmsverify.study.settings import Refinement, Running
 

@@ -28,7 +28,7 @@ import numpy as np
 import sympy as sp
 
 from mmsverify.design.model import diff, model_from_text, sample_points
-from mmsverify.design.checks import SMALL_TERM, _admissibility, _term_sizes
+from mmsverify.design.checks import SMALL_TERM, admissibility_at, term_sizes_at
 from mmsverify.errors import ProblemError
 from mmsverify.problem.record import PROBLEM_DIR
 
@@ -203,7 +203,7 @@ def balance(problem, tune=None, iterations=100, *, max_factor=10.0, base_cells=N
 
     n = len(x0)
     best, nit, nfev = np.zeros(n), 0, 0
-    a_before = _admissibility(model, pts, starts, seed)
+    a_before = admissibility_at(model, pts, starts, seed)
     after_m, a_after = model, a_before
     # Nelder-Mead within the iteration budget; when optimisation between the samples still finds a
     # violation, widen the safety margin and go on from the best point with the iterations left.
@@ -218,12 +218,12 @@ def balance(problem, tune=None, iterations=100, *, max_factor=10.0, base_cells=N
         if res.fun <= objective(best):
             best = res.x
         after_m = replace(model, values=tuple(float(v) for v in values_of(best)))
-        a_after = _admissibility(after_m, pts, starts, seed)
+        a_after = admissibility_at(after_m, pts, starts, seed)
         if a_after.ok or margin[0] >= 0.2:
             break
         margin[0] *= 4
     after_vals = values_of(best)
-    t_before, t_after = _term_sizes(model, threshold, pts), _term_sizes(after_m, threshold, pts)
+    t_before, t_after = term_sizes_at(model, threshold, pts), term_sizes_at(after_m, threshold, pts)
     consts = dict(zip(names, first.values))
     tuned = tuple(str(c) for c in model.consts)
     after = dict(consts) | {k: float(v) for k, v in zip(tuned, after_vals)}

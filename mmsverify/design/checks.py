@@ -44,7 +44,8 @@ from mmsverify.design.model import diff, model_from_problem, sample_points
 
 __all__ = ["TermSize", "TermReport", "LeadingDerivative", "TruncationReport", "BoundCheck",
            "AdmissibilityReport", "DesignAudit", "term_sizes", "truncation_check", "admissibility_check",
-           "audit", "design_warnings", "SMALL_TERM", "Unexercised", "CoverageReport", "coverage_check"]
+           "audit", "design_warnings", "SMALL_TERM", "Unexercised", "CoverageReport", "coverage_check",
+           "term_sizes_at", "admissibility_at"]
 
 #: Default: a term below this fraction of the largest term of its equation is "small".  # common practice
 SMALL_TERM = 0.01
@@ -195,7 +196,7 @@ def _hint(term, status, rel, largest, reasons, threshold):
             f"match the largest) through {lever}, or see `mmsverify audit --balance`")
 
 
-def _term_sizes(model, threshold, pts):
+def term_sizes_at(model, threshold, pts):
     values = model.compile([t.expr for t in model.terms])(*pts, *model.values)
     sizes = {t: (_rms(v), float(np.nanmax(np.abs(v))) if np.any(np.isfinite(v)) else 0.0)
              for t, v in zip(model.terms, values)}
@@ -232,7 +233,7 @@ def term_sizes(problem, threshold=SMALL_TERM, per_axis=None):
     TermReport
     """
     model = _model(problem)
-    return _term_sizes(model, threshold, sample_points(model, per_axis))
+    return term_sizes_at(model, threshold, sample_points(model, per_axis))
 
 
 # -- truncation error ---------------------------------------------------------------------
@@ -445,7 +446,7 @@ def _extreme(fn, sign, pts, vals, box, starts, rng):
     return sign * value, point
 
 
-def _admissibility(model, pts, starts, seed):
+def admissibility_at(model, pts, starts, seed):
     checks = []
     rng = np.random.default_rng(seed)
     every = model.compile([b.expr for b in model.bounds]) if model.bounds else None
@@ -475,7 +476,7 @@ def admissibility_check(problem, starts=6, seed=0, per_axis=None):
     only. Returns an :class:`AdmissibilityReport`.
     """
     model = _model(problem)
-    return _admissibility(model, sample_points(model, per_axis), starts, seed)
+    return admissibility_at(model, sample_points(model, per_axis), starts, seed)
 
 
 # -- unexercised coefficients and derivatives --------------------------------------------------
@@ -661,9 +662,9 @@ def audit(problem, formal_order=None, time_order=None, *, threshold=SMALL_TERM, 
     pts = sample_points(model, per_axis)
     p = int(round(formal_order)) if formal_order is not None else model.space_order
     q = int(round(time_order)) if time_order is not None else model.time_order
-    return DesignAudit(model.name, _term_sizes(model, threshold, pts),
+    return DesignAudit(model.name, term_sizes_at(model, threshold, pts),
                        _truncation(model, p, q if model.t is not None else None, pts),
-                       _admissibility(model, pts, starts, seed), _coverage(model, pts))
+                       admissibility_at(model, pts, starts, seed), _coverage(model, pts))
 
 
 def design_warnings(problem, formal_order=None, time_order=None):

@@ -43,7 +43,7 @@ from mmsverify.errors import MMSError, SolverError
 from mmsverify.execute.processes import GRACE, Worker, adopt_environment, mp_context
 from mmsverify.execute.level import LevelResult, run_level
 
-__all__ = ["run_levels", "run_studies", "as_executor", "process_pool"]
+__all__ = ["run_levels", "as_executor", "process_pool", "farm"]
 
 _WAIT_SLACK = 60.0   # seconds added to the overall wait when limits cannot be enforced in workers
 _MAX_MESSAGE = 10_000  # characters of a failed level's message that are kept (start and end)
@@ -250,7 +250,7 @@ def _largest_first(cases, pending):
     return sorted(pending, key=lambda i: -cases[i].grid.n_cells * (cases[i].grid.steps or 1))
 
 
-def _farm(tasks, workers, timeout, done):
+def farm(tasks, workers, timeout, done):
     """Run ``tasks`` (``(key, fn, args)``) in ``workers`` Worker processes, at most ``timeout`` s each.
 
     ``done(key, kind, value)`` gets every outcome: ``"ok"`` with the value,
@@ -322,7 +322,7 @@ def _in_workers(solve, cases, wheres, pending, timeout, workers, finish):
     # one worker runs the levels coarse to fine, as a study in this process would; several take the largest
     # first, so that no worker is left with a long level at the end
     order = _largest_first(cases, pending) if workers > 1 else sorted(pending)
-    _farm([(i, _execute, (solve, cases[i], wheres[i])) for i in order], workers, timeout, done)
+    farm([(i, _execute, (solve, cases[i], wheres[i])) for i in order], workers, timeout, done)
 
 
 def _through(pool, solve, cases, wheres, pending, timeout, finish):
@@ -346,44 +346,3 @@ def _through(pool, solve, cases, wheres, pending, timeout, finish):
                 finish(i, fut.result())
             except Exception as exc:  # the worker could not run the task at all, or died
                 finish(i, _failed(cases[i], wheres[i], f"the worker failed: {type(exc).__name__}: {exc}"))
-
-
-def _study_job(kwargs):
-    from mmsverify.study.refinement import run_study
-    return run_study(**kwargs)
-
-
-def run_studies(jobs, *, executor=None, workers=None):
-    """Run several studies, each a dict of :func:`~mmsverify.study.refinement.run_study` arguments.
-
-    Studies run in parallel through ``executor`` or a local pool of
-    ``workers`` processes (serially when neither is given); each study runs
-    its own levels serially unless its dict says otherwise. Returns the
-    StudyResults in order; an invalid study raises its error, naming the job.
-    """
-    jobs = [dict(j) for j in jobs]
-    for k, job in enumerate(jobs):
-        if "problem" not in job or "solver" not in job:
-            raise SolverError(f"study job {k} needs 'problem' and 'solver' entries; got {sorted(job)}")
-    pool = as_executor(executor)
-    outcomes = [None] * len(jobs)
-    if pool is not None:
-        futures = [pool.submit(_study_job, job) for job in jobs]
-        outcomes = [fut.exception() or fut.result() for fut in futures]
-    elif workers is not None:
-        def done(k, kind, value):
-            outcomes[k] = value if kind in ("ok", "error") else SolverError(
-                f"study job {k}: the worker process died while running it")
-        _farm([(k, _study_job, (job,)) for k, job in enumerate(jobs)], int(workers), None, done)
-    else:
-        for k, job in enumerate(jobs):
-            try:
-                outcomes[k] = _study_job(job)
-            except Exception as exc:
-                outcomes[k] = exc
-    for k, (job, out) in enumerate(zip(jobs, outcomes)):
-        if isinstance(out, MMSError):
-            raise type(out)(f"study job {k} ({job['problem']}, {job['solver']}): {out}") from out
-        if isinstance(out, BaseException):
-            raise out
-    return outcomes

@@ -26,7 +26,7 @@ from mmsverify.execute.level import LevelResult
 from mmsverify.study.refinement import NORMS_SOURCES, StudyResult, rejudge
 from mmsverify.analysis.verdict import Verdict
 from mmsverify.render.wording import level_rows
-from mmsverify.render._quantities import quantity_rows
+from mmsverify.render.quantities import quantity_rows
 from mmsverify.render.text import CAUTION
 
 __all__ = ["FORMAT", "FORMAT_VERSION", "CSV_COLUMNS", "study_to_data", "study_from_data", "write_json",

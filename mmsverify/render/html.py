@@ -13,7 +13,7 @@ from pathlib import Path
 from mmsverify.execute.norms import NORMS
 from mmsverify.render.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
                       notes, study_facts)
-from mmsverify.render._quantities import quantity_table
+from mmsverify.render.quantities import quantity_table
 from mmsverify.render.text import CAUTION
 
 __all__ = ["html_text", "write_html", "data_uri"]
