@@ -113,8 +113,15 @@ def _span(levels):
     return f"levels {levels[0]}-{levels[-1]}" if len(levels) > 1 else f"level {levels[0]}"
 
 
+def _sd(rms, n, parameters):
+    """Standard deviation of a fit with ``parameters`` parameters from its rms residual over ``n`` levels."""
+    return rms * math.sqrt(n / (n - parameters))
+
+
 def _decide(h, e, levels, formal, tol, at_least):
     """Status, kind, estimate, interval and reason from the fitted models of the levels given."""
+    from scipy import stats
+
     n = len(h)
     lo_band, hi_band = formal - tol, (math.inf if at_least else formal + tol)
     pf = power_fit(h, e)
@@ -143,7 +150,12 @@ def _decide(h, e, levels, formal, tol, at_least):
         p_max = max(8.0, 3.0 * formal)
         bends = tuple(bend_fit(h, e, q, p_max) for q in _NEXT_TERMS)
         best = min(bends, key=lambda b: b.rms)
-        if best.rms * _EXPLAINED < pf.rms:
+        # each fit is judged by its standard deviation, its residuals over its degrees of freedom (levels less
+        # fitted parameters; Eca and Hoekstra 2014), and the third parameter must pass the extra-sum-of-squares
+        # F-test (Draper and Smith 1998, Applied Regression Analysis, 3rd ed., sec. 6.1; from memory): with four
+        # levels it always cuts the residual of noise, and only a cut beyond chance shows a real bend
+        extra = (pf.rms ** 2 - best.rms ** 2) / (best.rms ** 2 / (n - 3)) if best.rms > 0 else math.inf
+        if _sd(best.rms, n, 3) * _EXPLAINED < _sd(pf.rms, n, 2) and extra > stats.f.ppf(CONFIDENCE, 1, n - 3):
             p, low, high, kind = best.p, best.low, best.high, "pre-asymptotic"
             note = f"a fit with the next term h^(p+{best.q:g}) over {_span(levels)}"
         else:
@@ -158,6 +170,12 @@ def _decide(h, e, levels, formal, tol, at_least):
         off_low, off_high = high < lo_band, low > hi_band
         if bends and kind == "pre-asymptotic":     # off only if no next term that fits as well brings it back
             rivals = [b for b in bends if b.rms <= _RIVAL * min(c.rms for c in bends)]
+            off_low = off_low and all(b.high < lo_band for b in rivals)
+            off_high = off_high and all(b.low > hi_band for b in rivals)
+        if bends and kind == "scattered":
+            # a next term the F-test cannot tell from noise, but that fits better than the line, is a model the
+            # levels allow as well: off only if it, too, puts the order outside
+            rivals = [b for b in bends if _sd(b.rms, n, 3) < _sd(pf.rms, n, 2)]
             off_low = off_low and all(b.high < lo_band for b in rivals)
             off_high = off_high and all(b.low > hi_band for b in rivals)
         if fine is not None and kind == "pre-asymptotic":   # nor the finest three levels on their own
@@ -186,10 +204,13 @@ def _decide(h, e, levels, formal, tol, at_least):
         if holds and narrow:
             return "confirmed", kind, p, interval, (f"{shown}; {rule}; scattered about the fit (rms {pf.rms:.2g} "
                                                     "in ln error), and the interval holds the formal order")
+        outside = interval is not None and (high < lo_band or low > hi_band)
         why = ("the interval is wider than a quarter of the formal order each side" if holds else
+               "the interval lies outside the tolerance, but a fit with the next term, which the levels allow as "
+               "well, does not" if outside else
                "the interval does not hold the formal order, nor lie outside the tolerance")
         return "inconclusive", kind, p, interval, (f"{shown}; {rule}; scattered about the fit (rms {pf.rms:.2g} "
-                                                   f"in ln error) and {why}; add levels to narrow it")
+                                                   f"in ln error) and {why}; add a finer level to narrow it")
     if kind == "pre-asymptotic":
         best = min(bends, key=lambda b: b.rms)
         in_range = 0        # finest levels where the next term moves the local order by less than the tolerance
