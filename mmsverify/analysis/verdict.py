@@ -18,11 +18,17 @@ verdict is decided from error models fitted over all levels that succeeded
    levels that bend away from that line, a model with the next term,
    ``e = C h**p + D h**(p+q)`` for ``q`` = 1 and 2, gives the asymptotic order;
    levels where the next term still moves the local order by more than the
-   tolerance are outside the asymptotic range (Roy 2005). Residuals that the
-   next term does not explain are *scattered* (noise around a trend).
+   tolerance are outside the asymptotic range (Roy 2005). Fits are compared
+   by their standard deviations over their degrees of freedom (Eca and
+   Hoekstra 2014), and the next term must pass the extra-sum-of-squares
+   F-test. Residuals that the next term does not explain are *scattered*
+   (noise around a trend).
 4. The order is off (``below``/``above``) only when the interval lies
    outside ``formal +- tolerance`` (and, for levels that bend, the intervals
-   of every next term that fits as well and of the finest three levels).
+   of every next term that fits as well and of the finest three levels; for
+   scattered levels, of every next term that fits better than the line).
+   Linf on grids the solver reports irregular is off only more than half an
+   order away (see ``_WORST_CELL``).
    It is confirmed when the estimate lies within it (for scattered levels:
    when the interval also holds the formal order and lies within a quarter
    of it), or when the levels follow ``C h**formal + D h**(formal+q)`` to
