@@ -70,7 +70,7 @@ class PerturbedPoisson:
         rng = np.random.default_rng([self.seed, g.level])
         x[1:-1] += self.amplitude * g.spacing[0] * rng.uniform(-1, 1, x.size - 2)
         u = _solve_nodes(case, x)
-        return Solution({case.problem.field_names[0]: u}, (x,), _trapezoid_weights(x))
+        return Solution({case.problem.field_names[0]: u}, (x,), _trapezoid_weights(x), info={"irregular": True})
 
 
 @dataclass(frozen=True)

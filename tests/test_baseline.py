@@ -2,6 +2,7 @@
 
 import dataclasses
 import json
+import re
 import shutil
 
 import numpy as np
@@ -40,7 +41,9 @@ def test_cli_check_passes_on_correct_solver_and_catches_seeded_mistake(tmp_path,
     out = capsys.readouterr().out
     assert out.startswith("REGRESSION  plate-poisson: solver poisson2d-neumann1 against the baseline recorded "
                           "with poisson2d")
-    assert "u L2: observed order 0.9" in out and "is below 1.9 (formal 2 - tolerance 0.1)" in out
+    # a first-order boundary difference makes the scheme first order: the observed order is 1 (common practice)
+    observed = re.search(r"u L2: observed order (-?[0-9.]+) is below 1\.9 \(formal 2 - tolerance 0\.1\)", out)
+    assert observed and abs(float(observed.group(1)) - 1.0) <= 0.1
     assert "record a new baseline" in out
 
 

@@ -18,11 +18,17 @@ verdict is decided from error models fitted over all levels that succeeded
    levels that bend away from that line, a model with the next term,
    ``e = C h**p + D h**(p+q)`` for ``q`` = 1 and 2, gives the asymptotic order;
    levels where the next term still moves the local order by more than the
-   tolerance are outside the asymptotic range (Roy 2005). Residuals that the
-   next term does not explain are *scattered* (noise around a trend).
+   tolerance are outside the asymptotic range (Roy 2005). Fits are compared
+   by their standard deviations over their degrees of freedom (Eca and
+   Hoekstra 2014), and the next term must pass the extra-sum-of-squares
+   F-test. Residuals that the next term does not explain are *scattered*
+   (noise around a trend).
 4. The order is off (``below``/``above``) only when the interval lies
    outside ``formal +- tolerance`` (and, for levels that bend, the intervals
-   of every next term that fits as well and of the finest three levels).
+   of every next term that fits as well and of the finest three levels; for
+   scattered levels, of every next term that fits better than the line).
+   Linf on grids the solver reports irregular is off only more than half an
+   order away (see ``_WORST_CELL``).
    It is confirmed when the estimate lies within it (for scattered levels:
    when the interval also holds the formal order and lies within a quarter
    of it), or when the levels follow ``C h**formal + D h**(formal+q)`` to
@@ -49,7 +55,7 @@ ROUNDOFF = 1e-11  # common practice: a few hundred ulps of double precision
 
 #: What the levels show, as :attr:`Verdict.kind` names it.
 KINDS = ("formal order", "another order", "scattered", "pre-asymptotic", "round-off floor", "frozen floor",
-         "too few levels", "exact")
+         "too few levels", "exact", "irregular grid")
 
 _SMOOTH = 0.02      # rms of ln e below which the levels lie on one power law  # common practice (2 % error noise)
 #: Exponents q of the next term h^(p+q) tried: 1 and 2, as in the Taylor series of a scheme  # common practice
@@ -113,8 +119,15 @@ def _span(levels):
     return f"levels {levels[0]}-{levels[-1]}" if len(levels) > 1 else f"level {levels[0]}"
 
 
+def _sd(rms, n, parameters):
+    """Standard deviation of a fit with ``parameters`` parameters from its rms residual over ``n`` levels."""
+    return rms * math.sqrt(n / (n - parameters))
+
+
 def _decide(h, e, levels, formal, tol, at_least):
     """Status, kind, estimate, interval and reason from the fitted models of the levels given."""
+    from scipy import stats
+
     n = len(h)
     lo_band, hi_band = formal - tol, (math.inf if at_least else formal + tol)
     pf = power_fit(h, e)
@@ -143,7 +156,12 @@ def _decide(h, e, levels, formal, tol, at_least):
         p_max = max(8.0, 3.0 * formal)
         bends = tuple(bend_fit(h, e, q, p_max) for q in _NEXT_TERMS)
         best = min(bends, key=lambda b: b.rms)
-        if best.rms * _EXPLAINED < pf.rms:
+        # each fit is judged by its standard deviation, its residuals over its degrees of freedom (levels less
+        # fitted parameters; Eca and Hoekstra 2014), and the third parameter must pass the extra-sum-of-squares
+        # F-test (Draper and Smith 1998, Applied Regression Analysis, 3rd ed., sec. 6.1; from memory): with four
+        # levels it always cuts the residual of noise, and only a cut beyond chance shows a real bend
+        extra = (pf.rms ** 2 - best.rms ** 2) / (best.rms ** 2 / (n - 3)) if best.rms > 0 else math.inf
+        if _sd(best.rms, n, 3) * _EXPLAINED < _sd(pf.rms, n, 2) and extra > stats.f.ppf(CONFIDENCE, 1, n - 3):
             p, low, high, kind = best.p, best.low, best.high, "pre-asymptotic"
             note = f"a fit with the next term h^(p+{best.q:g}) over {_span(levels)}"
         else:
@@ -158,6 +176,12 @@ def _decide(h, e, levels, formal, tol, at_least):
         off_low, off_high = high < lo_band, low > hi_band
         if bends and kind == "pre-asymptotic":     # off only if no next term that fits as well brings it back
             rivals = [b for b in bends if b.rms <= _RIVAL * min(c.rms for c in bends)]
+            off_low = off_low and all(b.high < lo_band for b in rivals)
+            off_high = off_high and all(b.low > hi_band for b in rivals)
+        if bends and kind == "scattered":
+            # a next term the F-test cannot tell from noise, but that fits better than the line, is a model the
+            # levels allow as well: off only if it, too, puts the order outside
+            rivals = [b for b in bends if _sd(b.rms, n, 3) < _sd(pf.rms, n, 2)]
             off_low = off_low and all(b.high < lo_band for b in rivals)
             off_high = off_high and all(b.low > hi_band for b in rivals)
         if fine is not None and kind == "pre-asymptotic":   # nor the finest three levels on their own
@@ -186,10 +210,13 @@ def _decide(h, e, levels, formal, tol, at_least):
         if holds and narrow:
             return "confirmed", kind, p, interval, (f"{shown}; {rule}; scattered about the fit (rms {pf.rms:.2g} "
                                                     "in ln error), and the interval holds the formal order")
+        outside = interval is not None and (high < lo_band or low > hi_band)
         why = ("the interval is wider than a quarter of the formal order each side" if holds else
+               "the interval lies outside the tolerance, but a fit with the next term, which the levels allow as "
+               "well, does not" if outside else
                "the interval does not hold the formal order, nor lie outside the tolerance")
         return "inconclusive", kind, p, interval, (f"{shown}; {rule}; scattered about the fit (rms {pf.rms:.2g} "
-                                                   f"in ln error) and {why}; add levels to narrow it")
+                                                   f"in ln error) and {why}; add a finer level to narrow it")
     if kind == "pre-asymptotic":
         best = min(bends, key=lambda b: b.rms)
         in_range = 0        # finest levels where the next term moves the local order by less than the tolerance
@@ -214,7 +241,17 @@ def _decide(h, e, levels, formal, tol, at_least):
         "cannot decide; add a finer level")
 
 
-def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, at_least=False, axis="h"):
+#: How far from the formal order the pointwise (Linf) order of grids that are irregular at every level (nodes
+#: moved at random) may wander on a few levels without showing a mistake. The maximum sits at the worst cell,
+#: and each level draws its cells afresh, so the worst distortion, and with it the factor in front of h^p,
+#: changes from level to level and grows with the number of cells toward the bound of the perturbation; the
+#: L1 and L2 norms average it out, the maximum does not. On random meshes Linf orders of 1.6 to 2.4 over four
+#: levels of correct second-order schemes are seen, settling at 2 on finer levels  # common practice
+_WORST_CELL = 0.5
+
+
+def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, at_least=False, axis="h",
+          irregular=False):
     """Judge one error sequence.
 
     Parameters
@@ -236,6 +273,12 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, 
     axis : str
         Name of the refined size in messages: ``"h"``, or ``"dt"`` in a
         temporal study.
+    irregular : bool
+        The solver reported its grids irregular (nodes moved at random,
+        ``Solution.info["irregular"]``). The pointwise norm ``Linf`` is
+        then judged off only when it lies more than half an order (or the
+        tolerance, if larger) from the formal order; nearer, it is
+        inconclusive (see :data:`_WORST_CELL`).
 
     Raises
     ------
@@ -254,6 +297,14 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, 
     h, e = np.asarray(h, dtype=float), np.asarray(errors, dtype=float)
 
     def verdict(status, reason, kind, observed=None, interval=None, left=()):
+        if irregular and norm == "Linf" and status in ("below", "above"):
+            margin = max(tolerance, _WORST_CELL)
+            lo, hi = interval if interval is not None else (observed, observed)
+            if not (hi < formal - margin or (lo > formal + margin and not at_least)):
+                status, kind = "inconclusive", "irregular grid"
+                reason += (f". But the grids are irregular, and the maximum error sits at the worst cell, drawn "
+                           f"afresh on each level: a pointwise order within {margin:g} of the formal order does "
+                           "not show a mistake there; judge the order by L1 or L2, or add finer levels")
         return Verdict(field, norm, formal, observed, tolerance, status, reason, kind, interval, bool(at_least),
                        tuple(left))
 

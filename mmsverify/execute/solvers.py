@@ -60,6 +60,9 @@ class Solution:
         Time of the values for transient problems (default: the end time).
     info : dict
         Anything the solver wants to report (iterations, residuals).
+        ``info["irregular"] = True`` says the grid is irregular at every
+        level (nodes moved at random): the verdict then allows the
+        pointwise norm Linf more spread (:func:`mmsverify.analysis.verdict.judge`).
     quantities : dict of str to float
         Functionals the solver computed (boundary fluxes, integrals, point
         values), compared with the problem's ``[quantities]``.

@@ -346,6 +346,11 @@ def _check_levels(results, mode, wheres):
     return results, tuple(warnings)
 
 
+def _irregular(levels):
+    """Whether the solver reported the grids of ``levels`` irregular (``Solution.info["irregular"] is True``)."""
+    return any(isinstance(r.info, dict) and r.info.get("irregular") is True for r in levels)
+
+
 def _verdicts(problem, results, formal, tol, judged, rules=(), mode="combined"):
     """One verdict per field and judged norm (``judged``: field -> norms, as :func:`judged_norms` gives),
     then one per reported quantity, each under its rule (``rules``: see :mod:`mmsverify.problem.rules`)."""
@@ -355,7 +360,7 @@ def _verdicts(problem, results, formal, tol, judged, rules=(), mode="combined"):
     def one(name, norm, ok, errors, scale):
         p, t, at_least = rule_for(rules, name, norm, formal, tol, axis)
         return judge(name, norm, [r.h for r in ok], errors, p, t, scale=scale, levels=[r.level for r in ok],
-                     at_least=at_least, axis=size)
+                     at_least=at_least, axis=size, irregular=_irregular(ok))
 
     verdicts = []
     for f in problem.field_names:
@@ -393,7 +398,7 @@ def rejudge(result):
             errors = [r.errors[v.field][v.norm] for r in ok]
             scale = max((r.scale.get(v.field, 1.0) for r in ok), default=1.0)
         fresh.append(judge(v.field, v.norm, [r.h for r in ok], errors, v.formal, v.tolerance, scale=scale,
-                           levels=[r.level for r in ok], at_least=v.at_least, axis=size))
+                           levels=[r.level for r in ok], at_least=v.at_least, axis=size, irregular=_irregular(ok)))
     return dataclasses.replace(result, verdicts=tuple(fresh))
 
 

@@ -108,7 +108,8 @@ class FVAdvection(DemoSolver):
         lu = spla.splu(U)
         u = lu.solve(rhs)
         if self.reconstruction == "first-order":
-            return Solution(values={field: u}, points=(xc, yc), weights=mesh.areas, info={"grid": self.grid})
+            return Solution(values={field: u}, points=(xc, yc), weights=mesh.areas,
+                            info={"grid": self.grid, "irregular": self.grid == "perturbed"})
         grad = least_squares_gradient(mesh, inflow, ub)
         reach = 0.5 if self.mistake == "reconstruction-half" else 1.0
         # face and cell displacement for the upwind reconstruction
@@ -135,7 +136,7 @@ class FVAdvection(DemoSolver):
             raise SolverError(f"{self.name}: defect correction did not converge in {self.max_iter} iterations "
                               f"(last change {change:.1e}); raise max_iter or use reconstruction='unlimited'")
         return Solution(values={field: u}, points=(xc, yc), weights=mesh.areas,
-                        info={"grid": self.grid, "iterations": it})
+                        info={"grid": self.grid, "iterations": it, "irregular": self.grid == "perturbed"})
 
     @staticmethod
     def _limiter(mesh, u, gx, gy, inflow, ub):

@@ -138,4 +138,4 @@ class FVDiffusion(DemoSolver):
         rhs = np.broadcast_to(mms.source(field, sx, sy), n) * area + D @ c0 + Db @ cb
         u = spla.spsolve(A.tocsc(), rhs)
         return Solution(values={field: u}, points=(xc, yc), weights=mesh.areas,
-                        info={"grid": self.grid, "flux": self.flux, "cells": n})
+                        info={"grid": self.grid, "flux": self.flux, "cells": n, "irregular": self.grid == "perturbed"})
