@@ -25,7 +25,7 @@ from mmsverify.errors import AnalysisError, GridError, MMSError, SolverError
 from mmsverify.execute.grids import Grid, check_refinement, refinement
 from mmsverify.execute.norms import NORMS, magnitude_norms
 from mmsverify.analysis.order import observed_orders
-from mmsverify.problem.record import get_problem
+from mmsverify.problem.derive import get_problem
 from mmsverify.execute.solvers import Case, check_solution, resolve_solver, solver_name
 from mmsverify.analysis.verdict import judge
 from mmsverify.problem.rules import check_rule, check_rules, parse_rules, rule_for
