@@ -258,7 +258,7 @@ class Manufactured:
 
     Examples
     --------
-    >>> from mmsverify.problem.record import problem_from_text
+    >>> from mmsverify.problem.derive import problem_from_text
     >>> m = derive(problem_from_text('[domain]\\nx = [0, 1]\\n[fields]\\nu = "x**3"'))
     >>> float(m.source("u", 0.5))       # -u'' = -6x
     -3.0
