@@ -69,8 +69,8 @@ def main(argv=None):
     n, repeats = (48, 1) if args.tiny else (args.n, args.repeats)
 
     problem = load_problem("compressible-2d")
-    expr = problem.equations["p"]
     mms = derive(problem)
+    expr = mms.equations["p"]
     xs = np.linspace(0.0, 1.0, n)
     X, Y = np.meshgrid(xs, xs, indexing="ij")
     xa, ya = xs[:, None], xs[None, :]

@@ -31,7 +31,7 @@ t_start = float(sys.argv[1])
 w0 = time.perf_counter()
 import mmsverify
 from mmsverify import derive as _d
-from mmsverify.problem import record as problem_mod
+from mmsverify.problem import derive as problem_mod
 from mmsverify.study import refinement as study_mod
 from mmsverify.problem import evaluate as _evaluate
 import mmsverify.cli as cli

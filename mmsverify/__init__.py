@@ -5,8 +5,8 @@ __version__ = "0.1.0"
 
 from mmsverify.errors import MMSError, ProblemError, ExpressionError, GridError, SolverError, AnalysisError
 from mmsverify.execute.grids import Grid, refinement
-from mmsverify.problem.record import Problem, load_problem, problem_from_text, bundled_problems
-from mmsverify.problem.derive import Manufactured, derive
+from mmsverify.problem.record import Problem, bundled_problems
+from mmsverify.problem.derive import Manufactured, derive, load_problem, problem_from_text
 from mmsverify.execute.solvers import Case, Solution
 from mmsverify.execute.norms import error_norms
 from mmsverify.analysis.order import observed_orders, fit_order, classify_convergence, asymptotic_check, eca_hoekstra

@@ -9,7 +9,7 @@ the verdict is judged against the order the solver claims.
 """
 
 from mmsverify import run_study
-from mmsverify.problem.record import get_problem
+from mmsverify.problem.derive import get_problem
 
 __all__ = ["verify", "problem_for"]
 

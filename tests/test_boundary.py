@@ -5,7 +5,7 @@ import pytest
 
 from mmsverify import ProblemError, run_study
 from mmsverify.problem.derive import derive
-from mmsverify.problem.record import problem_from_text
+from mmsverify.problem.derive import problem_from_text
 
 BASE = ('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "sin(1.3*x + 0.4) * cos(0.8*y) + 0.5*x*y"\n'
         '[operator]\nkind = "diffusion"\nk = 1.5\n')

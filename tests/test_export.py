@@ -12,9 +12,8 @@ import sympy as sp
 
 import mmsverify
 from mmsverify.cli import main
-from mmsverify.problem.derive import compile_expression, derive
+from mmsverify.problem.derive import compile_expression, derive, problem_from_text
 from mmsverify.outputs.export import ExportError, export_code, function_names, write_export
-from mmsverify.problem.record import problem_from_text
 
 # Round-off yardstick: double precision evaluation of the same formula in a
 # different order differs by a few ulps of the largest term.  # common practice

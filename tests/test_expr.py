@@ -401,7 +401,7 @@ def test_text_python_warns_about_gets_only_our_message(entry, says):
     # sequence"); a problem file's author should see the message naming the place, not the compiler's
     # warning ahead of it, also where warnings are errors.
     import warnings
-    from mmsverify.problem.record import problem_from_text
+    from mmsverify.problem.derive import problem_from_text
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         with pytest.raises(ProblemError, match=says):

@@ -6,7 +6,7 @@ import pytest
 from mmsverify import Solution, SolverError, run_study
 from mmsverify.problem.derive import derive
 from mmsverify.execute.gradnorms import gradient_errors, norm_rules
-from mmsverify.problem.record import problem_from_text
+from mmsverify.problem.derive import problem_from_text
 from mmsverify.study.settings import Refinement
 
 TEXT = '[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "x**3 * y + sin(y)"\n[operator]\nkind = "diffusion"\nk = 2.0\n'

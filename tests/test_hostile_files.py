@@ -286,7 +286,7 @@ def test_a_byte_order_mark_is_accepted_in_study_and_problem_files(bases, tmp_pat
     assert read_json(p).problem == "plate-poisson"
     toml = tmp_path / "rod.toml"
     toml.write_bytes(b"\xef\xbb\xbf" + (REPO / "mmsverify" / "problem" / "bundled" / "plate-poisson.toml").read_bytes())
-    from mmsverify.problem.record import load_problem
+    from mmsverify.problem.derive import load_problem
     assert load_problem(toml).content_hash() == load_problem("plate-poisson").content_hash()
 
 
@@ -304,7 +304,7 @@ paths = {"/dev/zero": "/dev/zero", "pipe": str(d / "pipe"), "socket": str(d / "s
 from mmsverify.cli import main
 from mmsverify.errors import MMSError
 from mmsverify.analysis.gridvalues import load_levels, load_profile
-from mmsverify.problem.record import load_problem
+from mmsverify.problem.derive import load_problem
 from mmsverify.execute.external import read_solution, read_case
 from mmsverify.outputs.studyfile import read_json
 out = {}
@@ -454,7 +454,7 @@ def test_duplicated_csv_columns_are_refused(tmp_path):
     from mmsverify.errors import AnalysisError
     from mmsverify.execute.external import ProgramFailed, read_solution
     from mmsverify.analysis.gridvalues import load_levels, load_profile
-    from mmsverify.problem.record import load_problem
+    from mmsverify.problem.derive import load_problem
     (tmp_path / "t.csv").write_text("dim = 2\ncells, lift, lift\n100, 1.0, 2.0\n400, 1.1, 2.1\n")
     with pytest.raises(AnalysisError, match=r"t.csv, line 2: column names repeat: lift"):
         load_levels(tmp_path / "t.csv")

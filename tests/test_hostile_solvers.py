@@ -359,7 +359,7 @@ def test_every_external_program_fault_is_recorded_against_its_level(tmp_path, ou
 
 
 def test_the_study_folder_holds_every_file_even_for_hostile_problem_names(tmp_path, monkeypatch):
-    from mmsverify.problem.record import problem_from_text
+    from mmsverify.problem.derive import problem_from_text
     text = (Path(__file__).resolve().parent.parent / "mmsverify" / "problem" / "bundled" / "plate-poisson.toml").read_text()
     text = text.replace('name = "plate-poisson"', 'name = "../../../escaped/../../x"')
     problem = problem_from_text(text, "hostile-name.toml")

@@ -7,7 +7,8 @@ import pytest
 from mmsverify import run_study
 from mmsverify.problem.origin import problem_of_record
 from mmsverify.errors import ProblemError
-from mmsverify.problem.record import PROBLEM_DIR, load_problem
+from mmsverify.problem.derive import load_problem
+from mmsverify.problem.record import PROBLEM_DIR
 from mmsverify.render.pointwise import finest_error
 from mmsverify.study.settings import Refinement
 

@@ -5,7 +5,7 @@ import pytest
 
 from mmsverify import GridError, ProblemError, Solution, run_study
 from mmsverify.cli import main
-from mmsverify.problem.record import problem_from_text
+from mmsverify.problem.derive import problem_from_text
 from mmsverify.execute.resolutions import listed_grids, parse_cells
 from mmsverify.study.settings import Refinement
 

@@ -222,7 +222,7 @@ def test_a_one_sided_study_does_not_guess_its_frozen_resolution(mode, option):
 
 def test_no_order_note_when_the_file_states_no_order():
     # a file without [order] holds defaults, not a claim the solver could contradict
-    from mmsverify.problem.record import load_problem, problem_from_text
+    from mmsverify.problem.derive import load_problem, problem_from_text
     text = load_problem("plate-poisson").source
     with open(text, encoding="utf-8") as fh:
         body = fh.read()

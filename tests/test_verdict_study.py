@@ -10,7 +10,8 @@ from mmsverify.cli import main
 from mmsverify.errors import AnalysisError, MMSError, ProblemError
 from mmsverify.execute.solvers import resolve_solver
 from mmsverify.outputs.studyfile import read_json, write_json
-from mmsverify.problem.record import PROBLEM_DIR, problem_from_text
+from mmsverify.problem.derive import problem_from_text
+from mmsverify.problem.record import PROBLEM_DIR
 from mmsverify.study.settings import Judging, Refinement
 
 PLATE = (PROBLEM_DIR / "plate-poisson.toml").read_text()

@@ -1,7 +1,8 @@
 """``mmsverify list``: bundled problems, solvers and operators."""
 
 from mmsverify.problem.operators import OPERATORS
-from mmsverify.problem.record import PROBLEM_DIR, bundled_problems, load_problem
+from mmsverify.problem.derive import load_problem
+from mmsverify.problem.record import PROBLEM_DIR, bundled_problems
 from mmsverify.execute.solvers import registered_solvers
 
 

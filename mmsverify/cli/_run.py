@@ -178,7 +178,7 @@ def _frozen_refused(args, problem, solver):
     the frozen resolution fixed by hand.
     """
     from mmsverify.errors import GridError
-    from mmsverify.problem.record import get_problem
+    from mmsverify.problem.derive import get_problem
     mode = getattr(args, "mode", "combined")
     option = {"time": "base_cells", "space": "base_steps"}.get(mode)
     if option is None or getattr(args, option) is not None or not get_problem(problem).transient:
@@ -242,7 +242,7 @@ def _run(args):
     if args.solver is not None and args.external:
         print("mmsverify run: give either a solver or --external, not both", file=sys.stderr)
         return 2
-    from mmsverify.problem.record import get_problem
+    from mmsverify.problem.derive import get_problem
     from mmsverify.cli.progress import progress_for
     quiet = getattr(args, "quiet", False)
     problem = get_problem(args.problem)  # read once: the design checks and the study share it
@@ -289,7 +289,7 @@ def print_design_warnings(args, problem=None):
     """Warn, ahead of the study, where the manufactured solution cannot catch mistakes (:mod:`mmsverify.design`)."""
     import warnings
     from mmsverify.design.checks import design_warnings
-    from mmsverify.problem.record import get_problem
+    from mmsverify.problem.derive import get_problem
     order = getattr(args, "formal_order", None)
     orders = {"time_order": order} if getattr(args, "mode", None) == "time" else {"formal_order": order}
     with warnings.catch_warnings():

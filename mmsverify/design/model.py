@@ -31,7 +31,7 @@ from sympy.core.function import AppliedUndef
 from mmsverify.errors import ProblemError
 from mmsverify.problem.expr import parse_expression, parse_quietly
 from mmsverify.problem.operators import derivative_functions, get_operator
-from mmsverify.problem.record import get_problem, problem_from_text
+from mmsverify.problem.derive import derive_equations, get_problem, problem_from_text
 
 __all__ = ["Model", "Term", "Bound", "IMPLIED_LOWER", "model_from_problem", "model_from_text",
            "split_sum", "sample_points", "compile_exprs", "diff"]
@@ -302,11 +302,12 @@ def _implied_bounds(operator, fields, parameters, taken):
 def model_from_problem(problem):
     """The model of a Problem (or path, or bundled name), constants as numbers."""
     p = get_problem(problem)
+    equations = derive_equations(p).equations
     base = {str(c): c for c in p.coords} | ({"t": p.t} if p.t is not None else {}) | _constant_syms(p.constants)
-    terms, atoms = _build_terms(p.operator, p.coords, p.t, p.fields, p.parameters, p.equation_text, p.equations,
+    terms, atoms = _build_terms(p.operator, p.coords, p.t, p.fields, p.parameters, p.equation_text, equations,
                                 base)
     generic, atoms = _with_generic(p.operator, p.coords, p.t, p.fields, p.parameters, p.equation_text,
-                                   p.equations, base, atoms)
+                                   equations, base, atoms)
     bounds = [Bound(k, e, lo, hi) for k, (e, lo, hi) in p.bounds.items()]
     bounds += _implied_bounds(p.operator, p.fields, p.parameters, p.bounds)
     return Model(p.name, p.coords, p.t, p.lower, p.upper, p.t_range, dict(p.fields), dict(p.parameters),
@@ -324,7 +325,7 @@ def model_from_text(text, source="<text>", keep=()):
 
     Constants named in ``keep`` are substituted by their values instead.
     The text is first read as usual, so every error of the file is reported
-    as :func:`~mmsverify.problem.record.problem_from_text` reports it.
+    as :func:`~mmsverify.problem.derive.problem_from_text` reports it.
     """
     p = problem_from_text(text, source)
     data = tomllib.loads(text)
@@ -339,8 +340,9 @@ def model_from_text(text, source="<text>", keep=()):
     if kind != "custom":
         op_tab = {k: op_tab.get(k, d) for k, d in get_operator(kind).parameters.items()}
     parameters = {k: _value(v, {**base, **fields}, f"{source}, [operator] {k}") for k, v in op_tab.items()}
-    terms, atoms = _build_terms(kind, p.coords, p.t, fields, parameters, p.equation_text, p.equations, base)
-    generic, atoms = _with_generic(kind, p.coords, p.t, fields, parameters, p.equation_text, p.equations, base,
+    equations = derive_equations(p).equations
+    terms, atoms = _build_terms(kind, p.coords, p.t, fields, parameters, p.equation_text, equations, base)
+    generic, atoms = _with_generic(kind, p.coords, p.t, fields, parameters, p.equation_text, equations, base,
                                    atoms)
     bounds = []
     names = {**base, **fields, **parameters}

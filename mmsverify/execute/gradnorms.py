@@ -108,7 +108,7 @@ def norm_rules(solver, problem, who):
 
     >>> class P1:
     ...     norm_orders = {"L2": 2, "H1semi": 1}
-    >>> from mmsverify.problem.record import problem_from_text
+    >>> from mmsverify.problem.derive import problem_from_text
     >>> p = problem_from_text('[domain]\\nx = [0, 1]\\n[fields]\\nu = "x**3"')
     >>> norm_rules(P1(), p, "P1")
     {'L2': {'space': 2.0}, 'H1semi': {'space': 1.0}}

@@ -65,7 +65,7 @@ def listed_grids(problem, cells, *, t_range=None, steps=None, where="cells"):
 
     ``steps`` (one per level) is needed for transient problems.
 
-    >>> from mmsverify.problem.record import problem_from_text
+    >>> from mmsverify.problem.derive import problem_from_text
     >>> p = problem_from_text('[domain]\\nx = [0, 1]\\ny = [0, 1]\\n[fields]\\nu = "x*y"')
     >>> [g.describe() for g in listed_grids(p, [6, 10, 17])]
     ['6x6 cells', '10x10 cells', '17x17 cells']

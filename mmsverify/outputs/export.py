@@ -24,7 +24,7 @@ functions of the same names.
 
 Examples
 --------
->>> from mmsverify.problem.record import problem_from_text
+>>> from mmsverify.problem.derive import problem_from_text
 >>> p = problem_from_text('[domain]\\nx = [0, 1]\\n[fields]\\nu = "x**3"', "cube")
 >>> print(export_code(p, "c").split("static inline double mms_source_u")[1].splitlines()[2])
     return -6*x;
@@ -43,9 +43,9 @@ from sympy.printing.c import C99CodePrinter
 from sympy.printing.fortran import FCodePrinter
 from sympy.printing.numpy import SciPyPrinter
 
-from mmsverify.problem.derive import derive
+from mmsverify.problem.derive import derive, get_problem
 from mmsverify.errors import MMSError
-from mmsverify.problem.record import SIDES, get_problem
+from mmsverify.problem.record import SIDES
 
 __all__ = ["LANGUAGES", "SUFFIXES", "ExportError", "export_code", "write_export", "function_names"]
 

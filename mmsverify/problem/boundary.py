@@ -54,7 +54,7 @@ def normal_flux_at(mms, name, points, normals, t=None):
     Examples
     --------
     >>> from mmsverify.problem.derive import derive
-    >>> from mmsverify.problem.record import problem_from_text
+    >>> from mmsverify.problem.derive import problem_from_text
     >>> m = derive(problem_from_text('[domain]\\nx = [-1, 1]\\ny = [-1, 1]\\n[fields]\\nu = "x**2 + y**2"'))
     >>> s = np.sqrt(0.5)
     >>> round(float(normal_flux_at(m, "u", (s, s), (s, s))), 12)    # d/dr of r**2 at r = 1
@@ -62,7 +62,7 @@ def normal_flux_at(mms, name, points, normals, t=None):
     """
     p = mms.problem
     n = _normals(points, normals, p.dim, f"{p.name}: normal flux of {name!r}")
-    parts = mms.flux(name, *points, t=t) if name in p.names("fluxes") else mms.gradient(name, *points, t=t)
+    parts = mms.flux(name, *points, t=t) if name in mms.fluxes else mms.gradient(name, *points, t=t)
     total = None
     for c, nc in zip(parts, n):
         term = np.multiply(c, nc)

@@ -37,7 +37,7 @@ from mmsverify.errors import ExpressionError
 __all__ = [
     "ALLOWED_FUNCTIONS", "ExpressionError", "MAX_DECIMAL_EXPONENT",
     "MAX_DEPTH", "MAX_EXPONENT", "MAX_INTEGER", "MAX_NODES", "MAX_NUMBER_BITS",
-    "MAX_TEXT_LENGTH", "parse_expression", "canonical_form",
+    "MAX_TEXT_LENGTH", "parse_expression", "canonical_form", "check_real",
 ]
 
 MAX_TEXT_LENGTH = 10_000
@@ -161,16 +161,26 @@ def parse_expression(text: str, names: Mapping[str, sympy.Basic], *,
         raise ExpressionError(f"{where}: expression is too complex to build") from None
     if not isinstance(result, sympy.Expr):
         raise ExpressionError(f"{where}: result is a {type(result).__name__}, not an expression")
-    if result.has(*_BAD):
+    return check_real(result, where)
+
+
+def check_real(expr, where):
+    """``expr`` itself, refused when it holds an infinite, undefined or non-real constant.
+
+    The evaluators compute in real floating point. :func:`parse_expression`
+    checks every expression it builds; the derivation checks what
+    differentiation makes of the equations a problem file writes itself.
+    """
+    if expr.has(*_BAD):
         raise ExpressionError(f"{where}: expression evaluates to an infinite or undefined "
-                              f"value ({str(result)[:80]}); check for division by zero")
-    complex_part = sympy.I if result.has(sympy.I) else next(
-        (a for a in result.atoms(sympy.Function, sympy.Pow) if a.is_number and a.is_real is False), None)
+                              f"value ({str(expr)[:80]}); check for division by zero")
+    complex_part = sympy.I if expr.has(sympy.I) else next(
+        (a for a in expr.atoms(sympy.Function, sympy.Pow) if a.is_number and a.is_real is False), None)
     if complex_part is not None:
         raise ExpressionError(f"{where}: expression has the value {str(complex_part)[:60]}, which is not a "
                               "real number (check square roots, logarithms and inverse functions of "
                               "constants); fields and coefficients must be real")
-    return result
+    return expr
 
 
 def parse_quietly(body):

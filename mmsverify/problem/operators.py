@@ -47,7 +47,8 @@ import sympy as sp
 
 from mmsverify.errors import ProblemError
 
-__all__ = ["derivation_budget", "DerivativeTooLarge", "MAX_DERIVATIVE_WORK", "MAX_DERIVATIVE_NODES", "Operator", "OPERATORS", "get_operator", "derivative_functions"]
+__all__ = ["derivation_budget", "DerivativeTooLarge", "MAX_DERIVATIVE_WORK", "MAX_DERIVATIVE_NODES", "Operator",
+           "OPERATORS", "get_operator", "derivative_functions", "differentiate", "count_nodes"]
 
 
 @dataclass(frozen=True)
@@ -134,7 +135,8 @@ def derivation_budget():
         _Work.left = None
 
 
-def _nodes(expr, limit):
+def count_nodes(expr, limit):
+    """Number of nodes of the expression tree, counting stops past ``limit``."""
     n = 0
     for n, _ in enumerate(sp.preorder_traversal(expr), 1):
         if n > limit:
@@ -167,8 +169,12 @@ def _derivative_size(e, var, memo, sizes):
     return n
 
 
-def _d(expr, *spec):
-    """A derivative, one order at a time, each result counted against the derivation's budget."""
+def differentiate(expr, *spec):
+    """A derivative, one order at a time, each result counted against the derivation's budget.
+
+    ``spec`` as for :func:`sympy.diff`: variables, each optionally followed
+    by its order (``x, 2, y``).
+    """
     steps = []
     for s in spec:
         if isinstance(s, int) and steps:
@@ -179,7 +185,7 @@ def _d(expr, *spec):
         if _derivative_size(expr, var, {}, {}) > MAX_DERIVATIVE_NODES:   # sympy would take long to find out
             raise DerivativeTooLarge(f"a derivative would have more than {MAX_DERIVATIVE_NODES} terms and factors")
         expr = sp.diff(expr, var)
-        n = _nodes(expr, MAX_DERIVATIVE_NODES)
+        n = count_nodes(expr, MAX_DERIVATIVE_NODES)
         if n > MAX_DERIVATIVE_NODES:
             raise DerivativeTooLarge(f"a derivative has more than {MAX_DERIVATIVE_NODES} terms and factors")
         if _Work.left is not None:
@@ -188,6 +194,9 @@ def _d(expr, *spec):
                 raise DerivativeTooLarge(f"the derivatives together have more than {MAX_DERIVATIVE_WORK} terms "
                                          "and factors")
     return expr
+
+
+_d = differentiate      # the short name keeps the formulas below readable
 
 
 def _sum(terms):
@@ -401,11 +410,14 @@ def get_operator(name):
                            f"{', '.join(sorted(OPERATORS))}, or 'custom' with an [operator.equations] table") from None
 
 
-def derivative_functions(X, t):
+def derivative_functions(X, t, evaluate=True):
     """Functions ``d`` and ``lap`` for user-written operators.
 
     ``d(expr, x)``, ``d(expr, x, 2)`` (second derivative), ``d(expr, x, y)``
     (mixed) and ``lap(expr)`` (Laplacian in the problem's space coordinates).
+    With ``evaluate=False`` they check their arguments and return unevaluated
+    :class:`sympy.Derivative` objects, which the reader of problem files
+    keeps for :mod:`mmsverify.problem.derive` to differentiate.
     """
     variables = set(X) | ({t} if t is not None else set())
 
@@ -423,11 +435,15 @@ def derivative_functions(X, t):
             else:
                 names = ", ".join(sorted(str(v) for v in variables))
                 raise ProblemError(f"d(...) differentiates with respect to a coordinate ({names}), got {s}")
+        if not evaluate:
+            return sp.Derivative(expr, *args, evaluate=False)
         for var, n in args:
             expr = _d(expr, var, n)
         return expr
 
     def lap(expr):
+        if not evaluate:
+            return sp.Add(*[sp.Derivative(expr, (xi, 2), evaluate=False) for xi in X])
         return sp.Add(*[_d(expr, xi, 2) for xi in X])
 
     return {"d": d, "lap": lap}

@@ -12,7 +12,7 @@ differs.
 from pathlib import Path
 
 from mmsverify.errors import ProblemError
-from mmsverify.problem.record import get_problem
+from mmsverify.problem.derive import get_problem
 
 __all__ = ["problem_of_record"]
 

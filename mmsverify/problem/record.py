@@ -1,5 +1,13 @@
 """Manufactured problems: the record, the file format, the bundled set.
 
+This module reads problem text into a :class:`Problem`, the parsed input,
+and differentiates nothing: the source terms, fluxes and exact values of
+functionals are made from a Problem by :mod:`mmsverify.problem.derive`,
+which also holds the functions that load a problem file
+(:func:`~mmsverify.problem.derive.load_problem`,
+:func:`~mmsverify.problem.derive.problem_from_text`) and refuse a file
+whose derivation fails at load time.
+
 A problem file is TOML (read with the standard library). Expressions are
 strings read by the safe parser in :mod:`mmsverify.problem.expr`; nothing in a file
 is ever executed. The format, with every table but ``[fields]`` optional::
@@ -59,9 +67,8 @@ Limits (each a :class:`~mmsverify.errors.ProblemError` naming the file and
 the place, never a hang): files of at most ``MAX_FILE_CHARS`` characters,
 keys of at most ``MAX_KEY_PARTS`` dotted parts and tables of at most
 ``MAX_TABLE_ENTRIES`` entries; the limits of the expression parser
-(:mod:`mmsverify.problem.expr`); at most
-``MAX_EQUATION_NODES`` nodes in the expression tree of each derived source
-term or flux. All of them are counts, so the same file gets the same answer
+(:mod:`mmsverify.problem.expr`); and the limits on the size of the
+derived terms (:mod:`mmsverify.problem.derive`). All of them are counts, so the same file gets the same answer
 on every machine. Numbers are finite; orders are whole numbers from 1 to
 ``MAX_ORDER``.
 """
@@ -82,12 +89,10 @@ from mmsverify import fileio
 from mmsverify.errors import ProblemError, MMSError
 from mmsverify.problem.boundary import robin_coefficients
 from mmsverify.problem.expr import canonical_form, parse_expression
-from mmsverify.problem.operators import (OPERATORS, DerivativeTooLarge, derivation_budget, derivative_functions,
-                                         get_operator)
+from mmsverify.problem.operators import derivative_functions, get_operator
 
-__all__ = ["Problem", "load_problem", "problem_from_text", "bundled_problems", "get_problem",
-           "SIDES", "PROBLEM_DIR", "MAX_FILE_CHARS", "MAX_KEY_PARTS", "MAX_TABLE_ENTRIES", "MAX_EQUATION_NODES",
-           "MAX_ORDER"]
+__all__ = ["Problem", "parse_problem", "read_problem_text", "place", "bundled_problems", "SIDES",
+           "PROBLEM_DIR", "MAX_FILE_CHARS", "MAX_KEY_PARTS", "MAX_TABLE_ENTRIES", "MAX_ORDER"]
 
 #: The bundled problem files, shipped as package data.
 PROBLEM_DIR = Path(str(importlib.resources.files("mmsverify.problem") / "bundled"))
@@ -96,9 +101,6 @@ SIDES = ("x_min", "x_max", "y_min", "y_max", "z_min", "z_max")
 _KINDS = ("dirichlet", "neumann", "robin", "periodic")   # see mmsverify.problem.boundary
 #: Longest problem file read (characters); real ones are a few thousand.
 MAX_FILE_CHARS = 1_000_000
-#: Largest expression tree (nodes) of one derived source term or flux;
-#: the 3-D compressible Navier-Stokes energy equation has about 8 000.
-MAX_EQUATION_NODES = 100_000
 #: Most dotted parts of one key or table name (``[operator.equations]`` has two).
 MAX_KEY_PARTS = 16
 #: Most entries in one table ([constants], [fields], [quantities], ...).
@@ -113,7 +115,11 @@ _TOP_KEYS = {"name", "description", "domain", "constants", "fields", "operator",
 
 @dataclass(frozen=True)
 class Problem:
-    """A manufactured problem, ready for derivation.
+    """A manufactured problem as read from its file, ready for derivation.
+
+    A plain record of the parsed input: nothing in it is differentiated.
+    The source terms and fluxes come from
+    :func:`mmsverify.problem.derive.derive_equations`.
 
     Attributes
     ----------
@@ -132,10 +138,6 @@ class Problem:
         Operator name, or ``"custom"``.
     parameters : dict of str to sympy.Expr
         Operator parameters, with fields substituted by their exact values.
-    equations : dict of str to sympy.Expr
-        Residual ``L(q_exact)`` of each equation (the source terms).
-    fluxes : dict of str to list of sympy.Expr
-        Flux vector per field for Neumann data (may be empty).
     boundaries : dict of (field, side) to str
         ``"dirichlet"``, ``"neumann"``, ``"robin"`` or ``"periodic"``.
     robin : dict of side to float
@@ -144,9 +146,10 @@ class Problem:
     tolerance : float
     study : dict
     quantities : dict of str to tuple
-        Functionals with exact values, each ``(kind, expr, where, text)``:
-        ``("integral", expr, None, text)``, ``("flux", expr, side, field)``
-        (expr is the outward normal flux on that side) or
+        Functionals, each ``(kind, expr, where, text)``:
+        ``("integral", expr, None, text)``, ``("flux", None, side, field)``
+        (the outward normal flux on that side is derived, see
+        :class:`mmsverify.problem.derive.Derivation`) or
         ``("point", expr, (x, ...), text)``; ``text`` is what the file says.
     source : str
         Where it came from (file path or ``"<python>"``).
@@ -156,6 +159,10 @@ class Problem:
     equation_text : dict of str to str
         The equations of a custom operator as written in the file (empty for
         built-in operators), so their top-level terms can be examined.
+    operator_equations : dict of str to sympy.Expr
+        The equations of a custom operator as parsed, fields and parameters
+        substituted, with every ``d(...)`` and ``lap(...)`` held as an
+        unevaluated :class:`sympy.Derivative` (empty for built-in operators).
     order_rules : tuple of (str, OrderRule)
         The ``[order.by]`` rules of single fields, norms and quantities
         (see :mod:`mmsverify.problem.rules`).
@@ -178,8 +185,6 @@ class Problem:
     fields: dict
     operator: str
     parameters: dict
-    equations: dict
-    fluxes: dict
     boundaries: dict
     space_order: int = 2
     time_order: int = None
@@ -189,6 +194,7 @@ class Problem:
     quantities: dict = field(default_factory=dict)
     bounds: dict = field(default_factory=dict)
     equation_text: dict = field(default_factory=dict)
+    operator_equations: dict = field(default_factory=dict)
     order_given: tuple = None
     robin: dict = field(default_factory=dict)
     order_rules: tuple = ()
@@ -222,7 +228,7 @@ class Problem:
         return tuple(self.fields)
 
     def names(self, table):
-        """Keys of one table (``"fields"``, ``"equations"``, ``"parameters"``, ``"quantities"``, ...)."""
+        """Keys of one table (``"fields"``, ``"parameters"``, ``"quantities"``, ...)."""
         return tuple(getattr(self, table))
 
     def quantity_info(self, name):
@@ -258,11 +264,21 @@ class Problem:
         """
         if not self.digest:
             raise ValueError(f"{self.name}: a Problem made without a reader has no content hash; read it with "
-                             "problem_from_text or load_problem")
+                             "problem_from_text, load_problem or parse_problem")
         return self.digest
 
     def boundary_kind(self, field_name, side):
         return self.boundaries[(field_name, side)]
+
+
+def place(text, source, section, key=None):
+    """Where an entry of a problem file is: ``"file, line 7, [operator] kind"``.
+
+    The line is left out when the text does not spell the key (a default).
+    """
+    line = _line_of(text, section, key) if key else None
+    loc = f"{source}" + (f", line {line}" if line else "")
+    return f"{loc}, [{section}]" + (f" {key}" if key else "")
 
 
 def _line_of(text, section, key):
@@ -285,9 +301,7 @@ class _Reader:
         self.data, self.text, self.source = data, text, source
 
     def where(self, section, key=None):
-        line = _line_of(self.text, section, key) if key else None
-        loc = f"{self.source}" + (f", line {line}" if line else "")
-        return f"{loc}, [{section}]" + (f" {key}" if key else "")
+        return place(self.text, self.source, section, key)
 
     def fail(self, section, key, message):
         raise ProblemError(f"{self.where(section, key)}: {message}")
@@ -398,7 +412,7 @@ class _Reader:
         if not isinstance(kind, str):
             self.fail("operator", "kind", f"expected an operator name in quotes, got {kind!r:.60}")
         with_fields = {**names, **fields}
-        equations, fluxes, parameters = {}, {}, {}
+        equations, parameters = {}, {}
         if kind == "custom":
             eqs = op_tab.pop("equations", None)
             if isinstance(eqs, dict) and len(eqs) > MAX_TABLE_ENTRIES:
@@ -410,12 +424,11 @@ class _Reader:
             _check_reserved_names(self, "operator", op_tab)
             for k, v in op_tab.items():
                 parameters[k] = self.expression("operator", k, v, with_fields)
-            fns = derivative_functions(coords, t)
+            fns = derivative_functions(coords, t, evaluate=False)   # differentiated by mmsverify.problem.derive
             for k, v in eqs.items():
                 if k not in fields:
                     self.fail("operator.equations", k, f"names no field; fields are {', '.join(fields)}")
-                with derivation_budget():
-                    equations[k] = self.expression("operator.equations", k, v, {**with_fields, **parameters}, fns)
+                equations[k] = self.expression("operator.equations", k, v, {**with_fields, **parameters}, fns)
             missing = set(fields) - set(equations)
             if missing:
                 raise ProblemError(f"{self.where('operator.equations')}: no equation for field(s) "
@@ -439,23 +452,6 @@ class _Reader:
                           f"not a parameter of {kind}; its parameters are {', '.join(op.parameters)}")
             for k, default in op.parameters.items():
                 parameters[k] = self.expression("operator", k, op_tab.get(k, default), with_fields)
-            try:
-                with derivation_budget():
-                    equations = op.residuals(fields, coords, t, parameters)
-                    fluxes = op.fluxes(fields, coords, parameters)
-            except DerivativeTooLarge as exc:
-                self.fail("operator", "kind", f"{exc} while deriving the source terms; use fewer or simpler terms in "
-                                              "the fields (each factor of a product multiplies the size of every "
-                                              "derivative)")
-        for k, e in equations.items():
-            self.check_size("operator.equations" if kind == "custom" else "operator", k if kind == "custom"
-                            else "kind", e, f"the source term of equation {k!r}")
-            _check_differentiable(self, "fields", k if k in fields else next(iter(fields)), e,
-                                  f"the source term of equation {k!r}")
-        for k, vec in fluxes.items():
-            for c, e in zip(coords, vec):
-                self.check_size("operator", "kind", e, f"the {c}-flux of field {k!r}")
-                _check_differentiable(self, "fields", k, e, f"the {c}-flux of field {k!r}")
 
         boundaries = self._boundaries(fields, axes)
         order = self.table("order")
@@ -468,7 +464,7 @@ class _Reader:
                                "tolerance positive")
         order_rules = self._order_rules(order, space_order, time_order, tolerance)
         study = self._study(len(axes))
-        quantities = self._quantities(with_fields, fields, fluxes, coords, box, axes)
+        quantities = self._quantities(with_fields, fields, coords, box, axes)
         bounds = self._bounds({**with_fields, **parameters}, fields, parameters)
         equation_text = {k: str(v) for k, v in eqs.items()} if kind == "custom" else {}
         given = {k: v for k, v in op_tab.items() if k != "equations"}
@@ -479,7 +475,7 @@ class _Reader:
                        description=description, coords=coords, t=t,
                        lower=tuple(box[a][0] for a in axes), upper=tuple(box[a][1] for a in axes),
                        t_range=box.get("t"), constants=constants, fields=fields, operator=kind,
-                       parameters=parameters, equations=equations, fluxes=fluxes, boundaries=boundaries,
+                       parameters=parameters, operator_equations=equations, boundaries=boundaries,
                        space_order=space_order, time_order=time_order, tolerance=tolerance, study=study,
                        source=self.source, order_given=tuple(a for a in ("space", "time") if a in order),
                        order_rules=order_rules, robin=self.robin)
@@ -501,14 +497,6 @@ class _Reader:
         except AnalysisError as exc:
             raise ProblemError(str(exc)) from None
         return rules
-
-
-    def check_size(self, section, key, expr, what):
-        """Refuse a derived expression whose tree has more than MAX_EQUATION_NODES nodes."""
-        if _nodes(expr, MAX_EQUATION_NODES) > MAX_EQUATION_NODES:
-            self.fail(section, key, f"{what} has more than {MAX_EQUATION_NODES} terms and factors after "
-                                    "differentiation; use fewer or simpler terms in the fields (each factor "
-                                    "of a product multiplies the size of every derivative)")
 
     def _study(self, dim):
         """The [study] table: levels, base_cells, ratio and base_steps, checked."""
@@ -563,7 +551,7 @@ class _Reader:
             out[key] = (expr, lo, hi)
         return out
 
-    def _quantities(self, names, fields, fluxes, coords, box, axes):
+    def _quantities(self, names, fields, coords, box, axes):
         out = {}
         sides = [s for s in SIDES if s[0] in axes]
         for name, spec in self.table("quantities").items():
@@ -582,10 +570,7 @@ class _Reader:
                     self.fail("quantities", name, f"flux needs a field name; fields are {', '.join(fields)}")
                 if side not in sides:
                     self.fail("quantities", name, f"flux needs side = one of {', '.join(sides)}")
-                axis, sign = SPACE.index(side[0]), (1 if side.endswith("max") else -1)
-                vec = fluxes.get(f) or [fields[f].diff(c) for c in coords]
-                out[name] = ("flux", (sign * vec[axis]).subs(coords[axis], box[side[0]][side.endswith("max")]),
-                             side, f)
+                out[name] = ("flux", None, side, f)   # the outward normal flux is derived
             else:
                 at = spec.get("at")
                 if not (isinstance(at, list) and len(at) == len(coords)):
@@ -631,30 +616,18 @@ def _check_reserved_names(reader, section, names):
                                     "another name")
 
 
-def _check_differentiable(reader, section, key, expr, what):
-    """Refuse a derived term holding a derivative that does not exist everywhere (``abs`` twice differentiated
-    gives a Dirac delta): nothing could evaluate it, and a solution with a kink converges at no design order."""
-    stack, seen = [expr], 0
-    while stack and seen <= MAX_EQUATION_NODES:
-        e = stack.pop()
-        seen += 1
-        name = type(e).__name__
-        if name in _NOT_DIFFERENTIABLE:
-            reader.fail(section, key, f"{what} needs a derivative that does not exist everywhere ({name} "
-                                      "appears): abs, min, max and sign have kinks or jumps; manufactured fields "
-                                      "must be smooth in the box, e.g. sqrt((x - 0.5)**2 + 0.01) rather "
-                                      "than abs(x - 0.5)")
-        stack.extend(e.args)
 
+def parse_problem(text, source="<text>"):
+    """Read a problem from TOML text, without deriving it; ``source`` names it in error messages.
 
-def problem_from_text(text, source="<text>"):
-    """Read a problem from TOML text; ``source`` names it in error messages.
+    :func:`mmsverify.problem.derive.problem_from_text` reads and derives,
+    so that a file whose derivation fails is refused at once.
 
     Raises
     ------
     ProblemError
-        For anything that is not a valid problem, including files beyond the
-        limits of size and time (see the module documentation).
+        For anything that is not a valid problem text, including files
+        beyond the limits of size (see the module documentation).
     """
     if not isinstance(text, str):
         raise ProblemError(f"{source}: expected the text of a TOML file, got {type(text).__name__}")
@@ -674,20 +647,11 @@ def problem_from_text(text, source="<text>"):
     try:
         return _Reader(data, text, source).read()
     except RecursionError:
-        raise ProblemError(f"{source}: an expression is nested too deeply to differentiate") from None
+        raise ProblemError(f"{source}: an expression is nested too deeply to read") from None
 
 
 def _number(value):
     return sp.nsimplify(value) if isinstance(value, int) else sp.Float(value)
-
-
-def _nodes(expr, limit):
-    """Number of nodes of the expression tree, counting stops past ``limit``."""
-    n = 0
-    for n, _ in enumerate(sp.preorder_traversal(expr), 1):
-        if n > limit:
-            break
-    return n
 
 
 def _digest(data, kind, parameters, boundaries):
@@ -720,8 +684,11 @@ def _digest(data, kind, parameters, boundaries):
     return hashlib.sha256(json.dumps(canonical, sort_keys=True, separators=(",", ":")).encode()).hexdigest()
 
 
-def load_problem(path):
-    """Read a problem file (or a bundled problem's name, see :func:`bundled_problems`)."""
+def read_problem_text(path):
+    """The text of a problem file (or of a bundled problem, by name) and the path naming it in messages.
+
+    Returns ``(text, source)``; :func:`parse_problem` reads the text.
+    """
     p = Path(path)
     if not p.exists() and not p.suffix:
         candidate = PROBLEM_DIR / f"{path}.toml"
@@ -730,7 +697,7 @@ def load_problem(path):
         else:
             raise ProblemError(f"no problem file {str(path)!r} and no bundled problem of that name; "
                                f"bundled problems: {', '.join(bundled_problems())}")
-    return problem_from_text(_read_problem_file(p), str(p))
+    return _read_problem_file(p), str(p)
 
 
 def _read_problem_file(p):
@@ -743,10 +710,6 @@ def _read_problem_file(p):
 
 
 def bundled_problems():
-    """Names of the problem files shipped in ``problems/``."""
+    """Names of the bundled problem files (in :data:`PROBLEM_DIR`)."""
     return sorted(p.stem for p in PROBLEM_DIR.glob("*.toml"))
 
-
-def get_problem(problem):
-    """Accept a :class:`Problem`, a path or a bundled name; return a Problem."""
-    return problem if isinstance(problem, Problem) else load_problem(problem)

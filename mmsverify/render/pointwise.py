@@ -12,9 +12,8 @@ import logging
 import numpy as np
 
 from mmsverify.problem.origin import problem_of_record
-from mmsverify.problem.derive import derive
+from mmsverify.problem.derive import derive, get_problem
 from mmsverify.errors import MMSError, SolverError
-from mmsverify.problem.record import get_problem
 from mmsverify.execute.solvers import Case, check_solution, resolve_solver
 
 __all__ = ["PointwiseError", "pointwise_error", "finest_error"]

@@ -28,7 +28,7 @@ from mmsverify.execute.grids import Grid, check_refinement, refinement
 from mmsverify.execute.norms import NORMS, magnitude_norms
 from mmsverify.execute.resolutions import level_info, planned_list
 from mmsverify.analysis.order import observed_orders
-from mmsverify.problem.record import get_problem
+from mmsverify.problem.derive import get_problem
 from mmsverify.execute.level import LevelResult, run_level
 from mmsverify.study.settings import MODES, Judging, Refinement, Running
 from mmsverify.execute.solvers import Case, check_solution, plain_info, resolve_solver, solver_name

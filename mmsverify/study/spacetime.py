@@ -35,7 +35,7 @@ import math
 from dataclasses import dataclass, replace
 
 from mmsverify.errors import GridError
-from mmsverify.problem.record import get_problem
+from mmsverify.problem.derive import get_problem
 from mmsverify.execute.solvers import resolve_solver, solver_name
 from mmsverify.study.settings import Refinement, Running
 from mmsverify.study.refinement import design_orders, run_study
