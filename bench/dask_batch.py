@@ -1,6 +1,6 @@
 """Issue 19: a batch of independent studies on a Dask LocalCluster of 2 workers against 1 (target >= 1.6x).
 
-The batch is ``parallel_batch.JOBS`` through ``mmsverify.execute.runner.run_studies(jobs,
+The batch is ``parallel_batch.JOBS`` through ``mmsverify.study.batch.run_studies(jobs,
 executor=client)``; each cluster (one worker process of one thread, or two)
 is started before its rounds and its start is not timed. Rounds alternate
 (one worker, two, one, two, ...) and the fastest of each is kept. The
@@ -30,7 +30,7 @@ def main(argv=None):
     ap.add_argument("--tiny", action="store_true", help="smoke run: two small studies, one round")
     args = ap.parse_args(argv)
     import distributed
-    from mmsverify.execute.runner import run_studies
+    from mmsverify.study.batch import run_studies
     jobs = study_jobs(TINY_JOBS if args.tiny else JOBS)
     repeats = 1 if args.tiny else args.repeats
     run_studies(jobs[:1])  # fill the derivation cache, so that no round pays for derivations
