@@ -13,17 +13,10 @@ the expected outcome. Exit code 0 when every entry behaved as expected,
 
 import json
 import sys
-from pathlib import Path
 
 from mmsverify.cli import EXIT_FAIL, EXIT_OK
+from mmsverify.fileio import write_atomic
 
-
-def _write(path, text):
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(text, encoding="utf-8")
-    tmp.replace(path)
 
 
 def _mistakes(args):
@@ -44,10 +37,10 @@ def _mistakes(args):
     report = run_catalogue(keys=args.only or None, kind=args.kind, workers=args.workers, progress=progress)
     print(report)
     if args.out:
-        _write(args.out, "# Seeded-mistake detection\n\n" + report.to_markdown())
+        write_atomic(args.out, "# Seeded-mistake detection\n\n" + report.to_markdown())
         print(f"\nwrote {args.out}")
     if args.json:
-        _write(args.json, json.dumps(report.to_dict(), indent=2))
+        write_atomic(args.json, json.dumps(report.to_dict(), indent=2))
         print(f"wrote {args.json}")
     if args.equal_cost:
         from solvers_demo.equal_cost import compare_at_equal_cost, plot_equal_cost
