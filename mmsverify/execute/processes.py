@@ -246,10 +246,11 @@ class Worker:
     :meth:`stop` ends the process and everything it started.
     """
 
-    def __init__(self, initializer=None, initargs=()):
+    def __init__(self, initializer=None, initargs=(), environ=None):
         ctx = mp_context()
         self.conn, child = ctx.Pipe()
-        self.process = ctx.Process(target=_serve, args=(child, dict(os.environ), initializer, initargs), name="mmsverify-worker")
+        environ = dict(os.environ) if environ is None else environ
+        self.process = ctx.Process(target=_serve, args=(child, environ, initializer, initargs), name="mmsverify-worker")
         self.process.start()
         child.close()
         self.task, self.deadline = None, None

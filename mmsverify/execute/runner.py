@@ -35,6 +35,8 @@ from dataclasses import replace
 from multiprocessing.connection import wait as wait_ready
 import os
 import pickle
+import shutil
+import tempfile
 import time
 import warnings
 
@@ -263,12 +265,16 @@ def farm(tasks, workers, timeout, done):
     """
     queue = list(tasks)
     slots = [None] * min(workers, len(queue))
+    # The workers' temporary folders (an external program's level folder) go under one folder of the
+    # tool's, removed here at the end: a worker killed at its time limit cannot remove its own.
+    scratch = tempfile.mkdtemp(prefix="mmsverify-workers-")
+    environ = {**os.environ, "TMPDIR": scratch}
     try:
         while queue or any(w is not None and w.task is not None for w in slots):
             for k, w in enumerate(slots):
                 if queue and (w is None or w.task is None):
                     if w is None:
-                        w = slots[k] = Worker(_share_cores, (len(slots),))
+                        w = slots[k] = Worker(_share_cores, (len(slots),), environ)
                     key, fn, args = queue.pop(0)
                     # The grace lets an external program's own time-out (and its tail of output) report first.
                     w.submit(fn, *args, task=key, timeout=None if timeout is None else timeout + GRACE)
@@ -302,6 +308,7 @@ def farm(tasks, workers, timeout, done):
         for w in slots:
             if w is not None:
                 w.stop()
+        shutil.rmtree(scratch, ignore_errors=True)
 
 
 _DIED = ("the worker process died while running this level (a crash in compiled code, a kill signal, "
