@@ -23,6 +23,7 @@ Limits (each a refusal, never a silent truncation):
 """
 
 import ast
+import math
 import difflib
 import inspect
 import warnings
@@ -175,12 +176,55 @@ def check_real(expr, where):
         raise ExpressionError(f"{where}: expression evaluates to an infinite or undefined "
                               f"value ({str(expr)[:80]}); check for division by zero")
     complex_part = sympy.I if expr.has(sympy.I) else next(
-        (a for a in expr.atoms(sympy.Function, sympy.Pow) if a.is_number and a.is_real is False), None)
+        (a for a in expr.atoms(sympy.Function, sympy.Pow) if a.is_number and not _real_number(a, where)), None)
     if complex_part is not None:
         raise ExpressionError(f"{where}: expression has the value {str(complex_part)[:60]}, which is not a "
                               "real number (check square roots, logarithms and inverse functions of "
                               "constants); fields and coefficients must be real")
     return expr
+
+
+def _float_value(e):
+    """A constant's value in Python floating point (complex where a power leaves the reals), or None
+    where it holds a function this small evaluator does not know."""
+    if e.is_Number or e in (sympy.pi, sympy.E):
+        return float(e)
+    if e.is_Add or e.is_Mul:
+        parts = [_float_value(a) for a in e.args]
+        if any(v is None for v in parts):
+            return None
+        out = parts[0]
+        for v in parts[1:]:
+            out = out + v if e.is_Add else out * v
+        return out
+    if e.is_Pow:
+        base, power = _float_value(e.base), _float_value(e.exp)
+        return None if base is None or power is None else base ** power
+    fn = getattr(math, type(e).__name__, None)
+    if fn is None or len(e.args) != 1:
+        return None
+    arg = _float_value(e.args[0])
+    return None if arg is None else fn(arg)
+
+
+def _real_number(value, where):
+    """Whether a constant subexpression is a real number, decided in floating point.
+
+    Asking sympy (``is_real``) may evaluate nested exponentials to exact
+    precision, which for ``exp(exp(exp(exp(exp(100)))))`` never ends; in
+    floating point it overflows at once, and a constant beyond floating
+    point cannot be evaluated by the solver's evaluators either.
+    """
+    try:
+        number = _float_value(value)
+    except OverflowError:
+        raise ExpressionError(f"{where}: the constant {str(value)[:60]} is beyond floating point "
+                              "(about 1.8e308); use smaller constants") from None
+    except (ValueError, ZeroDivisionError, TypeError):  # a math domain error: asin(2), log(-1), sqrt(-1)
+        return False
+    if number is None:  # a function the small evaluator does not know: ask sympy
+        return value.is_real is not False
+    return not isinstance(number, complex)
 
 
 def parse_quietly(body):
