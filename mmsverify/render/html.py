@@ -11,7 +11,7 @@ from html import escape
 from pathlib import Path
 
 from mmsverify.execute.norms import NORMS
-from mmsverify.render.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
+from mmsverify.render.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_cells, level_rows,
                       notes, study_facts)
 from mmsverify.render.quantities import quantity_table
 from mmsverify.render.text import CAUTION
@@ -96,11 +96,7 @@ def html_text(result, pointwise=None, fmt="svg", figures=True):
         header = ["Level", "Grid", size] + [c for n in NORMS for c in (f"{n} error", f"{n} order")] + ["Run time (s)"]
         rows, classes = [], []
         for r in level_rows(result, f):
-            row = [r["level"], r["grid"], f"{r['h']:.4g}"]
-            if r["status"] != "ok":
-                row += ["failed: " + (r["message"].splitlines() or [""])[0]] + [""] * (2 * len(NORMS) - 1)
-            else:
-                row += [c for n in NORMS for c in (fmt_num(r[f"error_{n}"]), fmt_order(r[f"order_{n}"]))]
+            row = level_cells(r)
             rows.append(row + [f"{r['seconds']:.3g}"])
             classes.append("" if r["status"] == "ok" else "failed")
         body.append(_table(header, rows, numeric=tuple(range(2, 4 + 2 * len(NORMS))), row_class=classes))

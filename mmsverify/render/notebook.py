@@ -17,7 +17,7 @@ __all__ = ["study_html", "study_markdown"]
 
 def _study_tables(result):
     from mmsverify.execute.norms import NORMS
-    from mmsverify.render.wording import fmt_num, fmt_order, level_rows
+    from mmsverify.render.wording import fmt_order, level_cells, level_rows
     verdicts = (["field", "norm", "outcome", "observed order", "formal order", "reason"],
                 [[v.field, v.norm, v.status, fmt_order(v.observed), f"{v.formal:g}", v.reason]
                  for v in result.verdicts])
@@ -25,11 +25,7 @@ def _study_tables(result):
     for f in result.fields:
         rows = []
         for r in level_rows(result, f):
-            row = [r["level"], r["grid"], f"{r['h']:.4g}"]
-            if r["status"] != "ok":
-                row += ["failed: " + (r["message"].splitlines() or [""])[0]] + [""] * (2 * len(NORMS) - 1)
-            else:
-                row += [c for n in NORMS for c in (fmt_num(r[f"error_{n}"]), fmt_order(r[f"order_{n}"]))]
+            row = level_cells(r)
             rows.append(row)
         levels[f] = (["level", "grid", "h"] + [c for n in NORMS for c in (f"{n} error", f"{n} order")], rows)
     return verdicts, levels

@@ -8,7 +8,7 @@ import numpy as np
 
 from mmsverify.execute.norms import NORMS
 
-__all__ = ["headline", "level_rows", "axis_name", "fmt_num", "fmt_order", "study_facts", "CAPTIONS",
+__all__ = ["headline", "level_rows", "level_cells", "axis_name", "fmt_num", "fmt_order", "study_facts", "CAPTIONS",
            "TITLES", "extra_cautions", "notes"]
 
 def headline(result):
@@ -133,3 +133,12 @@ def extra_cautions(result):
         notes.append("Only two levels succeeded, so the order was measured once; three or more levels show "
                      "whether it has settled.")
     return notes
+
+
+def level_cells(row):
+    """The cells of one row of :func:`level_rows` in a table: level, grid, h, then error and order per norm
+    (a failed level: its first message line in place of the numbers)."""
+    cells = [row["level"], row["grid"], f"{row['h']:.4g}"]
+    if row["status"] != "ok":
+        return cells + ["failed: " + (row["message"].splitlines() or [""])[0]] + [""] * (2 * len(NORMS) - 1)
+    return cells + [c for n in NORMS for c in (fmt_num(row[f"error_{n}"]), fmt_order(row[f"order_{n}"]))]
