@@ -147,3 +147,13 @@ def test_manufactured_pickles_without_compiled_functions():
     m2 = pickle.loads(pickle.dumps(m))
     assert m2.content_hash == m.content_hash
     assert float(m2.exact("u", 0.1, 0.2)) == float(m.exact("u", 0.1, 0.2))
+
+
+def test_a_pickled_manufactured_carries_its_derivation():
+    # A level worker receives the problem pickled; it should not differentiate the problem again.
+    import pickle
+    m = derive(problem_from_text('[domain]\nx = [0, 1]\n[fields]\nu = "x**3"'))
+    assert m._derivation is None                       # derived on first use
+    m2 = pickle.loads(pickle.dumps(m))
+    assert m2._derivation is not None
+    assert float(m2.source("u", 0.5)) == -3.0           # -u'' = -6x at x = 1/2

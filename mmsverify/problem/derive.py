@@ -298,7 +298,7 @@ class Manufactured:
 
     def __getstate__(self):
         # the derived equations travel along, so a worker process does not differentiate again
-        return {"problem": self.problem, "derivation": self._derivation}
+        return {"problem": self.problem, "derivation": self.derivation}
 
     def __setstate__(self, state):
         self.__init__(state["problem"])
