@@ -10,7 +10,7 @@ PKG = Path(__file__).resolve().parent.parent / "mmsverify"
 
 #: Stage of each subpackage or top-level module; a module may import its own stage and lower numbers.
 STAGES = {"errors": 0, "fileio": 0, "problem": 1, "design": 2, "execute": 2, "analysis": 3, "render": 4,
-          "study": 5, "outputs": 6, "cli": 7, "testing": 7, "pytest_plugin": 7, "__init__": 8, "__main__": 8}
+          "study": 5, "outputs": 6, "cli": 7, "testing": 7, "pytest_plugin": 7, "gci": 7, "__init__": 8, "__main__": 8}
 
 
 def _modules():
@@ -132,3 +132,17 @@ def test_core_never_imports_the_demo():
 def test_no_concurrency_tricks(needle):
     hits = [str(p.relative_to(PKG.parent)) for p in PKG.rglob("*.py") if needle in p.read_text(encoding="utf-8")]
     assert not hits, f"{needle} in {hits}"
+
+
+def test_the_name_of_a_module_is_the_module():
+    # `import mmsverify.gci` gives the module whatever was imported first; no function shadows it.
+    import subprocess
+    import sys
+    out = subprocess.run([sys.executable, "-c", "import mmsverify.gci as m; print(m.__name__)"],
+                         capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "mmsverify.gci"
+    import types
+    import mmsverify
+    shadowed = [n for n in mmsverify.__all__ if f"mmsverify.{n}" in MODULES
+                and not isinstance(getattr(mmsverify, n), types.ModuleType)]
+    assert not shadowed, f"top-level names that hide a module of the same name: {shadowed}"
