@@ -691,14 +691,30 @@ def test_the_tool_stopped_by_a_signal_leaves_no_process_and_no_folder(tmp_path, 
     env = dict(os.environ, TMPDIR=str(root / "tmp"), PY=PY, STUBBORN=STUBBORN,
                PYTHONPATH=os.pathsep.join([str(Path(__file__).resolve().parent.parent),
                                            os.environ.get("PYTHONPATH", "")]))
-    proc = subprocess.Popen([PY, "-m", "mmsverify", "run", PROBLEM, "--levels", "2", "--external",
-                             f"{script} {{case}}"] + (["--timeout", limit] if limit != "default" else []), env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
-    deadline = time.monotonic() + 60
-    while not (folder / "started").exists() or len(list((folder / "pids").iterdir())) < 2:
-        assert proc.poll() is None and time.monotonic() < deadline, proc.communicate()
-        time.sleep(0.02)  # polling for the program's own signal, not a delay the result depends on
-    proc.send_signal(getattr(signal, sig))
-    _, err = proc.communicate(timeout=30)
+    # The tool starts as a terminal's Ctrl-C would find it: SIGINT at Python's default handler. A test run
+    # started in the background by a shell ignores SIGINT, and its children inherit that; by convention
+    # the tool then keeps ignoring it, which is not what this test is about.
+    launch = [PY, "-c", "import runpy, signal; signal.signal(signal.SIGINT, signal.default_int_handler); "
+                        "runpy.run_module('mmsverify', run_name='__main__', alter_sys=True)"]
+    proc = subprocess.Popen(launch + ["run", PROBLEM, "--levels", "2", "--external", f"{script} {{case}}"]
+                            + (["--timeout", limit] if limit != "default" else []),
+                            env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    try:
+        deadline = time.monotonic() + 60
+        while not (folder / "started").exists() or len(list((folder / "pids").iterdir())) < 2:
+            assert proc.poll() is None and time.monotonic() < deadline, proc.communicate()
+            time.sleep(0.02)  # polling for the program's own signal, not a delay the result depends on
+        proc.send_signal(getattr(signal, sig))
+        _, err = proc.communicate(timeout=30)
+    finally:
+        if proc.poll() is None:  # the test failed: end the tool (SIGTERM lets it clean up) and what it started
+            proc.terminate()
+            try:
+                proc.communicate(timeout=30)
+            except subprocess.TimeoutExpired:
+                proc.kill()
+                proc.communicate()
+            _assert_all_ended([folder])
     assert "Traceback" not in err.decode(), err.decode()
     assert proc.returncode in (128 + getattr(signal, sig), 130), (proc.returncode, err.decode())
     assert not list((root / "tmp").iterdir()), "temporary level folders left behind"
