@@ -104,3 +104,22 @@ def test_orders_per_norm_in_the_problem_file_override_the_solver():
         norm_orders = {"H1semi": 2}
 
     assert run_study(problem_from_text(text), Claims(), refinement=Refinement(levels=3, base_cells=4)).passed
+
+
+def test_gradient_norms_reach_every_report_and_come_back_from_json(tmp_path):
+    # The Markdown, HTML and CSV tables show the gradient norms the text table shows, and a study file
+    # with a verdict in the H1 seminorm is read back and judged again to the same verdicts.
+    from mmsverify.outputs.studyfile import csv_text, read_json, write_json
+    from mmsverify.render.html import html_text
+    from mmsverify.render.markdown import markdown_text
+    from mmsverify.render.notebook import study_html
+    r = run_study(problem_from_text(TEXT), _Sampled(), refinement=Refinement(levels=3, base_cells=4))
+    for n in ("H1semi", "H1", "energy"):
+        for text in (str(r), markdown_text(r), html_text(r, figures=False), study_html(r, figure=False)):
+            assert f"{n} error" in text
+    rows = csv_text(r).splitlines()
+    assert sum(",u,H1semi," in row for row in rows) == 3          # one per level
+    write_json(r, tmp_path / "study.json")
+    back = read_json(tmp_path / "study.json")
+    assert [(v.norm, v.status) for v in back.verdicts] == [(v.norm, v.status) for v in r.verdicts]
+    assert ("H1semi", "confirmed") in [(v.norm, v.status) for v in back.verdicts]

@@ -244,6 +244,8 @@ def test_a_three_thousand_level_file_is_refused_at_once(bases, tmp_path):
     (lambda d: _set(d, ("levels", 1, "h"), "0.1"), r"level entry 1, key 'h': expected a positive finite number"),
     (lambda d: _set(d, ("levels", 0, "status"), "passed"), r"level entry 0, key 'status': expected one of ok, failed"),
     (lambda d: _set(d, ("verdicts", 2, "status"), "great"), r"verdict entry 2, key 'status': expected one of conf"),
+    (lambda d: _set(d, ("verdicts", 0, "norm"), "H1"), r"verdict entry 0: a verdict in the H1 norm of field u, but "
+                                                        r"level\(s\) 0, 1, 2.* hold no H1 error"),
     (lambda d: _set(d, ("levels", 0, "errors", "u", "L2"), "x"), r"level entry 0, errors u, key 'L2'"),
     (lambda d: _set(d, ("levels", 0, "cells"), [8, True]), r"level entry 0, cells: expected a whole number"),
     (lambda d: _set(d, ("levels", 0, "seconds"), -1), r"key 'seconds': expected a finite number at least 0"),

@@ -21,11 +21,12 @@ from mmsverify.errors import GridError, MMSError
 from mmsverify.fileio import (as_int, as_number, load_json_file, need, need_bool, need_choice, need_dict,
                               need_int, need_list, need_number, need_str, write_atomic)
 from mmsverify.execute.grids import Grid
+from mmsverify.execute.gradnorms import ALL_NORMS
 from mmsverify.execute.norms import NORMS
 from mmsverify.execute.level import LevelResult
 from mmsverify.study.refinement import NORMS_SOURCES, StudyResult, rejudge
 from mmsverify.analysis.verdict import Verdict
-from mmsverify.render.wording import level_rows
+from mmsverify.render.wording import level_rows, shown_norms
 from mmsverify.render.quantities import quantity_rows
 from mmsverify.render.text import CAUTION
 
@@ -189,7 +190,7 @@ def _verdict(v, where):
         as_number(x, f"{where}, interval", null=True)
     for k in need_list(v, "left_out", where, [], max_len=MAX_LEVELS):
         as_int(k, f"{where}, left_out", maximum=MAX_LEVELS)
-    return Verdict(need_str(v, "field", where, max_len=1000), need_choice(v, "norm", where, NORMS + ("value",)),
+    return Verdict(need_str(v, "field", where, max_len=1000), need_choice(v, "norm", where, ALL_NORMS + ("value",)),
                    need_number(v, "formal", where), need_number(v, "observed", where, math.nan, null=True),
                    need_number(v, "tolerance", where, minimum=0), need_choice(v, "status", where, _VERDICT_STATUSES, ""),
                    need_str(v, "reason", where, ""), at_least=need_bool(v, "at_least", where, False))
@@ -253,6 +254,12 @@ def study_from_data(data, where="study data"):
                    for i, d in enumerate(need_list(data, "levels", where, max_len=MAX_LEVELS)))
     verdicts = tuple(_verdict(v, f"{where}, verdict entry {i}")
                      for i, v in enumerate(_need_list(data, "verdicts", where)))
+    for i, v in enumerate(verdicts):
+        unmeasured = [lv.level for lv in levels if lv.ok and v.field in lv.errors and v.norm not in lv.errors[v.field]]
+        if v.norm != "value" and unmeasured:
+            raise MMSError(f"{where}, verdict entry {i}: a verdict in the {v.norm} norm of field {v.field}, but "
+                           f"level(s) {', '.join(map(str, unmeasured))} hold no {v.norm} error of it; the file is "
+                           "not as the tool wrote it: rerun the study to write a new file")
     conflicts = tuple(_conflict(c, f"{where}, order_conflicts entry {i}")
                       for i, c in enumerate(need_list(data, "order_conflicts", where, [], max_len=2)))
     missing = {}
@@ -330,7 +337,7 @@ def _csv_rows(result):
         for row, lv in zip(rows, result.levels):
             common = dict(_level_cells(base, lv), field=f, scale=lv.scale.get(f),
                           message=lv.message.splitlines()[0] if lv.message else "")
-            for n in NORMS if lv.ok else ("",):
+            for n in shown_norms(result, f) if lv.ok else ("",):
                 v = verdicts.get((f, n))
                 yield dict(common, norm=n, error=row.get(f"error_{n}"), order=row.get(f"order_{n}"),
                            verdict=v.status if v else "", observed_order=v.observed if v else None)

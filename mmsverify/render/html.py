@@ -10,9 +10,8 @@ import base64
 from html import escape
 from pathlib import Path
 
-from mmsverify.execute.norms import NORMS
-from mmsverify.render.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_cells, level_rows,
-                      notes, study_facts)
+from mmsverify.render.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_order, headline, level_cells,
+                                      level_header, level_rows, notes, shown_norms, study_facts)
 from mmsverify.render.quantities import quantity_table
 from mmsverify.render.text import CAUTION
 
@@ -93,13 +92,13 @@ def html_text(result, pointwise=None, fmt="svg", figures=True):
     body.append(_table(["Study", ""], study_facts(result)))
     for f in result.fields:
         body.append(f"<h3>Field {escape(f)}</h3>")
-        header = ["Level", "Grid", size] + [c for n in NORMS for c in (f"{n} error", f"{n} order")] + ["Run time (s)"]
+        norms = shown_norms(result, f)
+        header = level_header(norms, size) + ["Run time (s)"]
         rows, classes = [], []
         for r in level_rows(result, f):
-            row = level_cells(r)
-            rows.append(row + [f"{r['seconds']:.3g}"])
+            rows.append(level_cells(r, norms) + [f"{r['seconds']:.3g}"])
             classes.append("" if r["status"] == "ok" else "failed")
-        body.append(_table(header, rows, numeric=tuple(range(2, 4 + 2 * len(NORMS))), row_class=classes))
+        body.append(_table(header, rows, numeric=tuple(range(2, 4 + 2 * len(norms))), row_class=classes))
     for q in result.quantities:
         body.append(f"<h3>Quantity {escape(q)}</h3>")
         header, rows, ok = quantity_table(result, q, size, first_line=True)

@@ -7,9 +7,8 @@ report (``<name>_figures/``), so the pair can be committed or attached.
 
 from pathlib import Path
 
-from mmsverify.execute.norms import NORMS
-from mmsverify.render.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_num, fmt_order, headline, level_rows,
-                      notes, study_facts)
+from mmsverify.render.wording import (CAPTIONS, TITLES, axis_name, extra_cautions, fmt_order, headline, level_cells,
+                                      level_header, level_rows, notes, shown_norms, study_facts)
 from mmsverify.render.quantities import quantity_table
 from mmsverify.render.text import CAUTION
 
@@ -74,15 +73,9 @@ def markdown_text(result, images=None):
     out += _table(["Study", ""], study_facts(result))
     for f in result.fields:
         out += ["", f"### Field {_md(f)}", ""]
-        header = ["Level", "Grid", size] + [c for n in NORMS for c in (f"{n} error", f"{n} order")] + ["Run time (s)"]
-        rows = []
-        for r in level_rows(result, f):
-            row = [r["level"], r["grid"], f"{r['h']:.4g}"]
-            if r["status"] != "ok":
-                row += [f"failed: {r['message']}"] + [""] * (2 * len(NORMS) - 1)
-            else:
-                row += [c for n in NORMS for c in (fmt_num(r[f"error_{n}"]), fmt_order(r[f"order_{n}"]))]
-            rows.append(row + [f"{r['seconds']:.3g}"])
+        norms = shown_norms(result, f)
+        header = level_header(norms, size) + ["Run time (s)"]
+        rows = [level_cells(r, norms) + [f"{r['seconds']:.3g}"] for r in level_rows(result, f)]
         out += _table(header, rows)
     for q in result.quantities:
         out += ["", f"### Quantity {_md(q)}", ""]

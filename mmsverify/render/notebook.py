@@ -16,18 +16,15 @@ __all__ = ["study_html", "study_markdown"]
 
 
 def _study_tables(result):
-    from mmsverify.execute.norms import NORMS
-    from mmsverify.render.wording import fmt_order, level_cells, level_rows
+    from mmsverify.render.wording import fmt_order, level_cells, level_header, level_rows, shown_norms
     verdicts = (["field", "norm", "outcome", "observed order", "formal order", "reason"],
                 [[v.field, v.norm, v.status, fmt_order(v.observed), f"{v.formal:g}", v.reason]
                  for v in result.verdicts])
     levels = {}
     for f in result.fields:
-        rows = []
-        for r in level_rows(result, f):
-            row = level_cells(r)
-            rows.append(row)
-        levels[f] = (["level", "grid", "h"] + [c for n in NORMS for c in (f"{n} error", f"{n} order")], rows)
+        norms = shown_norms(result, f)
+        levels[f] = ([c.lower() if c in ("Level", "Grid") else c for c in level_header(norms)],
+                     [level_cells(r, norms) for r in level_rows(result, f)])
     return verdicts, levels
 
 

@@ -4,10 +4,8 @@ import textwrap
 
 import numpy as np
 
-from mmsverify.execute.gradnorms import GRADIENT_NORMS
-from mmsverify.execute.norms import NORMS
 from mmsverify.execute.resolutions import describe_level
-from mmsverify.render.wording import notes
+from mmsverify.render.wording import notes, shown_norms
 
 __all__ = ["format_study", "CAUTION"]
 
@@ -63,8 +61,7 @@ def format_study(result, caution=True):
         head = f"  field {f}"
         lines.append(head)
         ok = [lv for lv in result.levels if lv.ok and f in lv.errors]
-        # gradient norms get columns when every successful level measured them
-        shown = NORMS + tuple(n for n in GRADIENT_NORMS if ok and all(n in lv.errors[f] for lv in ok))
+        shown = shown_norms(result, f)  # gradient norms get columns when every successful level measured them
         lines.append((f"  level  {'grid':<{gw}} {size:<10} " +
                       "".join(f"{n + ' error':<13}{'order':<8}" for n in shown)).rstrip())
         orders = {n: result.orders(f, n) for n in shown}

@@ -6,9 +6,10 @@ writers say the same thing in the same order: verdict, evidence, cautions.
 
 import numpy as np
 
+from mmsverify.execute.gradnorms import GRADIENT_NORMS
 from mmsverify.execute.norms import NORMS
 
-__all__ = ["headline", "level_rows", "level_cells", "axis_name", "fmt_num", "fmt_order", "study_facts", "CAPTIONS",
+__all__ = ["headline", "shown_norms", "level_rows", "level_header", "level_cells", "axis_name", "fmt_num", "fmt_order", "study_facts", "CAPTIONS",
            "TITLES", "extra_cautions", "notes"]
 
 def headline(result):
@@ -57,6 +58,13 @@ def fmt_order(x):
     return fmt_num(x, ".2f")
 
 
+def shown_norms(result, field_name):
+    """The norms the tables of a field show: L1, L2, Linf, and each gradient norm (H1 seminorm, H1,
+    energy) that every successful level measured."""
+    ok = [lv for lv in result.levels if lv.ok and field_name in lv.errors]
+    return NORMS + tuple(n for n in GRADIENT_NORMS if ok and all(n in lv.errors[field_name] for lv in ok))
+
+
 def level_rows(result, field_name):
     """Rows of the evidence table of one field.
 
@@ -64,18 +72,19 @@ def level_rows(result, field_name):
     -------
     list of dict
         One per level with keys ``level``, ``grid``, ``h``, ``seconds``,
-        ``status``, ``message`` and per norm ``error_<norm>`` and
-        ``order_<norm>`` (None on the first successful level, on failed
-        levels and where the order is undefined).
+        ``status``, ``message`` and per norm of :func:`shown_norms`
+        ``error_<norm>`` and ``order_<norm>`` (None on the first successful
+        level, on failed levels and where the order is undefined).
     """
     ok = [lv for lv in result.levels if lv.ok and field_name in lv.errors]
-    orders = {n: result.orders(field_name, n) for n in NORMS}
+    norms = shown_norms(result, field_name)
+    orders = {n: result.orders(field_name, n) for n in norms}
     rows = []
     for lv in result.levels:
         row = {"level": lv.level, "grid": lv.grid.describe(), "h": lv.h, "seconds": lv.seconds,
                "status": lv.status, "message": lv.message}
         i = ok.index(lv) if lv in ok else None
-        for n in NORMS:
+        for n in norms:
             row[f"error_{n}"] = lv.errors[field_name][n] if i is not None else None
             p = orders[n][i - 1] if i else None
             row[f"order_{n}"] = float(p) if p is not None and np.isfinite(p) else None
@@ -135,10 +144,15 @@ def extra_cautions(result):
     return notes
 
 
-def level_cells(row):
+def level_header(norms, size="h"):
+    """Column names of the level table: level, grid, size, then error and order per norm."""
+    return ["Level", "Grid", size] + [c for n in norms for c in (f"{n} error", f"{n} order")]
+
+
+def level_cells(row, norms=NORMS):
     """The cells of one row of :func:`level_rows` in a table: level, grid, h, then error and order per norm
     (a failed level: its first message line in place of the numbers)."""
     cells = [row["level"], row["grid"], f"{row['h']:.4g}"]
     if row["status"] != "ok":
-        return cells + ["failed: " + (row["message"].splitlines() or [""])[0]] + [""] * (2 * len(NORMS) - 1)
-    return cells + [c for n in NORMS for c in (fmt_num(row[f"error_{n}"]), fmt_order(row[f"order_{n}"]))]
+        return cells + ["failed: " + (row["message"].splitlines() or [""])[0]] + [""] * (2 * len(norms) - 1)
+    return cells + [c for n in norms for c in (fmt_num(row[f"error_{n}"]), fmt_order(row[f"order_{n}"]))]
