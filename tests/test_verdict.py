@@ -199,3 +199,19 @@ def test_pointwise_order_on_irregular_grids_is_inconclusive_not_failed():
     # an order a whole unit off is still a failure on irregular grids
     h, e = _errors_with_orders([1.0, 1.0, 1.0])
     assert judge("u", "Linf", h, e, 2, 0.1, irregular=True).status == "below"
+
+
+def test_errors_that_never_fall_fail_where_nothing_is_held_fixed():
+    # common practice: an error that does not shrink on any level, at several percent of the solution, is no
+    # solver tolerance; in a combined study nothing else is held fixed, so the solver does not converge
+    flat = [5.1e-2, 5.0e-2, 5.0e-2, 5.0e-2, 5.0e-2]
+    v = judge("u", "L2", H, flat, 2, 0.1, scale=1.0, fixed=False)
+    assert v.status == "below" and v.observed < 0.1
+    assert "does not converge to the manufactured solution" in v.reason and "5.0% of the solution" in v.reason
+    # a space or time study holds a resolution fixed, whose error may be this floor: not decided
+    v = judge("u", "L2", H, flat, 2, 0.1, scale=1.0, fixed=True)
+    assert v.status == "inconclusive" and v.kind == "frozen floor" and "fixed time step" in v.reason
+    # a floor as small as a solver tolerance stays undecided, and the reason names no fixed time step
+    v = judge("u", "L2", H, [x * 1e-3 for x in flat], 2, 0.1, scale=1.0, fixed=False)
+    assert v.status == "inconclusive" and v.kind == "frozen floor"
+    assert "holds no other resolution fixed" in v.reason and "time step" not in v.reason

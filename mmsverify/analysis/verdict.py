@@ -66,6 +66,9 @@ _EPS = np.finfo(float).eps
 #: A floor that grows under refinement is round-off only this small relative to the solution; round-off of a
 #: solve grows like cond(A) eps, about 1e-10 to 1e-8 for a million unknowns  # common practice
 _ROUNDOFF_GROWTH = 1e-7
+#: Errors that never fall and stay above this fraction of the solution's size are no solver tolerance: where
+#: nothing else is held fixed, the solver does not converge  # common practice (tolerances are far tighter)
+_NOT_CONVERGING = 0.01
 
 
 @dataclass(frozen=True)
@@ -251,7 +254,7 @@ _WORST_CELL = 0.5
 
 
 def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, at_least=False, axis="h",
-          irregular=False):
+          irregular=False, fixed=True):
     """Judge one error sequence.
 
     Parameters
@@ -279,6 +282,13 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, 
         then judged off only when it lies more than half an order (or the
         tolerance, if larger) from the formal order; nearer, it is
         inconclusive (see :data:`_WORST_CELL`).
+    fixed : bool
+        The study holds another resolution fixed (a space or a time study),
+        whose error may be a floor. Without one (a combined study), errors
+        that never fall from the coarsest level on and stay above
+        :data:`_NOT_CONVERGING` of the solution are judged as they are: the
+        solver does not converge (``below``), where a study with a fixed
+        resolution leaves them inconclusive.
 
     Raises
     ------
@@ -345,12 +355,26 @@ def judge(field, norm, h, errors, formal, tolerance, scale=1.0, levels=None, *, 
                 f"cannot help in double precision, so drop the levels with {axis} = {sizes}")
     else:
         kind = "frozen floor"
-        other = "spatial error of the fixed grid" if axis == "dt" else "time error of the fixed time step"
+        if fixed:
+            other = "spatial error of the fixed grid" if axis == "dt" else "time error of the fixed time step"
+            cause = f"such as the {other} or, if the solver iterates, iteration error"
+            remedy = "refine the fixed resolution, or converge the iterations further"
+        else:
+            cause = "and this study holds no other resolution fixed: iteration error, if the solver iterates"
+            remedy = "converge the iterations further"
         what = (f"the errors level off at about {value:.2g} from level {kept[j + 1]} on, far above round-off: an "
-                f"error that does not shrink with {axis} is left, such as the {other} or, if the solver iterates, "
-                f"iteration error; remove it (refine the fixed resolution, or converge the iterations further) or "
+                f"error that does not shrink with {axis} is left, {cause}; remove it ({remedy}) or "
                 f"drop the levels with {axis} = {sizes}")
     pre = list(range(j + 1))
+    if len(pre) < 2 and kind == "frozen floor" and not fixed and value >= _NOT_CONVERGING * size:
+        # nothing fixed could hold the error up, and it is far too large for a solver tolerance: judge the levels
+        status, _, p, interval, reason = _decide(h, e, kept, formal, tolerance, at_least)
+        if status == "below":
+            return verdict(status, f"{prefix}{reason}. The errors stay at about {value:.2g} ({value / size:.1%} of "
+                                   f"the solution) from level {kept[0]} on, and this study holds no other resolution "
+                                   "fixed: the solver does not converge to the manufactured solution (a solver "
+                                   "that stops iterating this far from convergence looks the same)",
+                           "another order", p, interval, left)
     left = left + kept[j + 1:]
     if len(pre) >= 3:
         status, _, p, interval, reason = _decide(h[pre], e[pre], kept[:j + 1], formal, tolerance, at_least)

@@ -360,7 +360,7 @@ def _verdicts(problem, results, formal, tol, judged, rules=(), mode="combined"):
     def one(name, norm, ok, errors, scale):
         p, t, at_least = rule_for(rules, name, norm, formal, tol, axis)
         return judge(name, norm, [r.h for r in ok], errors, p, t, scale=scale, levels=[r.level for r in ok],
-                     at_least=at_least, axis=size, irregular=_irregular(ok))
+                     at_least=at_least, axis=size, irregular=_irregular(ok), fixed=mode != "combined")
 
     verdicts = []
     for f in problem.field_names:
@@ -398,7 +398,8 @@ def rejudge(result):
             errors = [r.errors[v.field][v.norm] for r in ok]
             scale = max((r.scale.get(v.field, 1.0) for r in ok), default=1.0)
         fresh.append(judge(v.field, v.norm, [r.h for r in ok], errors, v.formal, v.tolerance, scale=scale,
-                           levels=[r.level for r in ok], at_least=v.at_least, axis=size, irregular=_irregular(ok)))
+                           levels=[r.level for r in ok], at_least=v.at_least, axis=size, irregular=_irregular(ok),
+                           fixed=result.mode != "combined"))
     return dataclasses.replace(result, verdicts=tuple(fresh))
 
 
