@@ -51,6 +51,17 @@ def test_case_file_is_flat_toml_with_grid_boundaries_and_parameters(tmp_path):
     assert all("[" not in line.split("=")[0] for line in path.read_text().splitlines())  # no table headers
 
 
+def test_case_file_gives_the_robin_coefficient_of_each_robin_side(tmp_path):
+    from mmsverify import problem_from_text
+    problem = problem_from_text('[domain]\nx = [0, 1]\ny = [0, 1]\n[fields]\nu = "x*y + sin(x)"\n'
+                                '[boundaries]\nx_max = "robin"\ny_min = "robin"\nrobin = {x_max = 2.5, y_min = 0.5}\n')
+    case = Case(plan_grids(problem, levels=2)[0], derive(problem), {"mode": "combined"})
+    data = tomllib.loads(write_case(case, tmp_path, tmp_path / "solution.csv").read_text())
+    assert data["boundary"]["u"] == ["dirichlet", "robin", "robin", "dirichlet"]
+    assert data["robin"] == {"x_max": 2.5, "y_min": 0.5}
+    assert "robin" not in tomllib.loads(write_case(_case(), tmp_path, tmp_path / "s.csv").read_text())
+
+
 def test_case_file_json_and_transient_keys(tmp_path):
     case = _case("slab-heat", level=0)
     data = json.loads(write_case(case, tmp_path, tmp_path / "s.npz", fmt="json").read_text())

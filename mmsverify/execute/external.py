@@ -106,6 +106,8 @@ def _case_data(case, output, output_format, params):
         data.update(t_start=float(grid.t_start), t_end=float(grid.t_end), steps=int(grid.steps),
                     dt=float(grid.dt))
     data["boundary"] = {f: [problem.boundaries[(f, s)] for s in SIDES[:2 * grid.dim]] for f in problem.field_names}
+    if problem.robin:
+        data["robin"] = {s: float(a) for s, a in sorted(problem.robin.items())}
     data["param"] = dict(params or {})
     return data
 
@@ -167,7 +169,10 @@ def write_case(case, directory, output, *, fmt="toml", params=None):
 
     Transient problems add ``t_start``, ``t_end``, ``steps`` and ``dt``.
     ``boundary.<field>`` lists the sides in the order x_min, x_max, y_min,
-    y_max, z_min, z_max.
+    y_max, z_min, z_max. A problem with Robin sides adds the coefficient
+    of each, ``robin.x_max = 2.5``: the program's boundary condition is
+    ``F(u).n + alpha u = g``, with ``g`` from the exported ``flux_<field>_<side>``
+    and ``exact_<field>`` (:mod:`mmsverify.outputs.export`).
     """
     where = f"case file for level {case.grid.level}"
     for k in params or {}:
