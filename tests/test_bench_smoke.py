@@ -13,6 +13,8 @@ import pytest
 
 ROOT = Path(__file__).resolve().parent.parent
 
+pytestmark = pytest.mark.slow  # each runs a bench script in a fresh process
+
 
 def _run(script, tmp_path):
     env = dict(os.environ)

@@ -349,6 +349,7 @@ def _outcome_is_clean(text):
     assert elapsed < 2.0, f"{text!r} took {elapsed:.2f} s"
 
 
+@pytest.mark.slow
 @settings(max_examples=300, deadline=None)
 @given(st.text(alphabet=string.printable, max_size=200))
 def test_random_printable_text_only_raises_expression_error(text):
@@ -360,6 +361,7 @@ TOKENS = ["x", "y", "t", "k", "q", "1", "2", "0.5", "1e99", "64", "+", "-", "*",
           "]", "lambda", ":", " if ", " else ", "'", "_", "__class__", "=", "<", "j", "\n"]
 
 
+@pytest.mark.slow
 @settings(max_examples=300, deadline=None)
 @given(st.lists(st.sampled_from(TOKENS), max_size=60).map("".join))
 def test_random_token_soup_only_raises_expression_error(text):
@@ -382,6 +384,7 @@ def _expressions():
     return st.recursive(leaves, extend, max_leaves=12)
 
 
+@pytest.mark.slow
 @settings(max_examples=300, deadline=None)
 @given(_expressions())
 def test_grammar_expressions_match_sympy_reference_parser(text):

@@ -423,6 +423,7 @@ def summary(results):
     return table
 
 
+@pytest.mark.slow
 def test_a_thousand_generated_hostile_files_end_in_a_problem_or_a_clear_error_in_time(hostile_env):
     files = corpus()
     assert len(files) >= 1000 and len({label for label, _ in files}) == len(files)
@@ -606,6 +607,7 @@ def _toml_value(v):
     return "{" + ", ".join(f"{_toml_str(k)} = {_toml_value(e)}" for k, e in v.items()) + "}"
 
 
+@pytest.mark.slow
 @settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(st.dictionaries(st.sampled_from(_KEYS), st.dictionaries(st.sampled_from(_KEYS), _values, max_size=5),
                        max_size=6),

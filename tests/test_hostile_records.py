@@ -86,6 +86,7 @@ def canary(tmp_path, monkeypatch):
     sys.modules.pop("canary_solver", None)
 
 
+@pytest.mark.slow
 def test_hostile_baselines_are_refused_with_exit_2_and_run_nothing(canary, tmp_path, capsys):
     good = run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=4))
     save_baseline(good, tmp_path / "good.json", run={"solver": "canary_solver:solve", "external": None,
@@ -128,6 +129,7 @@ def test_special_files_and_huge_baselines_are_refused_unread(tmp_path, capsys):
         assert name in err and "Traceback" not in err
 
 
+@pytest.mark.slow
 def test_hostile_level_records_are_recomputed_with_a_warning(tmp_path):
     run_study("plate-poisson", "poisson2d", refinement=Refinement(levels=2), running=Running(cache_dir=tmp_path))
     cache = LevelCache(tmp_path)

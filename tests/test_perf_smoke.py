@@ -297,6 +297,7 @@ def test_compressible_traction_is_the_viscous_stress():
 
 # -- bench scripts stay working -----------------------------------------------
 
+@pytest.mark.slow
 @pytest.mark.parametrize("script", ["evaluators.py", "derivation.py", "first_contact.py"])
 def test_bench_script_runs_at_tiny_size(script):
     run = subprocess.run([sys.executable, str(ROOT / "bench" / script), "--tiny"], capture_output=True,
