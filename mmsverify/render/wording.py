@@ -9,8 +9,8 @@ import numpy as np
 from mmsverify.execute.gradnorms import GRADIENT_NORMS
 from mmsverify.execute.norms import NORMS
 
-__all__ = ["headline", "shown_norms", "level_rows", "level_header", "level_cells", "axis_name", "fmt_num", "fmt_order", "study_facts", "CAPTIONS",
-           "TITLES", "extra_cautions", "notes"]
+__all__ = ["headline", "shown_norms", "level_rows", "level_header", "level_cells", "axis_name", "fmt_num", "fmt_order",
+           "study_facts", "CAPTIONS", "TITLES", "extra_cautions", "notes"]
 
 def headline(result):
     """One sentence stating the verdict, for the top of every report."""
