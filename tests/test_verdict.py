@@ -215,3 +215,17 @@ def test_errors_that_never_fall_fail_where_nothing_is_held_fixed():
     v = judge("u", "L2", H, [x * 1e-3 for x in flat], 2, 0.1, scale=1.0, fixed=False)
     assert v.status == "inconclusive" and v.kind == "frozen floor"
     assert "holds no other resolution fixed" in v.reason and "time step" not in v.reason
+
+
+def test_a_fourth_order_scheme_fading_from_order_six_is_no_floor():
+    # L1 errors of a user's fourth-order solver built on findiff 0.16 (acc=4 Laplacian, Dirichlet, a smooth
+    # field on the unit square, 8^2 to 64^2 cells). Pair orders 5.85, 5.77, 5.23 fall toward 4 (4.55, 4.27 on
+    # 128^2 and 256^2): the h^6 term of the central differences' even-power series fading (common practice).
+    # The slowing finest pair was read as a floor emerging, the three coarser levels as order 5.8: "above".
+    h = [0.125, 0.0625, 0.03125, 0.015625]
+    e = [3.883e-04, 6.745e-06, 1.237e-07, 3.296e-09]
+    v = judge("u", "L1", h, e, 4, 0.2, scale=2.92, fixed=False)
+    assert v.status == "confirmed" and "C h^4 + D h^6" in v.reason
+    # a floor still shows where it slows the finest pair below the formal order
+    v = judge("u", "L1", H, [4e-3, 1e-3, 2.5e-4, 8e-5, 4.5e-5], 2, 0.1, scale=1.0)
+    assert v.kind == "frozen floor" and v.status == "inconclusive"

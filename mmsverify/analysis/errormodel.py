@@ -161,8 +161,9 @@ def find_floor(h, e, formal):
     or more levels, a fit ``e = C h**p + F`` that explains the levels
     (three times smaller rms residual than the power law, and smaller
     than a fit with the next term) with ``F`` at
-    least a fifth of the finest error. Levels before the floor are those whose
-    error is more than four times ``F`` (at least the finest one is not).
+    least a fifth of the finest error, provided the finest pair falls slower
+    than the formal order. Levels before the floor are those whose error is
+    more than four times ``F`` (at least the finest one is not).
     """
     h, e = np.asarray(h, float), np.asarray(e, float)
     q = np.log(e[:-1] / e[1:]) / np.log(h[:-1] / h[1:])
@@ -171,7 +172,9 @@ def find_floor(h, e, formal):
         j -= 1
     if j < len(q) and np.any(q[:j] >= _FALLING * formal):
         return j, float(np.median(e[j + 1:]))
-    if len(h) >= 4:
+    # a floor slows the finest pair below the formal order; a tail still falling at the formal order or faster
+    # is approaching its asymptotic range (a next term fading), not levelling off
+    if len(h) >= 4 and q[-1] < formal:
         p, F, rms = floor_fit(h, e, max(8.0, 3.0 * formal))
         # the floor must explain the levels better than the power law and than a next term of the series
         bend = min(bend_fit(h, e, q, max(8.0, 3.0 * formal)).rms for q in (1.0, 2.0))
