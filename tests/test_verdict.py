@@ -165,10 +165,19 @@ def test_single_level_is_inconclusive():
 
 def test_messages_never_contradict_their_rounding():
     # an order 2.1004 is off by 0.1004 > 0.1; printing 0.10 would contradict the verdict
-    v = judge("u", "L2", [0.1, 0.05], [1e-2, 1e-2 / 2 ** 2.1004], 2, 0.1)
+    h = [0.1, 0.05, 0.025]
+    v = judge("u", "L2", h, [1e-2 * (x / 0.1) ** 2.1004 for x in h], 2, 0.1)
     assert v.status == "above" and "0.1004 from the formal order" in v.reason and "observed 2.1004" in v.reason
-    v = judge("u", "L2", [0.1, 0.05], [1e-2, 1e-2 / 2 ** 2.0996], 2, 0.1)
+    v = judge("u", "L2", h, [1e-2 * (x / 0.1) ** 2.0996 for x in h], 2, 0.1)
     assert v.status == "confirmed" and "observed 2.0996" in v.reason
+
+
+def test_one_pair_of_levels_never_fails():
+    # one pair gives an order but no interval, and cannot tell a wrong order from a next term that still
+    # matters: confirmed within the tolerance (with a caution in the report), never off
+    v = judge("u", "L2", [0.1, 0.05], [1e-2, 1e-2 / 2 ** 1.0], 2, 0.1)
+    assert v.status == "inconclusive" and v.kind == "too few levels" and "one pair" in v.reason
+    assert judge("u", "L2", [0.1, 0.05], [1e-2, 1e-2 / 2 ** 2.02], 2, 0.1).status == "confirmed"
 
 
 def test_four_scattered_levels_are_not_taken_for_a_bend():

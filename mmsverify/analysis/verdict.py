@@ -174,7 +174,9 @@ def _decide(h, e, levels, formal, tol, at_least):
                 f"{_span(levels)}; two levels give no interval")
     interval = None if math.isnan(low) else (low, high)
     if interval is None:
-        off_low, off_high = p < lo_band, p > hi_band
+        # one pair of levels gives no interval, and cannot tell a wrong order from a next term that still
+        # matters (three grids are the least that check the asymptotic range; Roache 1998, from memory)
+        off_low = off_high = False
     else:
         off_low, off_high = high < lo_band, low > hi_band
         if bends and kind == "pre-asymptotic":     # off only if no next term that fits as well brings it back
@@ -196,10 +198,9 @@ def _decide(h, e, levels, formal, tol, at_least):
     rule = (f"formal {formal:g}, at least {lo_band:g}" if at_least else f"formal {formal:g} +- {tol:g}")
     if off_low or off_high:
         status = "below" if off_low else "above"
-        which = "95 % interval" if interval else "order"
         edge = lo_band if off_low else hi_band
         gap = abs(p - formal)
-        tail = (f"the {which} lies {'below' if off_low else 'above'} {edge:g}: converging to another order "
+        tail = (f"the 95 % interval lies {'below' if off_low else 'above'} {edge:g}: converging to another order "
                 f"({_num(p, *edges)}), {_num(gap, tol)} from the formal order, more than the tolerance {tol:g}")
         if off_high:
             tail += ("; superconvergence is a possible cause (a functional, or nodal values, converging faster "
@@ -239,6 +240,10 @@ def _decide(h, e, levels, formal, tol, at_least):
             extra = ("; above the formal order, which the one-sided rule allows (superconvergence is a possible "
                      "cause)")
         return "confirmed", "formal order", p, interval, f"{shown}; {rule}; within the tolerance{extra}"
+    if interval is None:
+        return "inconclusive", "too few levels", p, interval, (
+            f"{shown}; {rule}; the order of one pair of levels lies outside the tolerance, but one pair cannot "
+            "tell a wrong order from levels outside the asymptotic range: add a level")
     return "inconclusive", "too few levels", p, interval, (
         f"{shown}; {rule}; the estimate lies outside the tolerance but the interval reaches into it: the levels "
         "cannot decide; add a finer level")
