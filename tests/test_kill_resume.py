@@ -92,7 +92,10 @@ def _kill_when_reached(cmd, env, marker, limit=120):
 def _scenario(tmp_path, stop_at, workers):
     (tmp_path / "kill_solver.py").write_text(textwrap.dedent(KILL_SOLVER))
     log, marker = tmp_path / "calls.log", tmp_path / "reached"
-    env = dict(os.environ, CALL_LOG=str(log), MARKER=str(marker),
+    # the killed study cannot remove its temporary folder (SIGKILL allows no clean-up): keep it in the test's
+    # folder, not the machine's /tmp
+    (tmp_path / "tmp").mkdir()
+    env = dict(os.environ, CALL_LOG=str(log), MARKER=str(marker), TMPDIR=str(tmp_path / "tmp"),
                PYTHONPATH=os.pathsep.join([str(tmp_path), str(REPO), os.environ.get("PYTHONPATH", "")]))
     cmd = [sys.executable, "-m", "mmsverify", "run", PROBLEM, "kill_solver:solve", "--levels", str(LEVELS),
            "--base-cells", str(BASE), "--cache", str(tmp_path / "cache"), "--json", str(tmp_path / "out.json")]
@@ -101,9 +104,11 @@ def _scenario(tmp_path, stop_at, workers):
     _kill_when_reached(cmd, dict(env, RUN_ID="0", STOP_AT=str(stop_at)), marker)
     finished = _check_files(tmp_path)
     assert stop_at not in finished and finished, f"records after the kill: {sorted(finished)}"
+    left_by_kill = set((tmp_path / "tmp").iterdir())
     rerun = subprocess.run(cmd, env=dict(env, RUN_ID="1"), stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
                            timeout=300)
     assert rerun.returncode in (0, 1, 3), rerun.stderr.decode()[-2000:]
+    assert set((tmp_path / "tmp").iterdir()) == left_by_kill, "a study that ended left a temporary folder"
     assert sorted(_started(log, 1)) == sorted(set(range(LEVELS)) - set(finished)), \
         "the rerun must solve exactly the levels without a record"
     assert sorted(_check_files(tmp_path)) == list(range(LEVELS))
