@@ -238,3 +238,12 @@ def test_a_fourth_order_scheme_fading_from_order_six_is_no_floor():
     # a floor still shows where it slows the finest pair below the formal order
     v = judge("u", "L1", H, [4e-3, 1e-3, 2.5e-4, 8e-5, 4.5e-5], 2, 0.1, scale=1.0)
     assert v.kind == "frozen floor" and v.status == "inconclusive"
+
+
+@pytest.mark.parametrize("df", [1, 2, 3, 5, 10, 30])
+def test_quantiles_are_those_of_scipy_stats(df):
+    # the reference library's distributions (scipy.stats), which the fits no longer import for their cost
+    from scipy import stats
+    from mmsverify.analysis.errormodel import f_quantile, t_quantile
+    assert t_quantile(0.975, df) == pytest.approx(stats.t.ppf(0.975, df), rel=1e-12)
+    assert f_quantile(0.95, 1, df) == pytest.approx(stats.f.ppf(0.95, 1, df), rel=1e-12)

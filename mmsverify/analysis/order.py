@@ -24,6 +24,7 @@ from mmsverify.analysis.celik import as_levels
 from mmsverify.analysis.text import fmt_table
 from mmsverify.analysis.convergence import AsymptoticCheck, ConvergenceClass, asymptotic_check, classify_convergence
 from mmsverify.errors import AnalysisError
+from mmsverify.analysis.errormodel import t_quantile
 from mmsverify.analysis.lsq import LeastSquaresUncertainty, eca_hoekstra
 
 __all__ = [
@@ -171,10 +172,8 @@ def fit_order(h, e, confidence=0.95):
     ss_tot = float(np.sum((y - ym) ** 2))
     r2 = 1.0 - ss_res / ss_tot if ss_tot > 0 else (1.0 if ss_res == 0 else 0.0)
     if n >= 3:
-        from scipy import stats
-
         se = math.sqrt(ss_res / (n - 2) / sxx)
-        t = float(stats.t.ppf(0.5 + confidence / 2.0, n - 2))
+        t = t_quantile(0.5 + confidence / 2.0, n - 2)
         lo, hi, note = p - t * se, p + t * se, ""
     else:
         lo = hi = float("nan")

@@ -44,7 +44,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mmsverify.analysis.errormodel import CONFIDENCE, bend_fit, find_floor, fixed_fit, power_fit
+from mmsverify.analysis.errormodel import CONFIDENCE, bend_fit, f_quantile, find_floor, fixed_fit, power_fit
 from mmsverify.errors import AnalysisError
 from mmsverify.problem.rules import check_rule
 
@@ -129,8 +129,6 @@ def _sd(rms, n, parameters):
 
 def _decide(h, e, levels, formal, tol, at_least):
     """Status, kind, estimate, interval and reason from the fitted models of the levels given."""
-    from scipy import stats
-
     n = len(h)
     lo_band, hi_band = formal - tol, (math.inf if at_least else formal + tol)
     pf = power_fit(h, e)
@@ -164,7 +162,7 @@ def _decide(h, e, levels, formal, tol, at_least):
         # F-test (Draper and Smith 1998, Applied Regression Analysis, 3rd ed., sec. 6.1; from memory): with four
         # levels it always cuts the residual of noise, and only a cut beyond chance shows a real bend
         extra = (pf.rms ** 2 - best.rms ** 2) / (best.rms ** 2 / (n - 3)) if best.rms > 0 else math.inf
-        if _sd(best.rms, n, 3) * _EXPLAINED < _sd(pf.rms, n, 2) and extra > stats.f.ppf(CONFIDENCE, 1, n - 3):
+        if _sd(best.rms, n, 3) * _EXPLAINED < _sd(pf.rms, n, 2) and extra > f_quantile(CONFIDENCE, 1, n - 3):
             p, low, high, kind = best.p, best.low, best.high, "pre-asymptotic"
             note = f"a fit with the next term h^(p+{best.q:g}) over {_span(levels)}"
         else:
