@@ -31,6 +31,12 @@ def test_harness_overhead_splits_a_study_into_solver_and_harness(tmp_path):
     assert "harness share" in out and "Machine:" in out
 
 
+def test_warm_study_compares_no_limit_with_the_default_limit(tmp_path):
+    out = _run("warm_study.py", tmp_path)
+    assert "| none (levels in this process) |" in out and "| 3600 s (levels in a worker) |" in out
+    assert "Machine:" in out
+
+
 def test_solver_scaling_reports_default_next_to_direct(tmp_path):
     out = _run("solver_scaling.py", tmp_path)
     assert "**default** (auto: dst)" in out          # 3-D Dirichlet box: the sine transform applies
