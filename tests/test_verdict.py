@@ -174,7 +174,9 @@ def test_messages_never_contradict_their_rounding():
 
 def test_one_pair_of_levels_never_fails():
     # one pair gives an order but no interval, and cannot tell a wrong order from a next term that still
-    # matters: confirmed within the tolerance (with a caution in the report), never off
+    # matters: confirmed within the tolerance (with a caution in the report), never off (three grids are the
+    # least that check the asymptotic range; Roache 1998, Verification and Validation in Computational Science
+    # and Engineering, from memory)
     v = judge("u", "L2", [0.1, 0.05], [1e-2, 1e-2 / 2 ** 1.0], 2, 0.1)
     assert v.status == "inconclusive" and v.kind == "too few levels" and "one pair" in v.reason
     assert judge("u", "L2", [0.1, 0.05], [1e-2, 1e-2 / 2 ** 2.02], 2, 0.1).status == "confirmed"
